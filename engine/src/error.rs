@@ -1,0 +1,101 @@
+//! Errors of the engine. Each names the file, key and value concerned and
+//! what would have been allowed.
+
+use std::path::PathBuf;
+
+/// Everything that can go wrong while reading a scenario or running it.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum EngineError {
+    /// The scenario file could not be read.
+    #[error("{}: cannot read the scenario file: {source}", file.display())]
+    ReadScenario {
+        /// Scenario path.
+        file: PathBuf,
+        /// Underlying I/O error.
+        source: std::io::Error,
+    },
+    /// The scenario file is empty.
+    #[error("{}: the file is empty; a scenario needs at least [medium], [box], [[species]] and [integrator]", file.display())]
+    EmptyScenario {
+        /// Scenario path.
+        file: PathBuf,
+    },
+    /// The scenario is not valid TOML, or has unknown keys or wrong types.
+    #[error("{}: {message}", file.display())]
+    ParseScenario {
+        /// Scenario path.
+        file: PathBuf,
+        /// Parser message, with line and column.
+        message: String,
+    },
+    /// A key has a value outside what is allowed.
+    #[error("{}: key `{key}` = {value} is not allowed; {allowed}", file.display())]
+    InvalidValue {
+        /// Scenario path.
+        file: PathBuf,
+        /// Dotted key.
+        key: String,
+        /// The offending value, as written.
+        value: String,
+        /// What would be allowed.
+        allowed: String,
+    },
+    /// A `--set KEY=VALUE` override is malformed or names no key.
+    #[error("--set '{assignment}': {reason}")]
+    Override {
+        /// The assignment as given.
+        assignment: String,
+        /// Why it was refused.
+        reason: String,
+    },
+    /// The output file exists and `--force` was not given.
+    #[error("{}: the output file exists; pass --force to overwrite it, or --resume to continue an interrupted run", file.display())]
+    OutputExists {
+        /// Output path.
+        file: PathBuf,
+    },
+    /// The output folder does not exist or is not writable.
+    #[error("{}: cannot write the output file: {reason}", file.display())]
+    OutputNotWritable {
+        /// Output path.
+        file: PathBuf,
+        /// What failed.
+        reason: String,
+    },
+    /// `--resume` was asked for but cannot be honoured.
+    #[error("{}: cannot resume: {reason}", file.display())]
+    Resume {
+        /// Output (or checkpoint) path.
+        file: PathBuf,
+        /// Why not.
+        reason: String,
+    },
+    /// Obstacle or particle placement failed to reach its target.
+    #[error("{}: placement stopped: {reason}", file.display())]
+    Placement {
+        /// Scenario path.
+        file: PathBuf,
+        /// What was reached and why it stopped.
+        reason: String,
+    },
+    /// HDF5 library error while writing a trajectory.
+    #[error("{}: HDF5 error: {source}", file.display())]
+    Hdf5 {
+        /// Trajectory path.
+        file: PathBuf,
+        /// Library error.
+        source: hdf5::Error,
+    },
+    /// Other I/O error (checkpoints, CSV inputs).
+    #[error("{}: {source}", file.display())]
+    Io {
+        /// Path concerned.
+        file: PathBuf,
+        /// Underlying error.
+        source: std::io::Error,
+    },
+}
+
+/// Result with [`EngineError`].
+pub type Result<T, E = EngineError> = std::result::Result<T, E>;

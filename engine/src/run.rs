@@ -1,0 +1,141 @@
+//! The run driver: creates or resumes a trajectory, advances the state in
+//! blocks, records frames, checkpoints on a timer and stops cleanly when asked.
+
+use crate::config::Scenario;
+use crate::error::{EngineError, Result};
+use crate::integrate::{advance_free, kinetics, State};
+use crate::trajectory::{checkpoint_path, Checkpoint, TrajectoryWriter};
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::time::Instant;
+
+/// Particle-steps per block between checks of the stop flag and the
+/// checkpoint timer: keeps an interrupt answered within a fraction of a second.
+const BLOCK_PARTICLE_STEPS: u64 = 20_000_000;
+
+/// What `run` is asked to do.
+#[derive(Debug, Clone)]
+pub struct RunOptions {
+    /// Trajectory path.
+    pub out: PathBuf,
+    /// Overwrite an existing trajectory. By default, this is disabled.
+    pub force: bool,
+    /// Continue an interrupted run from its checkpoint. By default, this is disabled.
+    pub resume: bool,
+}
+
+/// How a run ended.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum RunOutcome {
+    /// All steps done; the checkpoint was removed.
+    Completed {
+        /// Frames in the file.
+        frames: u64,
+    },
+    /// Stopped by the stop flag; a checkpoint allows `--resume`.
+    Interrupted {
+        /// Steps done.
+        step: u64,
+        /// Frames in the file.
+        frames: u64,
+    },
+}
+
+/// Runs a scenario to its end or until `stop` is set.
+///
+/// `progress(step, steps)` is called after every block.
+///
+/// # Errors
+/// Output that exists without `force`, unwritable output, a resume whose
+/// checkpoint or scenario does not match, HDF5 or I/O failures.
+pub fn run(scenario: &Scenario, options: &RunOptions, stop: &AtomicBool, progress: &mut dyn FnMut(u64, u64)) -> Result<RunOutcome> {
+    let out = &options.out;
+    let ckpt_path = checkpoint_path(out);
+    let (mut state, mut writer) = if options.resume {
+        resume_state(scenario, out, &ckpt_path)?
+    } else {
+        if out.exists() {
+            if !options.force {
+                return Err(EngineError::OutputExists { file: out.clone() });
+            }
+            std::fs::remove_file(out).map_err(|e| EngineError::OutputNotWritable { file: out.clone(), reason: e.to_string() })?;
+        }
+        check_parent(out)?;
+        let _ = std::fs::remove_file(&ckpt_path);
+        let state = State::initial(scenario);
+        let mut writer = TrajectoryWriter::create(out, scenario)?;
+        writer.write_frame(&state, 0.0)?;
+        writer.flush()?;
+        (state, writer)
+    };
+
+    let kin = kinetics(scenario);
+    let record = scenario.output.record_every_steps;
+    let n = scenario.particle_count() as u64;
+    let block = (BLOCK_PARTICLE_STEPS / n.max(1)).clamp(1, record);
+    let mut last_checkpoint = Instant::now();
+    let save = |state: &State, writer: &TrajectoryWriter| -> Result<()> {
+        writer.flush()?;
+        Checkpoint { frames: writer.frames() as u64, resolved_toml: scenario.resolved_toml.clone(), state: state.clone() }.save(&ckpt_path)
+    };
+    progress(state.step, scenario.steps);
+    while state.step < scenario.steps {
+        if stop.load(Ordering::Relaxed) {
+            save(&state, &writer)?;
+            return Ok(RunOutcome::Interrupted { step: state.step, frames: writer.frames() as u64 });
+        }
+        // Never step past the next frame, so frames land exactly on multiples of `record`.
+        let to_frame = record - state.step % record;
+        let steps = block.min(to_frame);
+        advance_free(&mut state, &kin, &scenario.sim_box, steps);
+        if state.step % record == 0 {
+            writer.write_frame(&state, state.step as f64 * scenario.dt_s)?;
+        }
+        if last_checkpoint.elapsed().as_secs_f64() >= scenario.output.checkpoint_interval_s {
+            save(&state, &writer)?;
+            last_checkpoint = Instant::now();
+        }
+        progress(state.step, scenario.steps);
+    }
+    writer.flush()?;
+    let frames = writer.frames() as u64;
+    drop(writer);
+    let _ = std::fs::remove_file(&ckpt_path);
+    Ok(RunOutcome::Completed { frames })
+}
+
+fn check_parent(out: &Path) -> Result<()> {
+    let parent = match out.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p,
+        _ => return Ok(()),
+    };
+    if !parent.is_dir() {
+        return Err(EngineError::OutputNotWritable {
+            file: out.to_path_buf(),
+            reason: format!("the folder {} does not exist", parent.display()),
+        });
+    }
+    Ok(())
+}
+
+fn resume_state(scenario: &Scenario, out: &Path, ckpt_path: &Path) -> Result<(State, TrajectoryWriter)> {
+    if !out.exists() {
+        return Err(EngineError::Resume { file: out.to_path_buf(), reason: "the trajectory does not exist; start the run without --resume".into() });
+    }
+    let ckpt = Checkpoint::load(ckpt_path)?;
+    if ckpt.resolved_toml != scenario.resolved_toml {
+        let diff = ckpt
+            .resolved_toml
+            .lines()
+            .zip(scenario.resolved_toml.lines())
+            .find(|(a, b)| a != b)
+            .map(|(a, b)| format!("the run was started with `{a}` but the scenario now says `{b}`"))
+            .unwrap_or_else(|| "the scenario differs in length from the one the run was started with".into());
+        return Err(EngineError::Resume { file: out.to_path_buf(), reason: format!("scenario mismatch: {diff}; resume with the same scenario and --set options") });
+    }
+    if ckpt.state.len() != scenario.particle_count() {
+        return Err(EngineError::Resume { file: ckpt_path.to_path_buf(), reason: "the checkpoint holds a different number of particles".into() });
+    }
+    let writer = TrajectoryWriter::reopen(out, scenario, ckpt.frames as usize)?;
+    Ok((ckpt.state, writer))
+}

@@ -1,0 +1,393 @@
+//! Trajectory files (HDF5 in the H5MD 1.1 layout) and checkpoints.
+//!
+//! Frames are appended as the run goes and the file is flushed at every
+//! checkpoint, so a file from an interrupted run opens in any HDF5 reader with
+//! every flushed frame. The checkpoint is a small binary file beside the
+//! trajectory (`FILE.h5.ckpt`) holding the exact state, so a resumed run ends
+//! with the same datasets as an uninterrupted one.
+
+use crate::config::{Precision, Scenario};
+use crate::error::{EngineError, Result};
+use crate::integrate::State;
+use crate::rng::ParticleRng;
+use hdf5::types::FixedAscii;
+use hdf5::{Dataset, File, Group, Location};
+use ndarray::{s, Array1, Array3};
+use std::io::{Read, Write};
+use std::path::{Path, PathBuf};
+
+/// Particles converted and written per HDF5 call: bounds the staging buffer.
+const WRITE_BLOCK: usize = 65_536;
+/// Target bytes per HDF5 chunk of positions.
+const CHUNK_BYTES: usize = 1 << 20;
+
+/// Creator name written to `/h5md/creator`.
+pub const CREATOR: &str = "thicket";
+/// Creator version.
+pub const VERSION: &str = env!("CARGO_PKG_VERSION");
+
+/// Appends frames of a run to an H5MD file.
+pub struct TrajectoryWriter {
+    path: PathBuf,
+    file: File,
+    species: Vec<SpeciesSets>,
+    precision: Precision,
+    frames: usize,
+}
+
+struct SpeciesSets {
+    range: std::ops::Range<usize>,
+    value: Dataset,
+    image: Dataset,
+    step: Dataset,
+    time: Dataset,
+}
+
+fn h5(path: &Path) -> impl Fn(hdf5::Error) -> EngineError + '_ {
+    move |source| EngineError::Hdf5 { file: path.to_path_buf(), source }
+}
+
+/// Writes a scalar fixed-length ASCII attribute (H5MD asks for fixed length).
+pub fn write_str_attr(loc: &Location, name: &str, value: &str) -> hdf5::Result<()> {
+    fn put<const N: usize>(loc: &Location, name: &str, value: &str) -> hdf5::Result<()> {
+        let v = FixedAscii::<N>::from_ascii(value.as_bytes()).map_err(|e| hdf5::Error::from(e.to_string().as_str()))?;
+        loc.new_attr::<FixedAscii<N>>().create(name)?.write_scalar(&v)
+    }
+    match value.len() {
+        0..=15 => put::<16>(loc, name, value),
+        16..=255 => put::<256>(loc, name, value),
+        256..=4095 => put::<4096>(loc, name, value),
+        4096..=32767 => put::<32768>(loc, name, value),
+        _ => put::<65536>(loc, name, value),
+    }
+}
+
+fn f64_attr(loc: &Location, name: &str, v: f64) -> hdf5::Result<()> {
+    loc.new_attr::<f64>().create(name)?.write_scalar(&v)
+}
+
+fn i64_attr(loc: &Location, name: &str, v: i64) -> hdf5::Result<()> {
+    loc.new_attr::<i64>().create(name)?.write_scalar(&v)
+}
+
+/// Frames per chunk so that one chunk of positions is about [`CHUNK_BYTES`].
+fn chunk_frames(n: usize) -> usize {
+    (CHUNK_BYTES / (n * 3 * 4).max(1)).clamp(1, 1024)
+}
+
+/// Particles per chunk (all of them, unless one frame alone exceeds the target).
+fn chunk_particles(n: usize) -> usize {
+    n.min((CHUNK_BYTES / 12).max(1))
+}
+
+impl TrajectoryWriter {
+    /// Creates a new trajectory file with the H5MD skeleton and no frames.
+    ///
+    /// # Errors
+    /// [`EngineError::OutputNotWritable`] when the file cannot be created.
+    pub fn create(path: &Path, scenario: &Scenario) -> Result<Self> {
+        let file = File::with_options()
+            .with_fapl(|p| p.libver_v110())
+            .create(path)
+            .map_err(|e| EngineError::OutputNotWritable { file: path.to_path_buf(), reason: e.to_string() })?;
+        let e = h5(path);
+        let h5md = file.create_group("h5md").map_err(&e)?;
+        h5md.new_attr::<i32>().shape(2).create("version").and_then(|a| a.write(&[1i32, 1])).map_err(&e)?;
+        let author = h5md.create_group("author").map_err(&e)?;
+        write_str_attr(&author, "name", "thicket user").map_err(&e)?;
+        let creator = h5md.create_group("creator").map_err(&e)?;
+        write_str_attr(&creator, "name", CREATOR).map_err(&e)?;
+        write_str_attr(&creator, "version", VERSION).map_err(&e)?;
+        let units = h5md.create_group("modules").and_then(|m| m.create_group("units")).map_err(&e)?;
+        units.new_attr::<i32>().shape(2).create("version").and_then(|a| a.write(&[1i32, 0])).map_err(&e)?;
+        write_str_attr(&units, "system", "SI").map_err(&e)?;
+
+        let params = file.create_group("parameters").and_then(|p| p.create_group("thicket")).map_err(&e)?;
+        write_str_attr(&params, "scenario", &scenario.resolved_toml).map_err(&e)?;
+        params.new_attr::<u64>().create("seed").and_then(|a| a.write_scalar(&scenario.seed)).map_err(&e)?;
+        write_str_attr(&params, "version", VERSION).map_err(&e)?;
+        i64_attr(&params, "frames_planned", scenario.frames() as i64).map_err(&e)?;
+        i64_attr(&params, "record_every_steps", scenario.output.record_every_steps as i64).map_err(&e)?;
+        f64_attr(&params, "dt_s", scenario.dt_s).map_err(&e)?;
+        f64_attr(&params, "temperature_K", scenario.temperature_k).map_err(&e)?;
+        f64_attr(&params, "viscosity_Pa_s", scenario.viscosity_pa_s).map_err(&e)?;
+        let species_params = params.create_group("species").map_err(&e)?;
+        for s in &scenario.species {
+            let g = species_params.create_group(&s.name).map_err(&e)?;
+            f64_attr(&g, "radius_nm", s.radius_nm).map_err(&e)?;
+            f64_attr(&g, "drag_radius_nm", s.drag_radius_nm).map_err(&e)?;
+            f64_attr(&g, "d0_m2_per_s", s.d0_m2_per_s).map_err(&e)?;
+            i64_attr(&g, "count", s.count as i64).map_err(&e)?;
+        }
+
+        let particles = file.create_group("particles").map_err(&e)?;
+        let mut species = Vec::new();
+        let mut start = 0;
+        for s in &scenario.species {
+            let range = start..start + s.count;
+            start = range.end;
+            let g = particles.create_group(&s.name).map_err(&e)?;
+            write_box(&g, scenario).map_err(&e)?;
+            species.push(create_species_sets(&g, range, scenario.output.precision).map_err(&e)?);
+        }
+        file.flush().map_err(&e)?;
+        Ok(Self { path: path.to_path_buf(), file, species, precision: scenario.output.precision, frames: 0 })
+    }
+
+    /// Reopens a trajectory for a resumed run, dropping frames past `frames`.
+    ///
+    /// # Errors
+    /// [`EngineError::Resume`] when the file lacks the expected datasets or
+    /// has fewer frames than the checkpoint.
+    pub fn reopen(path: &Path, scenario: &Scenario, frames: usize) -> Result<Self> {
+        let fail = |reason: String| EngineError::Resume { file: path.to_path_buf(), reason };
+        let file = File::open_rw(path).map_err(|e| fail(format!("the trajectory cannot be opened for writing: {e}")))?;
+        let mut species = Vec::new();
+        let mut start = 0;
+        for s in &scenario.species {
+            let range = start..start + s.count;
+            start = range.end;
+            let base = format!("particles/{}", s.name);
+            let open = |name: &str| {
+                file.dataset(&format!("{base}/{name}"))
+                    .map_err(|e| fail(format!("dataset /{base}/{name} is missing or unreadable: {e}")))
+            };
+            let sets = SpeciesSets {
+                range,
+                value: open("position/value")?,
+                image: open("image/value")?,
+                step: open("position/step")?,
+                time: open("position/time")?,
+            };
+            for (name, ds) in [("position/value", &sets.value), ("image/value", &sets.image), ("position/step", &sets.step), ("position/time", &sets.time)] {
+                let have = ds.shape().first().copied().unwrap_or(0);
+                if have < frames {
+                    return Err(fail(format!(
+                        "/{base}/{name} has {have} frames but the checkpoint expects {frames}; the file is not the one the checkpoint belongs to"
+                    )));
+                }
+            }
+            let n = s.count;
+            sets.value.resize((frames, n, 3)).map_err(h5(path))?;
+            sets.image.resize((frames, n, 3)).map_err(h5(path))?;
+            sets.step.resize(frames).map_err(h5(path))?;
+            sets.time.resize(frames).map_err(h5(path))?;
+            species.push(sets);
+        }
+        Ok(Self { path: path.to_path_buf(), file, species, precision: scenario.output.precision, frames })
+    }
+
+    /// Frames written so far.
+    pub fn frames(&self) -> usize {
+        self.frames
+    }
+
+    /// Appends one frame of every species.
+    ///
+    /// # Errors
+    /// HDF5 write failures.
+    pub fn write_frame(&mut self, state: &State, time_s: f64) -> Result<()> {
+        let e = h5(&self.path);
+        let f = self.frames;
+        for sets in &self.species {
+            let n = sets.range.len();
+            sets.value.resize((f + 1, n, 3)).map_err(&e)?;
+            sets.image.resize((f + 1, n, 3)).map_err(&e)?;
+            for lo in (0..n).step_by(WRITE_BLOCK) {
+                let hi = (lo + WRITE_BLOCK).min(n);
+                let base = sets.range.start;
+                let pos = &state.positions[base + lo..base + hi];
+                match self.precision {
+                    Precision::F32 => {
+                        let buf = Array3::from_shape_fn((1, hi - lo, 3), |(_, i, k)| pos[i][k] as f32);
+                        sets.value.write_slice(&buf, s![f..f + 1, lo..hi, ..]).map_err(&e)?;
+                    }
+                    Precision::F64 => {
+                        let buf = Array3::from_shape_fn((1, hi - lo, 3), |(_, i, k)| pos[i][k]);
+                        sets.value.write_slice(&buf, s![f..f + 1, lo..hi, ..]).map_err(&e)?;
+                    }
+                }
+                let im = &state.images[base + lo..base + hi];
+                let buf = Array3::from_shape_fn((1, hi - lo, 3), |(_, i, k)| im[i][k]);
+                sets.image.write_slice(&buf, s![f..f + 1, lo..hi, ..]).map_err(&e)?;
+            }
+            // step and time last: a reader takes the shortest length as the frame count.
+            sets.step.resize(f + 1).map_err(&e)?;
+            sets.step.write_slice(&Array1::from_elem(1, state.step as i64), s![f..f + 1]).map_err(&e)?;
+            sets.time.resize(f + 1).map_err(&e)?;
+            sets.time.write_slice(&Array1::from_elem(1, time_s), s![f..f + 1]).map_err(&e)?;
+        }
+        self.frames += 1;
+        Ok(())
+    }
+
+    /// Flushes everything written so far to disk.
+    ///
+    /// # Errors
+    /// HDF5 flush failures.
+    pub fn flush(&self) -> Result<()> {
+        self.file.flush().map_err(h5(&self.path))
+    }
+
+    /// The open file, for writers of extra groups (obstacles, observables).
+    pub fn file(&self) -> &File {
+        &self.file
+    }
+}
+
+fn write_box(g: &Group, scenario: &Scenario) -> hdf5::Result<()> {
+    let b = g.create_group("box")?;
+    b.new_attr::<i32>().create("dimension")?.write_scalar(&3i32)?;
+    let boundary: Vec<FixedAscii<8>> = scenario
+        .sim_box
+        .periodic
+        .iter()
+        .map(|&p| FixedAscii::<8>::from_ascii(if p { "periodic" } else { "none" }).expect("ascii literal"))
+        .collect();
+    b.new_attr::<FixedAscii<8>>().shape(3).create("boundary")?.write(&boundary)?;
+    let edges = b.new_dataset::<f64>().shape(3).create("edges")?;
+    edges.write(&scenario.sim_box.edges_nm)?;
+    write_str_attr(&edges, "unit", "nm")
+}
+
+fn create_species_sets(g: &Group, range: std::ops::Range<usize>, precision: Precision) -> hdf5::Result<SpeciesSets> {
+    let n = range.len();
+    let chunk = (chunk_frames(n), chunk_particles(n), 3);
+    let pos = g.create_group("position")?;
+    let value = match precision {
+        Precision::F32 => pos.new_dataset::<f32>(),
+        Precision::F64 => pos.new_dataset::<f64>(),
+    }
+    .shape((0.., n, 3))
+    .chunk(chunk)
+    .create("value")?;
+    write_str_attr(&value, "unit", "nm")?;
+    let step = pos.new_dataset::<i64>().shape(0..).chunk(1024).create("step")?;
+    let time = pos.new_dataset::<f64>().shape(0..).chunk(1024).create("time")?;
+    write_str_attr(&time, "unit", "s")?;
+    let img = g.create_group("image")?;
+    let image = img.new_dataset::<i32>().shape((0.., n, 3)).chunk(chunk).create("value")?;
+    let base = g.name();
+    img.link_hard(&format!("{base}/position/step"), "step")?;
+    img.link_hard(&format!("{base}/position/time"), "time")?;
+    Ok(SpeciesSets { range, value, image, step, time })
+}
+
+/// Path of the checkpoint that belongs to a trajectory file.
+pub fn checkpoint_path(trajectory: &Path) -> PathBuf {
+    let mut s = trajectory.as_os_str().to_owned();
+    s.push(".ckpt");
+    PathBuf::from(s)
+}
+
+const CHECKPOINT_MAGIC: &[u8; 8] = b"THKTCK01";
+
+/// Exact run state at a step, with the frames already in the trajectory.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Checkpoint {
+    /// Frames in the trajectory that belong to this state.
+    pub frames: u64,
+    /// Resolved scenario the run was started with.
+    pub resolved_toml: String,
+    /// Particle state.
+    pub state: State,
+}
+
+impl Checkpoint {
+    /// Writes atomically (temporary file, then rename), so a kill mid-write
+    /// leaves the previous checkpoint intact.
+    ///
+    /// # Errors
+    /// I/O failures.
+    pub fn save(&self, path: &Path) -> Result<()> {
+        let io = |source| EngineError::Io { file: path.to_path_buf(), source };
+        let n = self.state.len();
+        let mut buf = Vec::with_capacity(64 + self.resolved_toml.len() + n * 68);
+        buf.extend_from_slice(CHECKPOINT_MAGIC);
+        for v in [self.frames, self.state.step, n as u64, self.resolved_toml.len() as u64] {
+            buf.extend_from_slice(&v.to_le_bytes());
+        }
+        buf.extend_from_slice(self.resolved_toml.as_bytes());
+        for p in &self.state.positions {
+            for x in p {
+                buf.extend_from_slice(&x.to_le_bytes());
+            }
+        }
+        for im in &self.state.images {
+            for x in im {
+                buf.extend_from_slice(&x.to_le_bytes());
+            }
+        }
+        for g in &self.state.rngs {
+            for w in g.state() {
+                buf.extend_from_slice(&w.to_le_bytes());
+            }
+        }
+        let tmp = path.with_extension("ckpt.tmp");
+        let mut f = std::fs::File::create(&tmp).map_err(io)?;
+        f.write_all(&buf).map_err(io)?;
+        f.sync_all().map_err(io)?;
+        std::fs::rename(&tmp, path).map_err(io)
+    }
+
+    /// Reads a checkpoint written by [`Checkpoint::save`].
+    ///
+    /// # Errors
+    /// [`EngineError::Resume`] when missing, truncated or not a checkpoint.
+    pub fn load(path: &Path) -> Result<Self> {
+        let fail = |reason: String| EngineError::Resume { file: path.to_path_buf(), reason };
+        let mut bytes = Vec::new();
+        std::fs::File::open(path)
+            .and_then(|mut f| f.read_to_end(&mut bytes))
+            .map_err(|e| fail(format!("no readable checkpoint ({e}); only a run that was interrupted can be resumed")))?;
+        let mut r = Reader { bytes: &bytes, at: 0 };
+        if r.take(8) != Some(CHECKPOINT_MAGIC.as_slice()) {
+            return Err(fail("the file is not a thicket checkpoint".into()));
+        }
+        let short = || fail("the checkpoint is truncated".into());
+        let frames = r.u64().ok_or_else(short)?;
+        let step = r.u64().ok_or_else(short)?;
+        let n = r.u64().ok_or_else(short)? as usize;
+        let len = r.u64().ok_or_else(short)? as usize;
+        let toml = r.take(len).ok_or_else(short)?;
+        let resolved_toml = String::from_utf8(toml.to_vec()).map_err(|_| fail("the checkpoint's scenario is not text".into()))?;
+        if bytes.len() != r.at + n * (24 + 12 + 32) {
+            return Err(short());
+        }
+        let mut positions = Vec::with_capacity(n);
+        for _ in 0..n {
+            positions.push([r.f64(), r.f64(), r.f64()].map(|v| v.unwrap_or(0.0)));
+        }
+        let mut images = Vec::with_capacity(n);
+        for _ in 0..n {
+            images.push([r.i32(), r.i32(), r.i32()].map(|v| v.unwrap_or(0)));
+        }
+        let mut rngs = Vec::with_capacity(n);
+        for _ in 0..n {
+            rngs.push(ParticleRng::from_state([r.u64(), r.u64(), r.u64(), r.u64()].map(|v| v.unwrap_or(1))));
+        }
+        Ok(Self { frames, resolved_toml, state: State { positions, images, rngs, step } })
+    }
+}
+
+struct Reader<'a> {
+    bytes: &'a [u8],
+    at: usize,
+}
+
+impl<'a> Reader<'a> {
+    fn take(&mut self, n: usize) -> Option<&'a [u8]> {
+        let out = self.bytes.get(self.at..self.at.checked_add(n)?)?;
+        self.at += n;
+        Some(out)
+    }
+    fn u64(&mut self) -> Option<u64> {
+        self.take(8).map(|b| u64::from_le_bytes(b.try_into().expect("8 bytes")))
+    }
+    fn f64(&mut self) -> Option<f64> {
+        self.take(8).map(|b| f64::from_le_bytes(b.try_into().expect("8 bytes")))
+    }
+    fn i32(&mut self) -> Option<i32> {
+        self.take(4).map(|b| i32::from_le_bytes(b.try_into().expect("4 bytes")))
+    }
+}
