@@ -1,0 +1,1021 @@
+//! Published transport models as pure functions: the one catalogue the
+//! reports compare measurements with.
+//!
+//! Every function returns a dimensionless ratio and checks its inputs
+//! cheaply, returning a [`ModelError`] that names the value and the allowed
+//! range. Obstruction models come in two forms that must not be confused
+//! (REFERENCE.md): the *conductivity* form σ_eff/σ0 of a composite, and the
+//! *tracer* form D_eff/D0 that a mean-squared displacement measures, which is
+//! the conductivity divided by the free-volume fraction 1 − φ. Functions say
+//! which form they return in their names.
+//!
+//! The wall mobility corrections live in the engine (it needs them at run
+//! time) and are re-exported here, so each formula is written once.
+
+pub use thicket_engine::mobility::{
+    bevan_prieve_perpendicular, brenner_perpendicular, brenner_perpendicular_value_and_gradient,
+    d_bevan_prieve_perpendicular_dz, d_brenner_perpendicular_dz, d_faxen_parallel_dz,
+    d_lubrication_perpendicular_dz, d_perpendicular_dz, faxen_parallel, lubrication_perpendicular,
+    superpose_two_walls, superpose_two_walls_with_gradient, PerpendicularModel, WallMobility,
+    WallMobilityTable, BRENNER_LUBRICATION_SWITCH_Z_OVER_A,
+};
+
+/// Random close packing of monodisperse spheres, φ ≈ 0.64 (REFERENCE.md):
+/// no random non-overlapping sphere packing is denser, so the three-point
+/// estimate for such packings is not offered beyond it.
+pub const RANDOM_CLOSE_PACKING: f64 = 0.64;
+
+/// Largest λ for which Dechadilok & Deen (2006) state their fit (REFERENCE.md).
+pub const DECHADILOK_DEEN_MAX_LAMBDA: f64 = 0.95;
+
+/// A model input outside the range where the formula is defined.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[non_exhaustive]
+pub enum ModelError {
+    /// A scalar input is out of range.
+    #[error("{name} = {value} is outside the allowed range {allowed}")]
+    OutOfRange {
+        /// The input's name, e.g. "volume fraction phi".
+        name: &'static str,
+        /// The value given.
+        value: f64,
+        /// The allowed range, e.g. "[0, 1)".
+        allowed: &'static str,
+    },
+    /// An element of an input slice is out of range.
+    #[error("{name}[{index}] = {value} is outside the allowed range {allowed}")]
+    OutOfRangeAt {
+        /// The slice's name.
+        name: &'static str,
+        /// Position of the offending element.
+        index: usize,
+        /// The value given.
+        value: f64,
+        /// The allowed range.
+        allowed: &'static str,
+    },
+    /// Input slices that must pair up element by element differ in length.
+    #[error("fit inputs differ in length: {phis} volume fractions, {ratios} ratios, {weights} weights; they must be equal")]
+    LengthMismatch {
+        /// Number of volume fractions.
+        phis: usize,
+        /// Number of ratios.
+        ratios: usize,
+        /// Number of weights.
+        weights: usize,
+    },
+    /// Too few usable points for a fit with an error estimate.
+    #[error("the free-volume fit has {found} usable points (weight > 0, and at least one with phi > 0); it needs at least {needed}")]
+    TooFewPoints {
+        /// Usable points found.
+        found: usize,
+        /// Points needed.
+        needed: usize,
+    },
+}
+
+/// Result of a model evaluation.
+pub type ModelResult<T> = Result<T, ModelError>;
+
+/// φ must be a finite fraction in [0, 1).
+fn fraction(name: &'static str, value: f64) -> ModelResult<f64> {
+    if (0.0..1.0).contains(&value) {
+        Ok(value)
+    } else {
+        Err(ModelError::OutOfRange {
+            name,
+            value,
+            allowed: "[0, 1)",
+        })
+    }
+}
+
+/// A length or density must be finite and ≥ 0.
+fn non_negative(name: &'static str, value: f64) -> ModelResult<f64> {
+    if value >= 0.0 && value.is_finite() {
+        Ok(value)
+    } else {
+        Err(ModelError::OutOfRange {
+            name,
+            value,
+            allowed: "[0, inf)",
+        })
+    }
+}
+
+/// A scale that divides must be finite and > 0.
+fn positive(name: &'static str, value: f64) -> ModelResult<f64> {
+    if value > 0.0 && value.is_finite() {
+        Ok(value)
+    } else {
+        Err(ModelError::OutOfRange {
+            name,
+            value,
+            allowed: "(0, inf)",
+        })
+    }
+}
+
+/// Maxwell (1873), **tracer form**: D_eff/D0 = 2/(2 + φ) for a point tracer
+/// among insulating (impermeable) spheres at volume fraction φ ∈ [0, 1)
+/// (REFERENCE.md). This is what an MSD measures; tortuosity 1 + φ/2.
+///
+/// For a tracer of radius a among obstacles of radius b pass the excluded
+/// fraction ([`excluded_volume_fraction`]).
+pub fn maxwell_tracer(phi: f64) -> ModelResult<f64> {
+    let phi = fraction("volume fraction phi", phi)?;
+    Ok(2.0 / (2.0 + phi))
+}
+
+/// Maxwell (1873), **conductivity form**: σ_eff/σ0 = 2(1 − φ)/(2 + φ) for a
+/// composite with insulating spheres at volume fraction φ ∈ [0, 1)
+/// (REFERENCE.md). Not what an MSD measures; see [`maxwell_tracer`].
+pub fn maxwell_conductivity(phi: f64) -> ModelResult<f64> {
+    let phi = fraction("volume fraction phi", phi)?;
+    Ok(2.0 * (1.0 - phi) / (2.0 + phi))
+}
+
+/// Hashin & Shtrikman (1962) upper bound, **conductivity form**, for
+/// insulating non-overlapping inclusions at volume fraction φ ∈ [0, 1)
+/// (REFERENCE.md), written from the general two-phase bound
+/// σ_U = σ1 + φ2 / (1/(σ2 − σ1) + φ1/(3σ1)) with σ2 = 0, σ1 = 1.
+/// It coincides with [`maxwell_conductivity`].
+pub fn hashin_shtrikman_upper_conductivity(phi: f64) -> ModelResult<f64> {
+    let phi = fraction("volume fraction phi", phi)?;
+    let (sigma_matrix, sigma_inclusion) = (1.0, 0.0);
+    Ok(sigma_matrix
+        + phi / (1.0 / (sigma_inclusion - sigma_matrix) + (1.0 - phi) / (3.0 * sigma_matrix)))
+}
+
+/// Hashin & Shtrikman (1962) upper bound, **tracer form** (conductivity
+/// bound divided by 1 − φ), φ ∈ [0, 1) (REFERENCE.md). It equals
+/// [`maxwell_tracer`], 2/(2 + φ): an upper bound that simulations among
+/// random non-overlapping spheres must sit just under.
+pub fn hashin_shtrikman_upper_tracer(phi: f64) -> ModelResult<f64> {
+    Ok(hashin_shtrikman_upper_conductivity(phi)? / (1.0 - phi))
+}
+
+/// Mackie & Meares (1955): D_eff/D0 = ((1 − φ)/(1 + φ))², φ ∈ [0, 1)
+/// (REFERENCE.md).
+pub fn mackie_meares(phi: f64) -> ModelResult<f64> {
+    let phi = fraction("volume fraction phi", phi)?;
+    let r = (1.0 - phi) / (1.0 + phi);
+    Ok(r * r)
+}
+
+/// Free-volume type model: D_eff/D0 = exp(−γ φ/(1 − φ)), the Cohen–Turnbull
+/// (1959) form applied to the obstacle fraction (REFERENCE.md, from memory).
+/// γ is an overlap factor of order one that must be fitted
+/// ([`fit_free_volume_gamma`]); it is not a parameter-free prediction.
+/// φ ∈ [0, 1), γ finite.
+pub fn free_volume(phi: f64, gamma: f64) -> ModelResult<f64> {
+    let phi = fraction("volume fraction phi", phi)?;
+    if !gamma.is_finite() {
+        return Err(ModelError::OutOfRange {
+            name: "overlap factor gamma",
+            value: gamma,
+            allowed: "finite values",
+        });
+    }
+    Ok((-gamma * phi / (1.0 - phi)).exp())
+}
+
+/// The fitted overlap factor of the free-volume model.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct FreeVolumeFit {
+    /// Best-fit γ.
+    pub gamma: f64,
+    /// Standard error of γ from the weighted residual scatter.
+    pub gamma_standard_error: f64,
+    /// Number of points with non-zero weight used in the fit.
+    pub points: usize,
+}
+
+/// Fits γ of [`free_volume`] (Cohen–Turnbull 1959 form, REFERENCE.md) by
+/// weighted least squares on ln(ratio), which is linear in γ:
+/// ln(D_eff/D0) = −γ x with x = φ/(1 − φ), a line through the origin, so
+/// γ = −Σ w x ln r / Σ w x² in closed form.
+///
+/// `weights` are relative (e.g. 1/Var[ln r] = (r/σ_r)² from a ratio's
+/// standard error σ_r); their overall scale does not matter. The standard
+/// error is √(s²/Σ w x²) with s² = Σ w (ln r + γ x)² / (m − 1), from the
+/// scatter of the m points with non-zero weight.
+///
+/// # Errors
+/// Slices of different lengths; φ outside [0, 1); a ratio that is not a
+/// finite number > 0; a weight that is not finite and ≥ 0; fewer than two
+/// points with non-zero weight, or none of them at φ > 0.
+pub fn fit_free_volume_gamma(
+    phis: &[f64],
+    ratios: &[f64],
+    weights: &[f64],
+) -> ModelResult<FreeVolumeFit> {
+    if phis.len() != ratios.len() || phis.len() != weights.len() {
+        return Err(ModelError::LengthMismatch {
+            phis: phis.len(),
+            ratios: ratios.len(),
+            weights: weights.len(),
+        });
+    }
+    let mut points = Vec::with_capacity(phis.len());
+    for (index, ((&phi, &ratio), &weight)) in phis.iter().zip(ratios).zip(weights).enumerate() {
+        if !(0.0..1.0).contains(&phi) {
+            return Err(ModelError::OutOfRangeAt {
+                name: "phis",
+                index,
+                value: phi,
+                allowed: "[0, 1)",
+            });
+        }
+        if !(ratio > 0.0 && ratio.is_finite()) {
+            return Err(ModelError::OutOfRangeAt {
+                name: "ratios",
+                index,
+                value: ratio,
+                allowed: "(0, inf)",
+            });
+        }
+        if !(weight >= 0.0 && weight.is_finite()) {
+            return Err(ModelError::OutOfRangeAt {
+                name: "weights",
+                index,
+                value: weight,
+                allowed: "[0, inf)",
+            });
+        }
+        if weight > 0.0 {
+            points.push((phi / (1.0 - phi), ratio.ln(), weight));
+        }
+    }
+    let sum_wxx: f64 = points.iter().map(|&(x, _, w)| w * x * x).sum();
+    if points.len() < 2 || sum_wxx == 0.0 {
+        return Err(ModelError::TooFewPoints {
+            found: if sum_wxx == 0.0 { 0 } else { points.len() },
+            needed: 2,
+        });
+    }
+    let sum_wxy: f64 = points.iter().map(|&(x, y, w)| w * x * y).sum();
+    let gamma = -sum_wxy / sum_wxx;
+    let m = points.len() as f64;
+    // Variance of unit weight from the residuals, so the weights' scale cancels.
+    let scatter: f64 = points
+        .iter()
+        .map(|&(x, y, w)| w * (y + gamma * x).powi(2))
+        .sum::<f64>()
+        / (m - 1.0);
+    let gamma_standard_error = (scatter / sum_wxx).sqrt();
+    Ok(FreeVolumeFit {
+        gamma,
+        gamma_standard_error,
+        points: points.len(),
+    })
+}
+
+/// Ogston, Preston & Wells (1973), random fibres of radius `fibre_radius`
+/// at volume fraction φ ∈ [0, 1): D_eff/D0 = exp(−√φ · (a + r_f)/r_f) for a
+/// tracer of radius `tracer_radius` a ≥ 0 (REFERENCE.md, from memory).
+/// Radii in any one length unit; r_f > 0.
+pub fn ogston_fibres(phi: f64, tracer_radius: f64, fibre_radius: f64) -> ModelResult<f64> {
+    let phi = fraction("fibre volume fraction phi", phi)?;
+    let a = non_negative("tracer radius", tracer_radius)?;
+    let r_f = positive("fibre radius", fibre_radius)?;
+    Ok((-phi.sqrt() * (a + r_f) / r_f).exp())
+}
+
+/// Volume fraction excluded to the centre of a tracer of radius a among
+/// spheres of radius b at number density n: φ_excl = n · (4/3)π(a + b)³
+/// (exact geometry, REFERENCE.md). Use it as φ in the obstruction formulas.
+/// n in 1/length³ and radii in the same length unit, all ≥ 0. For freely
+/// overlapping obstacles it is a reduced density and may exceed 1.
+pub fn excluded_volume_fraction(
+    number_density: f64,
+    tracer_radius: f64,
+    obstacle_radius: f64,
+) -> ModelResult<f64> {
+    let n = non_negative("number density", number_density)?;
+    let a = non_negative("tracer radius", tracer_radius)?;
+    let b = non_negative("obstacle radius", obstacle_radius)?;
+    let reach = a + b;
+    Ok(n * 4.0 / 3.0 * std::f64::consts::PI * reach * reach * reach)
+}
+
+/// Fraction of space open to the centre of a tracer of radius a among freely
+/// overlapping spheres of radius b placed as Poisson points of density n:
+/// exp(−n · (4/3)π(a + b)³), an exact geometric identity (REFERENCE.md).
+/// Arguments as for [`excluded_volume_fraction`].
+pub fn poisson_open_fraction(
+    number_density: f64,
+    tracer_radius: f64,
+    obstacle_radius: f64,
+) -> ModelResult<f64> {
+    Ok((-excluded_volume_fraction(number_density, tracer_radius, obstacle_radius)?).exp())
+}
+
+/// Three-point microstructure parameter ζ2 of equilibrium random
+/// non-overlapping (hard) spheres, ζ2 ≈ 0.21068φ − 0.04693φ² (REFERENCE.md;
+/// coefficients from memory), φ ∈ [0, 0.64).
+pub fn torquato_zeta2_spheres(phi: f64) -> ModelResult<f64> {
+    let phi = packing_fraction(phi)?;
+    Ok(0.21068 * phi - 0.04693 * phi * phi)
+}
+
+/// φ of random non-overlapping spheres must lie in [0, RANDOM_CLOSE_PACKING).
+fn packing_fraction(phi: f64) -> ModelResult<f64> {
+    if (0.0..RANDOM_CLOSE_PACKING).contains(&phi) {
+        Ok(phi)
+    } else {
+        Err(ModelError::OutOfRange {
+            name: "sphere volume fraction phi",
+            value: phi,
+            allowed: "[0, 0.64) (random close packing)",
+        })
+    }
+}
+
+/// Torquato's three-point approximation (J. Appl. Phys. 58, 3790 (1985);
+/// from memory), **conductivity form**, for insulating spheres (phase 2, φ)
+/// in a conducting matrix (phase 1): with β = (σ2 − σ1)/(σ2 + 2σ1) = −1/2,
+/// σ_eff/σ1 = (1 + 2βφ − 2(1 − φ)ζ2β²)/(1 − βφ − 2(1 − φ)ζ2β²).
+/// φ ∈ [0, 1), ζ2 ∈ [0, 1]. With ζ2 = 0 it reduces to Maxwell.
+pub fn torquato_three_point_conductivity(phi: f64, zeta2: f64) -> ModelResult<f64> {
+    let phi = fraction("volume fraction phi", phi)?;
+    if !(0.0..=1.0).contains(&zeta2) {
+        return Err(ModelError::OutOfRange {
+            name: "microstructure parameter zeta2",
+            value: zeta2,
+            allowed: "[0, 1]",
+        });
+    }
+    let beta = -0.5;
+    let three_point = 2.0 * (1.0 - phi) * zeta2 * beta * beta;
+    Ok((1.0 + 2.0 * beta * phi - three_point) / (1.0 - beta * phi - three_point))
+}
+
+/// Torquato's three-point estimate, **tracer form** D_eff/D0, for a point
+/// tracer among random non-overlapping spheres at φ ∈ [0, 0.64):
+/// [`torquato_three_point_conductivity`] with [`torquato_zeta2_spheres`],
+/// divided by 1 − φ. Reproduces the REFERENCE.md values 0.951, 0.904, 0.859,
+/// 0.817, 0.777 at φ = 0.1 … 0.5 (first-passage simulations, Kim & Torquato
+/// 1991, match it closely).
+pub fn torquato_tracer(phi: f64) -> ModelResult<f64> {
+    let zeta2 = torquato_zeta2_spheres(phi)?;
+    Ok(torquato_three_point_conductivity(phi, zeta2)? / (1.0 - phi))
+}
+
+/// Carnahan & Starling (1969) contact value of the hard-sphere radial
+/// distribution function, g(σ⁺) = (1 − φ/2)/(1 − φ)³ (REFERENCE.md).
+/// φ ∈ [0, 1); a fluid equation of state, meaningful up to freezing
+/// (φ ≈ 0.49).
+pub fn carnahan_starling_contact(phi: f64) -> ModelResult<f64> {
+    let phi = fraction("hard-sphere volume fraction phi", phi)?;
+    let free = 1.0 - phi;
+    Ok((1.0 - 0.5 * phi) / (free * free * free))
+}
+
+/// Long-time self-diffusion of mobile hard spheres without hydrodynamic
+/// interactions, dilute limit D_L/D0 = 1 − 2φ (Hanna, Hess & Klein 1982;
+/// Ackerson & Fleishman 1982; REFERENCE.md, from memory). φ ∈ [0, 1); only
+/// meaningful for φ ≪ 1.
+pub fn hard_sphere_self_diffusion_dilute(phi: f64) -> ModelResult<f64> {
+    let phi = fraction("hard-sphere volume fraction phi", phi)?;
+    Ok(1.0 - 2.0 * phi)
+}
+
+/// Brady (1994) long-time self-diffusion of hard spheres without
+/// hydrodynamic interactions, D_L/D0 ≈ 1/(1 + 2φ g(σ⁺)) with the
+/// Carnahan–Starling contact value (REFERENCE.md). φ ∈ [0, 1). A theory to
+/// compare with, not an oracle.
+pub fn brady_long_time_self_diffusion(phi: f64) -> ModelResult<f64> {
+    let g = carnahan_starling_contact(phi)?;
+    Ok(1.0 / (1.0 + 2.0 * phi * g))
+}
+
+/// Steric partition coefficient of a sphere in a cylindrical pore,
+/// Φ = (1 − λ)² with λ = a/r_pore ∈ [0, 1) (exact, REFERENCE.md).
+pub fn partition_cylinder(lambda: f64) -> ModelResult<f64> {
+    let lambda = fraction("size ratio lambda = a/r_pore", lambda)?;
+    let open = 1.0 - lambda;
+    Ok(open * open)
+}
+
+/// Steric partition coefficient of a sphere of radius a in a slit of
+/// half-width h, Φ = 1 − a/h (exact, REFERENCE.md). a ≥ 0, h > 0 (one
+/// length unit), a/h ∈ [0, 1).
+pub fn partition_slit(tracer_radius: f64, half_width: f64) -> ModelResult<f64> {
+    let a = non_negative("tracer radius", tracer_radius)?;
+    let h = positive("slit half-width", half_width)?;
+    let ratio = fraction("size ratio a/h of the slit", a / h)?;
+    Ok(1.0 - ratio)
+}
+
+/// Renkin (1954) centreline hindrance factor of diffusion in a cylindrical
+/// pore, K_d = 1 − 2.104λ + 2.09λ³ − 0.95λ⁵, λ = a/r_pore ∈ [0, 1)
+/// (REFERENCE.md). Centreline, not cross-section averaged.
+pub fn renkin_centreline_kd(lambda: f64) -> ModelResult<f64> {
+    let l = fraction("size ratio lambda = a/r_pore", lambda)?;
+    let l2 = l * l;
+    Ok(1.0 + l * (-2.104 + l2 * (2.09 - 0.95 * l2)))
+}
+
+/// Renkin (1954) hindrance H = Φ · K_d for a cylindrical pore, with
+/// [`partition_cylinder`] and [`renkin_centreline_kd`], λ ∈ [0, 1)
+/// (REFERENCE.md). It includes partitioning, so it scales a membrane flux,
+/// not the axial diffusivity of a particle inside the pore.
+pub fn renkin_hindrance(lambda: f64) -> ModelResult<f64> {
+    Ok(partition_cylinder(lambda)? * renkin_centreline_kd(lambda)?)
+}
+
+/// Dechadilok & Deen (2006) diffusive hindrance factor H = Φ · ⟨K_d⟩ for a
+/// cylindrical pore (REFERENCE.md):
+/// H = 1 + (9/8)λ ln λ − 1.56034λ + 0.528155λ² + 1.91521λ³ − 2.81903λ⁴
+/// + 0.270788λ⁵ + 1.10115λ⁶ − 0.435933λ⁷.
+///
+/// # Errors
+/// λ outside [0, 0.95], the range of their fit.
+pub fn dechadilok_deen_hindrance(lambda: f64) -> ModelResult<f64> {
+    if !(0.0..=DECHADILOK_DEEN_MAX_LAMBDA).contains(&lambda) {
+        return Err(ModelError::OutOfRange {
+            name: "size ratio lambda = a/r_pore",
+            value: lambda,
+            allowed: "[0, 0.95] (Dechadilok-Deen fit range)",
+        });
+    }
+    let l = lambda;
+    // λ ln λ → 0 as λ → 0.
+    let log_term = if l == 0.0 {
+        0.0
+    } else {
+        9.0 / 8.0 * l * l.ln()
+    };
+    let polynomial = l
+        * (-1.56034
+            + l * (0.528155
+                + l * (1.91521 + l * (-2.81903 + l * (0.270788 + l * (1.10115 - 0.435933 * l))))));
+    Ok(1.0 + log_term + polynomial)
+}
+
+/// Tortuosity τ = D0/D_eff from a measured or predicted D_eff/D0 > 0
+/// (definition, REFERENCE.md: Maxwell's 2/(2 + φ) gives τ = 1 + φ/2).
+pub fn tortuosity(d_eff_over_d0: f64) -> ModelResult<f64> {
+    Ok(1.0 / positive("D_eff/D0", d_eff_over_d0)?)
+}
+
+/// One model's prediction for a scenario, as reports print it.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct ModelPrediction {
+    /// Model and quantity, e.g. "Maxwell tracer D_eff/D0".
+    pub name: &'static str,
+    /// The dimensionless predicted value.
+    pub value: f64,
+    /// Literature source.
+    pub source: &'static str,
+}
+
+/// Predicted D_eff/D0 (tracer form) of a tracer among fixed impermeable
+/// spheres at excluded volume fraction `phi_excluded` ∈ [0, 1) (see
+/// [`excluded_volume_fraction`]): Maxwell, Mackie–Meares, Torquato's
+/// three-point estimate (only below random close packing, 0.64) and the
+/// Hashin–Shtrikman upper bound.
+pub fn crowding_predictions(phi_excluded: f64) -> ModelResult<Vec<ModelPrediction>> {
+    let mut predictions = vec![
+        ModelPrediction {
+            name: "Maxwell tracer D_eff/D0 = 2/(2+phi)",
+            value: maxwell_tracer(phi_excluded)?,
+            source: "Maxwell (1873), tracer form",
+        },
+        ModelPrediction {
+            name: "Mackie-Meares D_eff/D0",
+            value: mackie_meares(phi_excluded)?,
+            source: "Mackie & Meares, Proc. R. Soc. A 232, 498 (1955)",
+        },
+    ];
+    if let Ok(value) = torquato_tracer(phi_excluded) {
+        predictions.push(ModelPrediction {
+            name: "Torquato three-point D_eff/D0",
+            value,
+            source: "Torquato, J. Appl. Phys. 58, 3790 (1985), tracer form",
+        });
+    }
+    predictions.push(ModelPrediction {
+        name: "Hashin-Shtrikman upper bound D_eff/D0",
+        value: hashin_shtrikman_upper_tracer(phi_excluded)?,
+        source: "Hashin & Shtrikman, J. Appl. Phys. 33, 3125 (1962), tracer form",
+    });
+    Ok(predictions)
+}
+
+/// Hindrance predictions for a sphere in a cylindrical pore at
+/// λ = a/r_pore ∈ [0, 1): steric partition Φ, Renkin centreline K_d and
+/// hindrance H, and (for λ ≤ 0.95) Dechadilok–Deen H and the cross-section
+/// averaged ⟨K_d⟩ = H/Φ, which is what the axial D_eff/D0 of a tracer
+/// exploring the whole pore compares with.
+pub fn pore_predictions(lambda: f64) -> ModelResult<Vec<ModelPrediction>> {
+    let partition = partition_cylinder(lambda)?;
+    let mut predictions = vec![
+        ModelPrediction {
+            name: "steric partition Phi = (1-lambda)^2",
+            value: partition,
+            source: "steric exclusion (exact)",
+        },
+        ModelPrediction {
+            name: "Renkin centreline K_d",
+            value: renkin_centreline_kd(lambda)?,
+            source: "Renkin, J. Gen. Physiol. 38, 225 (1954)",
+        },
+        ModelPrediction {
+            name: "Renkin hindrance H = Phi K_d",
+            value: renkin_hindrance(lambda)?,
+            source: "Renkin, J. Gen. Physiol. 38, 225 (1954)",
+        },
+    ];
+    if let Ok(hindrance) = dechadilok_deen_hindrance(lambda) {
+        predictions.push(ModelPrediction {
+            name: "Dechadilok-Deen hindrance H",
+            value: hindrance,
+            source: "Dechadilok & Deen, Ind. Eng. Chem. Res. 45, 6953 (2006)",
+        });
+        predictions.push(ModelPrediction {
+            name: "Dechadilok-Deen averaged K_d = H/Phi",
+            value: hindrance / partition,
+            source: "Dechadilok & Deen, Ind. Eng. Chem. Res. 45, 6953 (2006)",
+        });
+    }
+    Ok(predictions)
+}
+
+/// Predicted D_eff/D0 of a tracer of radius `tracer_radius` among random
+/// fibres of radius `fibre_radius` at volume fraction φ ∈ [0, 1): Ogston
+/// (Ogston, Preston & Wells 1973) and, for comparison, Mackie–Meares (1955,
+/// originally for polymer networks), which ignores the sizes.
+pub fn fibre_predictions(
+    phi: f64,
+    tracer_radius: f64,
+    fibre_radius: f64,
+) -> ModelResult<Vec<ModelPrediction>> {
+    Ok(vec![
+        ModelPrediction {
+            name: "Ogston fibres D_eff/D0",
+            value: ogston_fibres(phi, tracer_radius, fibre_radius)?,
+            source: "Ogston, Preston & Wells, Proc. R. Soc. A 333, 297 (1973)",
+        },
+        ModelPrediction {
+            name: "Mackie-Meares D_eff/D0",
+            value: mackie_meares(phi)?,
+            source: "Mackie & Meares, Proc. R. Soc. A 232, 498 (1955)",
+        },
+    ])
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Asserts |value − expected| < tolerance with a readable message.
+    fn close(value: f64, expected: f64, tolerance: f64) {
+        assert!(
+            (value - expected).abs() < tolerance,
+            "{value} differs from {expected} by more than {tolerance}"
+        );
+    }
+
+    const PHIS: [f64; 5] = [0.1, 0.2, 0.3, 0.4, 0.5];
+
+    #[test]
+    fn maxwell_tracer_matches_reference_and_its_limits() {
+        // REFERENCE.md: Maxwell 2/(2+phi) = 0.952, 0.909, 0.870, 0.833, 0.800 at phi = 0.1 … 0.5
+        for (phi, expected) in PHIS.iter().zip([0.952, 0.909, 0.870, 0.833, 0.800]) {
+            close(maxwell_tracer(*phi).unwrap(), expected, 6e-4);
+        }
+        // REFERENCE.md: dilute limit D_eff/D0 = 1 − phi/2 + O(phi²): slope −1/2.
+        let eps = 1e-6;
+        close((maxwell_tracer(eps).unwrap() - 1.0) / eps, -0.5, 1e-6);
+        assert_eq!(maxwell_tracer(0.0).unwrap(), 1.0);
+    }
+
+    #[test]
+    fn conductivity_is_tracer_times_free_fraction() {
+        // REFERENCE.md: tracer form = conductivity / (1 − phi); the two must not be confused.
+        for phi in PHIS {
+            let tracer = maxwell_tracer(phi).unwrap();
+            let conductivity = maxwell_conductivity(phi).unwrap();
+            close(conductivity, tracer * (1.0 - phi), 1e-15);
+            assert!(conductivity < tracer);
+        }
+        // Maxwell (1873): 2(1 − phi)/(2 + phi) at phi = 0.5 is exactly 0.4.
+        close(maxwell_conductivity(0.5).unwrap(), 0.4, 1e-15);
+    }
+
+    #[test]
+    fn hashin_shtrikman_equals_maxwell_for_insulating_spheres() {
+        // REFERENCE.md: Maxwell is also the Hashin–Shtrikman (1962) upper bound.
+        for i in 0..100 {
+            let phi = f64::from(i) / 100.0;
+            close(
+                hashin_shtrikman_upper_conductivity(phi).unwrap(),
+                maxwell_conductivity(phi).unwrap(),
+                1e-14,
+            );
+            close(
+                hashin_shtrikman_upper_tracer(phi).unwrap(),
+                maxwell_tracer(phi).unwrap(),
+                1e-14,
+            );
+        }
+    }
+
+    #[test]
+    fn tortuosity_of_maxwell_is_one_plus_half_phi() {
+        // REFERENCE.md: tortuosity tau = 1 + phi/2 for the Maxwell tracer form.
+        for phi in PHIS {
+            close(
+                tortuosity(maxwell_tracer(phi).unwrap()).unwrap(),
+                1.0 + phi / 2.0,
+                1e-14,
+            );
+        }
+        assert!(tortuosity(0.0).is_err());
+        assert!(tortuosity(f64::NAN).is_err());
+    }
+
+    #[test]
+    fn mackie_meares_values_and_limits() {
+        // Mackie & Meares (1955) formula at phi = 0.5: (0.5/1.5)² = 1/9.
+        close(mackie_meares(0.5).unwrap(), 1.0 / 9.0, 1e-15);
+        assert_eq!(mackie_meares(0.0).unwrap(), 1.0);
+        // Dilute slope of ((1−phi)/(1+phi))² is −4.
+        let eps = 1e-7;
+        close((mackie_meares(eps).unwrap() - 1.0) / eps, -4.0, 1e-5);
+        // It lies below the Hashin–Shtrikman upper bound (REFERENCE.md).
+        for phi in PHIS {
+            assert!(mackie_meares(phi).unwrap() < hashin_shtrikman_upper_tracer(phi).unwrap());
+        }
+    }
+
+    #[test]
+    fn torquato_three_point_matches_reference() {
+        // REFERENCE.md: Torquato three-point estimate 0.951, 0.904, 0.859, 0.817, 0.777
+        // at phi = 0.1 … 0.5 (zeta2 coefficients from memory); 3 decimals given.
+        for (phi, expected) in PHIS.iter().zip([0.951, 0.904, 0.859, 0.817, 0.777]) {
+            close(torquato_tracer(*phi).unwrap(), expected, 5e-4);
+        }
+        // REFERENCE.md: Maxwell's 2/(2+phi) is an upper bound the estimate sits under.
+        for i in 1..64 {
+            let phi = f64::from(i) / 100.0;
+            assert!(torquato_tracer(phi).unwrap() < maxwell_tracer(phi).unwrap());
+        }
+        // Without three-point information (zeta2 = 0) the formula is Maxwell's.
+        for phi in PHIS {
+            close(
+                torquato_three_point_conductivity(phi, 0.0).unwrap(),
+                maxwell_conductivity(phi).unwrap(),
+                1e-15,
+            );
+        }
+        // Same exact dilute slope −1/2 as Maxwell (zeta2 = O(phi) enters at O(phi²)).
+        let eps = 1e-6;
+        close((torquato_tracer(eps).unwrap() - 1.0) / eps, -0.5, 1e-5);
+        // Only defined below random close packing.
+        assert!(torquato_tracer(0.64).is_err());
+    }
+
+    #[test]
+    fn obstruction_models_decrease_with_phi() {
+        // Theory: more obstacles never speed a tracer up.
+        let mut previous = [f64::INFINITY; 4];
+        for i in 0..64 {
+            let phi = f64::from(i) / 100.0;
+            let now = [
+                maxwell_tracer(phi).unwrap(),
+                mackie_meares(phi).unwrap(),
+                torquato_tracer(phi).unwrap(),
+                free_volume(phi, 1.3).unwrap(),
+            ];
+            for (n, p) in now.iter().zip(&previous) {
+                assert!(n < p, "phi = {phi}");
+            }
+            previous = now;
+        }
+    }
+
+    #[test]
+    fn free_volume_form() {
+        // exp(−gamma phi/(1−phi)) at phi = 0.5, gamma = 1: e^(−1).
+        close(free_volume(0.5, 1.0).unwrap(), (-1.0f64).exp(), 1e-15);
+        assert_eq!(free_volume(0.0, 3.0).unwrap(), 1.0);
+        assert!(free_volume(0.3, f64::NAN).is_err());
+    }
+
+    #[test]
+    fn free_volume_fit_recovers_gamma() {
+        // Noise-free data: the fit returns gamma exactly and a zero standard error.
+        let phis = [0.05, 0.1, 0.2, 0.3, 0.4];
+        let ratios: Vec<f64> = phis.iter().map(|&p| free_volume(p, 1.7).unwrap()).collect();
+        let fit = fit_free_volume_gamma(&phis, &ratios, &[1.0; 5]).unwrap();
+        close(fit.gamma, 1.7, 1e-12);
+        assert!(fit.gamma_standard_error < 1e-12);
+        assert_eq!(fit.points, 5);
+    }
+
+    #[test]
+    fn free_volume_fit_matches_brute_force_least_squares() {
+        // Perturbed data: the closed form against a direct minimisation of the weighted SSE.
+        let phis = [0.0, 0.1, 0.2, 0.3, 0.45];
+        let wobble = [0.01, -0.02, 0.015, 0.03, -0.01];
+        let ratios: Vec<f64> = phis
+            .iter()
+            .zip(wobble)
+            .map(|(&p, e)| free_volume(p, 0.9).unwrap() * (1.0 + e))
+            .collect();
+        let weights = [1.0, 2.0, 0.5, 3.0, 1.5];
+        let fit = fit_free_volume_gamma(&phis, &ratios, &weights).unwrap();
+        let sse = |gamma: f64| -> f64 {
+            phis.iter()
+                .zip(&ratios)
+                .zip(&weights)
+                .map(|((&p, &r), &w)| w * (r.ln() + gamma * p / (1.0 - p)).powi(2))
+                .sum()
+        };
+        // Golden-section search on [0, 3].
+        let (mut lo, mut hi) = (0.0, 3.0);
+        let g = (5f64.sqrt() - 1.0) / 2.0;
+        while hi - lo > 1e-12 {
+            let (m1, m2) = (hi - g * (hi - lo), lo + g * (hi - lo));
+            if sse(m1) < sse(m2) {
+                hi = m2;
+            } else {
+                lo = m1;
+            }
+        }
+        close(fit.gamma, 0.5 * (lo + hi), 1e-8);
+        // Standard error: sqrt(SSE_min / (m − 1) / sum w x²), computed here the long way.
+        let sum_wxx: f64 = phis
+            .iter()
+            .zip(&weights)
+            .map(|(&p, &w)| w * (p / (1.0 - p)).powi(2))
+            .sum();
+        close(
+            fit.gamma_standard_error,
+            (sse(fit.gamma) / 4.0 / sum_wxx).sqrt(),
+            1e-14,
+        );
+        assert!(fit.gamma_standard_error > 0.0);
+        // Relative weights: scaling all of them changes nothing.
+        let scaled: Vec<f64> = weights.iter().map(|w| 7.0 * w).collect();
+        let fit_scaled = fit_free_volume_gamma(&phis, &ratios, &scaled).unwrap();
+        close(fit_scaled.gamma, fit.gamma, 1e-13);
+        close(
+            fit_scaled.gamma_standard_error,
+            fit.gamma_standard_error,
+            1e-13,
+        );
+    }
+
+    #[test]
+    fn free_volume_fit_rejects_bad_input() {
+        let ok = [0.1, 0.2];
+        assert!(matches!(
+            fit_free_volume_gamma(&ok, &[0.9], &[1.0, 1.0]),
+            Err(ModelError::LengthMismatch { .. })
+        ));
+        assert!(matches!(
+            fit_free_volume_gamma(&ok, &[0.9, -0.1], &[1.0, 1.0]),
+            Err(ModelError::OutOfRangeAt {
+                name: "ratios",
+                index: 1,
+                ..
+            })
+        ));
+        assert!(matches!(
+            fit_free_volume_gamma(&[0.1, 1.0], &[0.9, 0.8], &[1.0, 1.0]),
+            Err(ModelError::OutOfRangeAt {
+                name: "phis",
+                index: 1,
+                ..
+            })
+        ));
+        assert!(matches!(
+            fit_free_volume_gamma(&ok, &[0.9, 0.8], &[1.0, f64::NAN]),
+            Err(ModelError::OutOfRangeAt {
+                name: "weights",
+                ..
+            })
+        ));
+        assert!(matches!(
+            fit_free_volume_gamma(&ok, &[0.9, 0.8], &[1.0, 0.0]),
+            Err(ModelError::TooFewPoints {
+                found: 1,
+                needed: 2
+            })
+        ));
+        assert!(matches!(
+            fit_free_volume_gamma(&[0.0, 0.0], &[1.0, 1.0], &[1.0, 1.0]),
+            Err(ModelError::TooFewPoints { .. })
+        ));
+    }
+
+    #[test]
+    fn ogston_limits_and_monotonicity() {
+        // Ogston et al. (1973) form: no fibres → 1; a point tracer → exp(−sqrt(phi)).
+        assert_eq!(ogston_fibres(0.0, 2.0, 1.0).unwrap(), 1.0);
+        close(
+            ogston_fibres(0.25, 0.0, 1.0).unwrap(),
+            (-0.5f64).exp(),
+            1e-15,
+        );
+        // a = r_f doubles the exponent: exp(−2 sqrt(phi)).
+        close(
+            ogston_fibres(0.04, 3.0, 3.0).unwrap(),
+            (-0.4f64).exp(),
+            1e-15,
+        );
+        // Larger tracers and denser networks hinder more.
+        assert!(ogston_fibres(0.1, 2.0, 1.0).unwrap() < ogston_fibres(0.1, 1.0, 1.0).unwrap());
+        assert!(ogston_fibres(0.2, 1.0, 1.0).unwrap() < ogston_fibres(0.1, 1.0, 1.0).unwrap());
+        assert!(ogston_fibres(0.1, 1.0, 0.0).is_err());
+        assert!(ogston_fibres(0.1, -1.0, 1.0).is_err());
+    }
+
+    #[test]
+    fn excluded_volume_and_poisson_open_fraction() {
+        // REFERENCE.md: phi_excl = n (4/3) pi (a+b)³; open fraction exp(−phi_excl) (exact).
+        let n = 0.01;
+        let (a, b) = (1.5, 2.5);
+        let phi = excluded_volume_fraction(n, a, b).unwrap();
+        close(phi, 0.01 * 4.0 / 3.0 * std::f64::consts::PI * 64.0, 1e-14);
+        close(poisson_open_fraction(n, a, b).unwrap(), (-phi).exp(), 1e-15);
+        // A point tracer sees the obstacles' own volume fraction.
+        close(
+            excluded_volume_fraction(n, 0.0, 4.0).unwrap(),
+            excluded_volume_fraction(n, 1.5, 2.5).unwrap(),
+            1e-14,
+        );
+        assert_eq!(poisson_open_fraction(0.0, 1.0, 1.0).unwrap(), 1.0);
+        assert!(excluded_volume_fraction(-1.0, 1.0, 1.0).is_err());
+        assert!(poisson_open_fraction(1.0, 1.0, f64::INFINITY).is_err());
+    }
+
+    #[test]
+    fn carnahan_starling_contact_value() {
+        // REFERENCE.md: Carnahan–Starling (1969) g(sigma+) at phi = 0.3 → 2.478.
+        close(carnahan_starling_contact(0.3).unwrap(), 2.478, 6e-4);
+        // Ideal-gas limit g = 1 and its exact dilute slope 5/2 (second virial term).
+        assert_eq!(carnahan_starling_contact(0.0).unwrap(), 1.0);
+        let eps = 1e-7;
+        close(
+            (carnahan_starling_contact(eps).unwrap() - 1.0) / eps,
+            2.5,
+            1e-5,
+        );
+    }
+
+    #[test]
+    fn brady_matches_reference_and_dilute_limit() {
+        // REFERENCE.md: Brady (1994) no-HI D_L/D0 = 0.793, 0.587, 0.402 at phi = 0.1, 0.2, 0.3.
+        for (phi, expected) in [(0.1, 0.793), (0.2, 0.587), (0.3, 0.402)] {
+            close(brady_long_time_self_diffusion(phi).unwrap(), expected, 6e-4);
+        }
+        // REFERENCE.md (from memory): dilute D_L/D0 = 1 − 2 phi; Brady shares that slope.
+        close(hard_sphere_self_diffusion_dilute(0.1).unwrap(), 0.8, 1e-15);
+        let eps = 1e-7;
+        close(
+            (brady_long_time_self_diffusion(eps).unwrap() - 1.0) / eps,
+            (hard_sphere_self_diffusion_dilute(eps).unwrap() - 1.0) / eps,
+            1e-5,
+        );
+    }
+
+    #[test]
+    fn partition_coefficients() {
+        // REFERENCE.md: cylinder (1−lambda)², slit 1 − a/h (exact steric exclusion).
+        close(partition_cylinder(0.5).unwrap(), 0.25, 1e-15);
+        close(partition_slit(1.0, 4.0).unwrap(), 0.75, 1e-15);
+        assert_eq!(partition_cylinder(0.0).unwrap(), 1.0);
+        assert!(partition_cylinder(1.0).is_err());
+        assert!(partition_slit(4.0, 4.0).is_err());
+        assert!(partition_slit(1.0, 0.0).is_err());
+        assert!(partition_slit(-1.0, 2.0).is_err());
+    }
+
+    #[test]
+    fn renkin_matches_reference() {
+        // REFERENCE.md: Renkin H = 0.6413, 0.3812, 0.2072, 0.0449 at lambda = 0.1, 0.2, 0.3, 0.5.
+        for (lambda, expected) in [(0.1, 0.6413), (0.2, 0.3812), (0.3, 0.2072), (0.5, 0.0449)] {
+            close(renkin_hindrance(lambda).unwrap(), expected, 6e-5);
+        }
+        // Renkin (1954) polynomial at lambda = 1/2, exact: 1 − 1.052 + 0.26125 − 0.0296875.
+        close(renkin_centreline_kd(0.5).unwrap(), 0.1795625, 1e-15);
+        // Limit lambda → 0: no hindrance.
+        assert_eq!(renkin_centreline_kd(0.0).unwrap(), 1.0);
+        assert_eq!(renkin_hindrance(0.0).unwrap(), 1.0);
+    }
+
+    #[test]
+    fn renkin_against_bungay_brenner_centreline() {
+        // REFERENCE.md: Bungay & Brenner (1973) centreline K_d = 0.7916, 0.5954 at lambda = 0.1, 0.2.
+        // A different (exact) theory: Renkin's truncated series agrees to 3e-4 only at small lambda.
+        close(renkin_centreline_kd(0.1).unwrap(), 0.7916, 3e-4);
+        close(renkin_centreline_kd(0.2).unwrap(), 0.5954, 3e-4);
+    }
+
+    #[test]
+    fn dechadilok_deen_matches_reference() {
+        // REFERENCE.md: Dechadilok & Deen (2006) H = 0.5918, 0.3579, 0.2033, 0.0474
+        // at lambda = 0.1, 0.2, 0.3, 0.5.
+        for (lambda, expected) in [(0.1, 0.5918), (0.2, 0.3579), (0.3, 0.2033), (0.5, 0.0474)] {
+            close(dechadilok_deen_hindrance(lambda).unwrap(), expected, 6e-5);
+        }
+        // Limit lambda → 0: H → 1, continuously (the lambda ln lambda term vanishes).
+        assert_eq!(dechadilok_deen_hindrance(0.0).unwrap(), 1.0);
+        close(dechadilok_deen_hindrance(1e-9).unwrap(), 1.0, 1e-7);
+        // Valid range only: lambda ≤ 0.95.
+        assert!(dechadilok_deen_hindrance(0.95).is_ok());
+        assert!(matches!(
+            dechadilok_deen_hindrance(0.96),
+            Err(ModelError::OutOfRange { value, .. }) if value == 0.96
+        ));
+        assert!(dechadilok_deen_hindrance(-0.1).is_err());
+    }
+
+    #[test]
+    fn pore_hindrance_decreases_with_lambda() {
+        // Theory: larger spheres are hindered more; H never exceeds the partition coefficient.
+        let mut previous = [f64::INFINITY; 3];
+        for i in 0..=95 {
+            let lambda = f64::from(i) / 100.0;
+            let now = [
+                renkin_hindrance(lambda).unwrap(),
+                dechadilok_deen_hindrance(lambda).unwrap(),
+                partition_cylinder(lambda).unwrap(),
+            ];
+            for (n, p) in now.iter().zip(&previous) {
+                assert!(n < p, "lambda = {lambda}");
+            }
+            assert!(now[0] <= now[2] && now[1] <= now[2] && now[1] > 0.0);
+            previous = now;
+        }
+    }
+
+    #[test]
+    fn domain_errors_name_value_and_range() {
+        let error = maxwell_tracer(1.2).unwrap_err();
+        let message = error.to_string();
+        assert!(
+            message.contains("1.2") && message.contains("[0, 1)"),
+            "{message}"
+        );
+        for bad in [-0.1, 1.0, f64::NAN, f64::INFINITY] {
+            assert!(maxwell_tracer(bad).is_err());
+            assert!(maxwell_conductivity(bad).is_err());
+            assert!(mackie_meares(bad).is_err());
+            assert!(carnahan_starling_contact(bad).is_err());
+            assert!(renkin_hindrance(bad).is_err());
+            assert!(crowding_predictions(bad).is_err());
+            assert!(pore_predictions(bad).is_err());
+        }
+        let message = dechadilok_deen_hindrance(0.99).unwrap_err().to_string();
+        assert!(
+            message.contains("0.99") && message.contains("0.95"),
+            "{message}"
+        );
+    }
+
+    #[test]
+    fn prediction_lists() {
+        // The lists carry exactly the catalogue functions' values.
+        let crowding = crowding_predictions(0.3).unwrap();
+        assert_eq!(crowding.len(), 4);
+        assert!(crowding
+            .iter()
+            .any(|p| p.value == torquato_tracer(0.3).unwrap()));
+        assert!(crowding
+            .iter()
+            .any(|p| p.value == mackie_meares(0.3).unwrap()));
+        // Above random close packing the three-point estimate is left out.
+        assert_eq!(crowding_predictions(0.7).unwrap().len(), 3);
+        let pore = pore_predictions(0.2).unwrap();
+        assert_eq!(pore.len(), 5);
+        let averaged = pore.iter().find(|p| p.name.contains("averaged")).unwrap();
+        close(
+            averaged.value,
+            dechadilok_deen_hindrance(0.2).unwrap() / partition_cylinder(0.2).unwrap(),
+            1e-15,
+        );
+        // Beyond the Dechadilok–Deen range only Renkin and the partition remain.
+        assert_eq!(pore_predictions(0.97).unwrap().len(), 3);
+        let fibre = fibre_predictions(0.1, 2.0, 1.0).unwrap();
+        assert_eq!(fibre[0].value, ogston_fibres(0.1, 2.0, 1.0).unwrap());
+        assert!(fibre_predictions(0.1, 2.0, -1.0).is_err());
+        for p in crowding.iter().chain(&pore).chain(&fibre) {
+            assert!(!p.name.is_empty() && !p.source.is_empty());
+        }
+    }
+
+    #[test]
+    fn wall_mobilities_are_re_exported() {
+        // The catalogue exposes the engine's formulas, not copies of them.
+        close(faxen_parallel(0.5), 0.7214, 6e-5); // REFERENCE.md: Faxén, z/a = 2 → 0.7214
+        close(brenner_perpendicular(2.0), 0.4705, 6e-5); // REFERENCE.md: Brenner, z/a = 2 → 0.4705
+        close(bevan_prieve_perpendicular(1.0), 0.4706, 6e-5); // REFERENCE.md: Bevan–Prieve, z/a = 2
+        assert_eq!(superpose_two_walls(1.0, 1.0), 1.0);
+    }
+}
