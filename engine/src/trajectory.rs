@@ -47,11 +47,14 @@ fn h5(path: &Path) -> impl Fn(hdf5::Error) -> EngineError + '_ {
     move |source| EngineError::Hdf5 { file: path.to_path_buf(), source }
 }
 
-/// Writes a scalar fixed-length ASCII attribute (H5MD asks for fixed length).
+/// Writes a scalar fixed-length ASCII attribute of exactly the string's
+/// length (H5MD asks for fixed-length strings; HDF5 converts from the
+/// padded in-memory string to the exact stored size).
 pub fn write_str_attr(loc: &Location, name: &str, value: &str) -> hdf5::Result<()> {
     fn put<const N: usize>(loc: &Location, name: &str, value: &str) -> hdf5::Result<()> {
         let v = FixedAscii::<N>::from_ascii(value.as_bytes()).map_err(|e| hdf5::Error::from(e.to_string().as_str()))?;
-        loc.new_attr::<FixedAscii<N>>().create(name)?.write_scalar(&v)
+        let stored = hdf5::Datatype::from_descriptor(&hdf5::types::TypeDescriptor::FixedAscii(value.len().max(1)))?;
+        loc.new_attr_builder().empty_as(&stored).create(name)?.write_scalar(&v)
     }
     match value.len() {
         0..=15 => put::<16>(loc, name, value),

@@ -1,0 +1,8 @@
+//! End-to-end tests of the `thicket` binary, one module per topic.
+
+mod bad_input;
+mod file_format;
+mod free;
+mod resume;
+mod support;
+mod threads;
