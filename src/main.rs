@@ -3,6 +3,7 @@
 
 mod check;
 mod demo;
+mod models;
 mod progress;
 mod run;
 
@@ -52,6 +53,21 @@ enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// Print published model values (obstruction, fibres, pores) for given parameters.
+    Models {
+        /// Obstacle volume fractions, comma-separated.
+        #[arg(long, default_value = "0.1,0.2,0.3,0.4")]
+        phi: String,
+        /// Tracer radius over obstacle (or fibre) radius, a/b; 0 for a point tracer.
+        #[arg(long, default_value_t = 0.0)]
+        size_ratio: f64,
+        /// λ = a / r_pore values, comma-separated.
+        #[arg(long, default_value = "0.1,0.2,0.3,0.5")]
+        lambda: String,
+        /// Print one JSON object instead of tables.
+        #[arg(long)]
+        json: bool,
+    },
     /// Run the built-in demonstration end to end and leave a report behind.
     Demo {
         /// Output folder.
@@ -68,6 +84,7 @@ fn main() -> ExitCode {
     let result = match cli.command {
         Command::Run { config, out, sets, threads, force, resume } => run::run(&config, out, &sets, threads, force, resume),
         Command::Check { config, sets, json } => check::check(&config, &sets, json),
+        Command::Models { phi, size_ratio, lambda, json } => models::models(&phi, size_ratio, &lambda, json),
         Command::Demo { out, force } => demo::demo(&out, force),
     };
     match result {
