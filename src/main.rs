@@ -1,11 +1,13 @@
 //! `thicket`: the command-line front end. Parses arguments, builds validated
 //! configurations through the libraries and prints; no physics lives here.
 
+mod analyze;
 mod check;
 mod demo;
 mod models;
 mod progress;
 mod run;
+mod sweep;
 
 use clap::{Parser, Subcommand};
 use std::path::PathBuf;
@@ -68,6 +70,43 @@ enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// Analyse a trajectory: MSD, D_eff with its 95 % interval, α, models.
+    Analyze {
+        /// Trajectory (HDF5, H5MD layout).
+        file: PathBuf,
+        /// Print one JSON object instead of a table.
+        #[arg(long)]
+        json: bool,
+        /// Write PREFIX_msd.{svg,png} and PREFIX_alpha.{svg,png}.
+        #[arg(long, value_name = "PREFIX")]
+        plot: Option<PathBuf>,
+        /// Species to analyse (default: the first).
+        #[arg(long)]
+        species: Option<String>,
+        /// Fit window T0,T1 in seconds (default: chosen where α(τ) is 1 within its error).
+        #[arg(long, value_name = "T0,T1")]
+        window: Option<String>,
+        /// D0 in m²/s, for files that do not carry it.
+        #[arg(long, value_name = "M2_PER_S")]
+        d0: Option<f64>,
+    },
+    /// Run a grid of scenarios × seeds and summarise D_eff/D0 beside the models.
+    Sweep {
+        /// Sweep file (TOML): scenario, seeds, [grid] of keys and values, [set] fixed overrides.
+        sweep: PathBuf,
+        /// Output folder (summary.csv, summary.json, sweep.svg/png, points/, runs/).
+        #[arg(long, default_value = "sweep-out")]
+        out: PathBuf,
+        /// Run only every N-th run starting at the I-th (1-based), e.g. 2/8 for a job array.
+        #[arg(long, value_name = "I/N")]
+        shard: Option<String>,
+        /// Run nothing: join the results already in the output folder (from all shards).
+        #[arg(long)]
+        merge: bool,
+        /// Rerun points whose results exist.
+        #[arg(long)]
+        force: bool,
+    },
     /// Run the built-in demonstration end to end and leave a report behind.
     Demo {
         /// Output folder.
@@ -85,6 +124,10 @@ fn main() -> ExitCode {
         Command::Run { config, out, sets, threads, force, resume } => run::run(&config, out, &sets, threads, force, resume),
         Command::Check { config, sets, json } => check::check(&config, &sets, json),
         Command::Models { phi, size_ratio, lambda, json } => models::models(&phi, size_ratio, &lambda, json),
+        Command::Analyze { file, json, plot, species, window, d0 } => {
+            analyze::analyze_trajectory(&file, species.as_deref(), window.as_deref(), d0, plot.as_deref(), json)
+        }
+        Command::Sweep { sweep, out, shard, merge, force } => sweep::sweep(&sweep, &out, shard.as_deref(), merge, force),
         Command::Demo { out, force } => demo::demo(&out, force),
     };
     match result {

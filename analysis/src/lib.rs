@@ -1,1 +1,9 @@
 pub mod models;
+pub mod error;
+pub mod estimators;
+pub mod msd;
+pub mod plot;
+pub mod read;
+pub mod report;
+pub mod sweep;
+pub mod sweep_plot;

@@ -1,0 +1,772 @@
+//! Plots of an analysis: MSD/τ against τ and α(τ) against τ, each as SVG
+//! and PNG.
+//!
+//! Both plots are first described as a [`Figure`] (data in plot units), then
+//! rendered twice: the SVG by a small writer of our own, whose text is SVG
+//! text and so needs no font file; the PNG by `plotters`, whose text needs a
+//! TrueType font at run time. The PNG looks for one in a few standard
+//! places (or the file named by the environment variable `THICKET_FONT`)
+//! and is drawn without text if none is found.
+
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+use std::sync::OnceLock;
+
+use plotters::prelude::*;
+
+use crate::error::{ErrorKind, Result};
+use crate::estimators::{Report, NM2_PER_S_IN_M2_PER_S};
+use crate::msd::Msd;
+
+/// Fonts tried for text in PNG files, in order (after `THICKET_FONT`).
+pub const FONT_CANDIDATES: &[&str] = &[
+    "/usr/share/fonts/truetype/dejavu/DejaVuSans.ttf",
+    "/usr/share/fonts/TTF/DejaVuSans.ttf",
+    "/usr/share/fonts/dejavu/DejaVuSans.ttf",
+    "/usr/share/fonts/dejavu-sans-fonts/DejaVuSans.ttf",
+    "/usr/share/fonts/truetype/liberation/LiberationSans-Regular.ttf",
+    "/usr/share/fonts/liberation-sans/LiberationSans-Regular.ttf",
+    "/usr/share/fonts/truetype/freefont/FreeSans.ttf",
+    "/System/Library/Fonts/Supplemental/Arial.ttf",
+    "/Library/Fonts/Arial.ttf",
+    "C:\\Windows\\Fonts\\arial.ttf",
+];
+
+const FAMILY: &str = "sans-serif";
+const WIDTH: u32 = 800;
+const HEIGHT: u32 = 500;
+
+/// An RGB colour with opacity.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Colour {
+    /// Red, green, blue.
+    pub rgb: (u8, u8, u8),
+    /// Opacity, 0–1.
+    pub opacity: f64,
+}
+
+const BLUE_C: Colour = Colour {
+    rgb: (31, 119, 180),
+    opacity: 1.0,
+};
+const ORANGE_C: Colour = Colour {
+    rgb: (230, 120, 20),
+    opacity: 1.0,
+};
+const GREEN_C: Colour = Colour {
+    rgb: (44, 160, 44),
+    opacity: 1.0,
+};
+const GREY_C: Colour = Colour {
+    rgb: (90, 90, 90),
+    opacity: 1.0,
+};
+const WINDOW_C: Colour = Colour {
+    rgb: (255, 200, 60),
+    opacity: 0.25,
+};
+
+impl Colour {
+    fn with_opacity(self, opacity: f64) -> Colour {
+        Colour { opacity, ..self }
+    }
+
+    fn svg(&self) -> String {
+        format!("rgb({},{},{})", self.rgb.0, self.rgb.1, self.rgb.2)
+    }
+
+    fn plotters(&self) -> RGBAColor {
+        RGBColor(self.rgb.0, self.rgb.1, self.rgb.2).mix(self.opacity)
+    }
+}
+
+/// A curve of a figure.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Curve {
+    /// Points (x, y) in plot units.
+    pub points: Vec<(f64, f64)>,
+    /// Colour.
+    pub colour: Colour,
+    /// Legend text.
+    pub label: String,
+    /// Dashed line.
+    pub dashed: bool,
+    /// Mark each point.
+    pub markers: bool,
+}
+
+/// A shaded band between a lower and an upper curve.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Band {
+    /// (x, low, high) in plot units.
+    pub points: Vec<(f64, f64, f64)>,
+    /// Colour (with opacity).
+    pub colour: Colour,
+    /// Legend text.
+    pub label: String,
+}
+
+/// A horizontal reference line.
+#[derive(Debug, Clone, PartialEq)]
+pub struct HLine {
+    /// Its y value in plot units.
+    pub y: f64,
+    /// Colour.
+    pub colour: Colour,
+    /// Legend text.
+    pub label: String,
+}
+
+/// A plot with a logarithmic or linear x axis and a linear y axis.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Figure {
+    /// Title.
+    pub title: String,
+    /// x-axis label.
+    pub x_label: String,
+    /// y-axis label.
+    pub y_label: String,
+    /// x range (positive when `x_log`).
+    pub x_range: [f64; 2],
+    /// Logarithmic x axis.
+    pub x_log: bool,
+    /// y range.
+    pub y_range: [f64; 2],
+    /// Shaded x intervals (e.g. the fit window), with legend text.
+    pub x_spans: Vec<([f64; 2], Colour, String)>,
+    /// Shaded bands.
+    pub bands: Vec<Band>,
+    /// Reference lines.
+    pub hlines: Vec<HLine>,
+    /// Curves.
+    pub curves: Vec<Curve>,
+}
+
+/// Writes `PREFIX_msd.svg`, `PREFIX_msd.png`, `PREFIX_alpha.svg` and
+/// `PREFIX_alpha.png` and returns their paths.
+///
+/// # Errors
+/// [`ErrorKind::Output`] if a file cannot be written.
+pub fn write_plots(prefix: impl AsRef<Path>, msd: &Msd, report: &Report) -> Result<Vec<PathBuf>> {
+    let prefix = prefix.as_ref().display().to_string();
+    let text = png_font_available();
+    let mut written = Vec::new();
+    for (name, fig) in [
+        ("msd", msd_figure(msd, report)),
+        ("alpha", alpha_figure(msd, report)),
+    ] {
+        let svg = PathBuf::from(format!("{prefix}_{name}.svg"));
+        std::fs::write(&svg, render_svg(&fig)).map_err(|e| output_error(&svg, e))?;
+        written.push(svg);
+        let png = PathBuf::from(format!("{prefix}_{name}.png"));
+        render_png(&fig, &png, text)?;
+        written.push(png);
+    }
+    Ok(written)
+}
+
+fn output_error(path: &Path, e: impl std::fmt::Display) -> crate::error::Error {
+    ErrorKind::Output {
+        path: path.to_path_buf(),
+        message: e.to_string(),
+    }
+    .into()
+}
+
+/// Registers a TrueType font for PNG text once; `false` if none was found.
+pub fn png_font_available() -> bool {
+    static READY: OnceLock<bool> = OnceLock::new();
+    *READY.get_or_init(|| {
+        let from_env = std::env::var_os("THICKET_FONT").map(PathBuf::from);
+        let candidates = from_env
+            .into_iter()
+            .chain(FONT_CANDIDATES.iter().map(PathBuf::from));
+        for path in candidates {
+            let Ok(bytes) = std::fs::read(&path) else {
+                continue;
+            };
+            // plotters keeps font data for the life of the program.
+            let bytes: &'static [u8] = Box::leak(bytes.into_boxed_slice());
+            if plotters::style::register_font(FAMILY, FontStyle::Normal, bytes).is_ok() {
+                return true;
+            }
+        }
+        false
+    })
+}
+
+/// Power of ten that brings `max` into [1, 10), for axis scaling.
+fn decade(max: f64) -> i32 {
+    if max > 0.0 && max.is_finite() {
+        max.log10().floor() as i32
+    } else {
+        0
+    }
+}
+
+fn log_x_range(t: &[f64]) -> [f64; 2] {
+    let lo = t
+        .iter()
+        .copied()
+        .filter(|v| *v > 0.0)
+        .fold(f64::INFINITY, f64::min);
+    let hi = t.iter().copied().fold(0.0, f64::max);
+    if lo.is_finite() && hi > lo {
+        [lo / 1.3, hi * 1.3]
+    } else if lo.is_finite() {
+        [lo / 2.0, lo * 2.0]
+    } else {
+        [1e-9, 1.0]
+    }
+}
+
+/// MSD/τ against τ: time-averaged and from-origin curves, 2d·D0 and
+/// 2d·D_eff (with its interval), the fit window shaded.
+pub fn msd_figure(msd: &Msd, report: &Report) -> Figure {
+    let d2 = 2.0 * msd.dims as f64;
+    let to_si = |msd_nm2: f64, t: f64| msd_nm2 * NM2_PER_S_IN_M2_PER_S / t;
+    let ta: Vec<(f64, f64)> = msd
+        .lag_times_s
+        .iter()
+        .zip(msd.total_nm2())
+        .map(|(&t, m)| (t, to_si(m, t)))
+        .collect();
+    let origin: Vec<(f64, f64)> = msd
+        .lag_times_s
+        .iter()
+        .zip(msd.origin_total_nm2())
+        .map(|(&t, m)| (t, to_si(m, t)))
+        .collect();
+    let mut ymax = ta
+        .iter()
+        .chain(&origin)
+        .map(|p| p.1)
+        .filter(|v| v.is_finite())
+        .fold(0.0, f64::max);
+    if let Some(d0) = report.d0_m2_per_s {
+        ymax = ymax.max(d2 * d0);
+    }
+    ymax = ymax.max(d2 * report.d_eff_ci95_m2_per_s[1]);
+    let e = decade(ymax);
+    let scale = 10f64.powi(-e);
+    let sc = |pts: Vec<(f64, f64)>| {
+        pts.into_iter()
+            .map(|(x, y)| (x, y * scale))
+            .collect::<Vec<_>>()
+    };
+    let x_range = log_x_range(&msd.lag_times_s);
+    let dims = msd.dims;
+    let mut fig = Figure {
+        title: format!(
+            "MSD/τ of '{}' ({} particles, {} frames)",
+            report.species, report.particles, report.frames
+        ),
+        x_label: "lag τ (s)".into(),
+        y_label: format!("MSD/τ (1e{e} m²/s)"),
+        x_range,
+        x_log: true,
+        y_range: [0.0, ymax * scale * 1.15 + f64::MIN_POSITIVE],
+        x_spans: vec![(report.fit_window_s, WINDOW_C, "fit window".into())],
+        bands: vec![Band {
+            points: vec![
+                (
+                    x_range[0],
+                    d2 * report.d_eff_ci95_m2_per_s[0] * scale,
+                    d2 * report.d_eff_ci95_m2_per_s[1] * scale,
+                ),
+                (
+                    x_range[1],
+                    d2 * report.d_eff_ci95_m2_per_s[0] * scale,
+                    d2 * report.d_eff_ci95_m2_per_s[1] * scale,
+                ),
+            ],
+            colour: ORANGE_C.with_opacity(0.2),
+            label: "95 % interval of D_eff".into(),
+        }],
+        hlines: vec![HLine {
+            y: d2 * report.d_eff_m2_per_s * scale,
+            colour: ORANGE_C,
+            label: format!("{}·D_eff", 2 * dims),
+        }],
+        curves: vec![
+            Curve {
+                points: sc(ta),
+                colour: BLUE_C,
+                label: "time-averaged".into(),
+                dashed: false,
+                markers: true,
+            },
+            Curve {
+                points: sc(origin),
+                colour: GREEN_C,
+                label: "from frame 0".into(),
+                dashed: true,
+                markers: false,
+            },
+        ],
+    };
+    if let Some(d0) = report.d0_m2_per_s {
+        fig.hlines.push(HLine {
+            y: d2 * d0 * scale,
+            colour: GREY_C,
+            label: format!("{}·D0", 2 * dims),
+        });
+    }
+    fig
+}
+
+/// α(τ) against τ with its ±2 SE band, α = 1 marked and the fit window shaded.
+pub fn alpha_figure(msd: &Msd, report: &Report) -> Figure {
+    let ex = msd.local_exponent();
+    let points: Vec<(f64, f64)> = ex
+        .lag_times_s
+        .iter()
+        .zip(&ex.alpha)
+        .filter(|(_, a)| a.is_finite())
+        .map(|(&t, &a)| (t, a))
+        .collect();
+    let band: Vec<(f64, f64, f64)> = ex
+        .lag_times_s
+        .iter()
+        .zip(ex.alpha.iter().zip(&ex.se))
+        .filter(|(_, (a, s))| a.is_finite() && s.is_finite())
+        .map(|(&t, (&a, &s))| (t, a - 2.0 * s, a + 2.0 * s))
+        .collect();
+    let (mut lo, mut hi) = (0.0f64, 1.2f64);
+    for &(_, a) in &points {
+        lo = lo.min(a);
+        hi = hi.max(a);
+    }
+    Figure {
+        title: format!("local exponent α(τ) of '{}'", report.species),
+        x_label: "lag τ (s)".into(),
+        y_label: "α = d ln MSD / d ln τ".into(),
+        x_range: log_x_range(&msd.lag_times_s),
+        x_log: true,
+        y_range: [lo, hi.min(3.0) + 0.05],
+        x_spans: vec![(report.fit_window_s, WINDOW_C, "fit window".into())],
+        bands: vec![Band {
+            points: band,
+            colour: BLUE_C.with_opacity(0.2),
+            label: "±2 SE (between particles)".into(),
+        }],
+        hlines: vec![HLine {
+            y: 1.0,
+            colour: GREY_C,
+            label: "α = 1 (diffusive)".into(),
+        }],
+        curves: vec![Curve {
+            points,
+            colour: BLUE_C,
+            label: "α(τ)".into(),
+            dashed: false,
+            markers: true,
+        }],
+    }
+}
+
+/// Tick values of a linear axis: 1, 2 or 5 times a power of ten apart.
+fn linear_ticks(lo: f64, hi: f64) -> Vec<f64> {
+    let span = hi - lo;
+    if !(span > 0.0 && span.is_finite()) {
+        return vec![lo];
+    }
+    let raw = span / 6.0;
+    let mag = 10f64.powf(raw.log10().floor());
+    let step = [1.0, 2.0, 5.0, 10.0]
+        .iter()
+        .map(|m| m * mag)
+        .find(|s| *s >= raw)
+        .unwrap_or(10.0 * mag);
+    let mut v = (lo / step).ceil() * step;
+    let mut out = Vec::new();
+    while v <= hi + 1e-9 * step {
+        out.push(if v.abs() < 1e-12 * step { 0.0 } else { v });
+        v += step;
+    }
+    out
+}
+
+fn escape(s: &str) -> String {
+    s.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+}
+
+/// Renders a figure as SVG text.
+pub fn render_svg(fig: &Figure) -> String {
+    let (w, h) = (f64::from(WIDTH), f64::from(HEIGHT));
+    let (left, right, top, bottom) = (80.0, 20.0, 40.0, 60.0);
+    let (pw, ph) = (w - left - right, h - top - bottom);
+    let fx = |x: f64| if fig.x_log { x.log10() } else { x };
+    let (lx0, lx1) = (fx(fig.x_range[0]), fx(fig.x_range[1]));
+    let [y0, y1] = fig.y_range;
+    let px = |x: f64| left + (fx(x) - lx0) / (lx1 - lx0) * pw;
+    let py = |y: f64| top + (1.0 - (y - y0) / (y1 - y0)) * ph;
+    let mut s = String::new();
+    let _ = writeln!(
+        s,
+        r#"<svg xmlns="http://www.w3.org/2000/svg" width="{WIDTH}" height="{HEIGHT}" viewBox="0 0 {WIDTH} {HEIGHT}" font-family="sans-serif">"#
+    );
+    let _ = writeln!(s, r#"<rect width="100%" height="100%" fill="white"/>"#);
+    let _ = writeln!(
+        s,
+        r#"<defs><clipPath id="plot"><rect x="{left}" y="{top}" width="{pw}" height="{ph}"/></clipPath></defs>"#
+    );
+    let _ = writeln!(s, r#"<g clip-path="url(#plot)">"#);
+    for (span, c, _) in &fig.x_spans {
+        let (a, b) = (
+            px(span[0].max(fig.x_range[0])),
+            px(span[1].min(fig.x_range[1])),
+        );
+        let _ = writeln!(
+            s,
+            r#"<rect x="{a:.2}" y="{top}" width="{:.2}" height="{ph}" fill="{}" fill-opacity="{}"/>"#,
+            (b - a).max(0.0),
+            c.svg(),
+            c.opacity
+        );
+    }
+    for band in &fig.bands {
+        if band.points.len() < 2 {
+            continue;
+        }
+        let mut d = String::new();
+        for (i, &(x, _, hi)) in band.points.iter().enumerate() {
+            let _ = write!(
+                d,
+                "{}{:.2},{:.2} ",
+                if i == 0 { "M" } else { "L" },
+                px(x),
+                py(hi)
+            );
+        }
+        for &(x, lo, _) in band.points.iter().rev() {
+            let _ = write!(d, "L{:.2},{:.2} ", px(x), py(lo));
+        }
+        let _ = writeln!(
+            s,
+            r#"<path d="{d}Z" fill="{}" fill-opacity="{}" stroke="none"/>"#,
+            band.colour.svg(),
+            band.colour.opacity
+        );
+    }
+    // Grid lines at decades (or linear ticks) of x and at the y ticks.
+    let decades: Vec<f64> = if fig.x_log {
+        (lx0.ceil() as i32..=lx1.floor() as i32).map(|k| 10f64.powi(k)).collect()
+    } else {
+        linear_ticks(lx0, lx1)
+    };
+    for &x in &decades {
+        let _ = writeln!(
+            s,
+            r##"<line x1="{0:.2}" y1="{top}" x2="{0:.2}" y2="{1}" stroke="#ddd"/>"##,
+            px(x),
+            top + ph
+        );
+    }
+    let yticks = linear_ticks(y0, y1);
+    for &y in &yticks {
+        let _ = writeln!(
+            s,
+            r##"<line x1="{left}" y1="{0:.2}" x2="{1}" y2="{0:.2}" stroke="#ddd"/>"##,
+            py(y),
+            left + pw
+        );
+    }
+    for l in &fig.hlines {
+        let _ = writeln!(
+            s,
+            r#"<line x1="{left}" y1="{0:.2}" x2="{1}" y2="{0:.2}" stroke="{2}" stroke-width="1.5" stroke-dasharray="6,4"/>"#,
+            py(l.y),
+            left + pw,
+            l.colour.svg()
+        );
+    }
+    for c in &fig.curves {
+        let pts: Vec<String> = c
+            .points
+            .iter()
+            .filter(|p| (p.0 > 0.0 || !fig.x_log) && p.1.is_finite())
+            .map(|&(x, y)| format!("{:.2},{:.2}", px(x), py(y)))
+            .collect();
+        if pts.is_empty() {
+            continue;
+        }
+        let dash = if c.dashed {
+            r#" stroke-dasharray="5,3""#
+        } else {
+            ""
+        };
+        let _ = writeln!(
+            s,
+            r#"<polyline points="{}" fill="none" stroke="{}" stroke-width="1.8"{dash}/>"#,
+            pts.join(" "),
+            c.colour.svg()
+        );
+        if c.markers {
+            for p in &pts {
+                let (x, y) = p.split_once(',').unwrap_or(("0", "0"));
+                let _ = writeln!(
+                    s,
+                    r#"<circle cx="{x}" cy="{y}" r="2.5" fill="{}"/>"#,
+                    c.colour.svg()
+                );
+            }
+        }
+    }
+    let _ = writeln!(s, "</g>");
+    // Frame, ticks and labels.
+    let _ = writeln!(
+        s,
+        r#"<rect x="{left}" y="{top}" width="{pw}" height="{ph}" fill="none" stroke="black"/>"#
+    );
+    for &x in &decades {
+        let xp = px(x);
+        let _ = writeln!(
+            s,
+            r#"<line x1="{xp:.2}" y1="{0}" x2="{xp:.2}" y2="{1}" stroke="black"/><text x="{xp:.2}" y="{2}" font-size="13" text-anchor="middle">{3}</text>"#,
+            top + ph,
+            top + ph + 6.0,
+            top + ph + 20.0,
+            if fig.x_log { format!("1e{}", x.log10().round() as i32) } else { fmt_tick(x) }
+        );
+    }
+    for &y in &yticks {
+        let yp = py(y);
+        let _ = writeln!(
+            s,
+            r#"<line x1="{0}" y1="{yp:.2}" x2="{left}" y2="{yp:.2}" stroke="black"/><text x="{1}" y="{2:.2}" font-size="13" text-anchor="end">{3}</text>"#,
+            left - 6.0,
+            left - 9.0,
+            yp + 4.0,
+            fmt_tick(y)
+        );
+    }
+    let _ = writeln!(
+        s,
+        r#"<text x="{0}" y="24" font-size="16" text-anchor="middle">{1}</text>"#,
+        left + pw / 2.0,
+        escape(&fig.title)
+    );
+    let _ = writeln!(
+        s,
+        r#"<text x="{0}" y="{1}" font-size="14" text-anchor="middle">{2}</text>"#,
+        left + pw / 2.0,
+        h - 15.0,
+        escape(&fig.x_label)
+    );
+    let _ = writeln!(
+        s,
+        r#"<text x="20" y="{0}" font-size="14" text-anchor="middle" transform="rotate(-90 20 {0})">{1}</text>"#,
+        top + ph / 2.0,
+        escape(&fig.y_label)
+    );
+    // Legend, top right inside the plot.
+    let mut entries: Vec<(Colour, &str, bool)> = Vec::new();
+    entries.extend(
+        fig.curves
+            .iter()
+            .map(|c| (c.colour, c.label.as_str(), false)),
+    );
+    entries.extend(
+        fig.hlines
+            .iter()
+            .map(|l| (l.colour, l.label.as_str(), false)),
+    );
+    entries.extend(fig.bands.iter().map(|b| (b.colour, b.label.as_str(), true)));
+    entries.extend(fig.x_spans.iter().map(|(_, c, l)| (*c, l.as_str(), true)));
+    let (lx, mut ly) = (left + pw - 230.0, top + 12.0);
+    let _ = writeln!(
+        s,
+        r##"<rect x="{0}" y="{1}" width="222" height="{2}" fill="white" fill-opacity="0.85" stroke="#999"/>"##,
+        lx - 6.0,
+        top + 4.0,
+        18.0 * entries.len() as f64 + 6.0
+    );
+    for (c, label, filled) in entries {
+        if filled {
+            let _ = writeln!(
+                s,
+                r#"<rect x="{lx}" y="{0}" width="22" height="10" fill="{1}" fill-opacity="{2}"/>"#,
+                ly,
+                c.svg(),
+                c.opacity.max(0.3)
+            );
+        } else {
+            let _ = writeln!(
+                s,
+                r#"<line x1="{lx}" y1="{0}" x2="{1}" y2="{0}" stroke="{2}" stroke-width="2"/>"#,
+                ly + 5.0,
+                lx + 22.0,
+                c.svg()
+            );
+        }
+        let _ = writeln!(
+            s,
+            r#"<text x="{0}" y="{1}" font-size="12">{2}</text>"#,
+            lx + 30.0,
+            ly + 9.5,
+            escape(label)
+        );
+        ly += 18.0;
+    }
+    let _ = writeln!(s, "</svg>");
+    s
+}
+
+fn fmt_tick(v: f64) -> String {
+    let s = format!("{v:.3}");
+    let s = s.trim_end_matches('0').trim_end_matches('.');
+    if s == "-0" {
+        "0".into()
+    } else {
+        s.to_string()
+    }
+}
+
+/// Renders a figure as PNG with plotters; without `text`, titles, labels
+/// and the legend are left out (no font is needed then).
+///
+/// # Errors
+/// [`ErrorKind::Output`] if drawing or writing fails.
+pub fn render_png(fig: &Figure, path: &Path, text: bool) -> Result<()> {
+    let err = |e: &dyn std::fmt::Display| output_error(path, e);
+    let root = BitMapBackend::new(path, (WIDTH, HEIGHT)).into_drawing_area();
+    root.fill(&WHITE).map_err(|e| err(&e))?;
+    // Plot in linear coordinates of log10(x) for a log axis, so one code path serves both.
+    let fx = |x: f64| if fig.x_log { x.log10() } else { x };
+    let [x0, x1] = [fx(fig.x_range[0]), fx(fig.x_range[1])];
+    let [y0, y1] = fig.y_range;
+    let mut builder = ChartBuilder::on(&root);
+    builder.margin(15);
+    if text {
+        builder
+            .caption(&fig.title, (FAMILY, 20))
+            .x_label_area_size(45)
+            .y_label_area_size(65);
+    } else {
+        builder.x_label_area_size(5).y_label_area_size(5);
+    }
+    let mut chart = builder
+        .build_cartesian_2d(x0..x1, y0..y1)
+        .map_err(|e| err(&e))?;
+    if text {
+        chart
+            .configure_mesh()
+            .x_desc(fig.x_label.as_str())
+            .y_desc(fig.y_label.as_str())
+            .x_label_formatter(&|x| if fig.x_log { format!("{:.0e}", 10f64.powf(*x)) } else { fmt_tick(*x) })
+            .label_style((FAMILY, 14))
+            .draw()
+            .map_err(|e| err(&e))?;
+    } else {
+        // Without a font: the frame and decade grid lines only.
+        let decades: Vec<f64> = if fig.x_log {
+            (x0.ceil() as i32..=x1.floor() as i32).map(f64::from).collect()
+        } else {
+            linear_ticks(x0, x1)
+        };
+        for x in decades {
+            chart
+                .draw_series(std::iter::once(PathElement::new(
+                    vec![(x, y0), (x, y1)],
+                    RGBColor(221, 221, 221),
+                )))
+                .map_err(|e| err(&e))?;
+        }
+        chart
+            .draw_series(std::iter::once(Rectangle::new(
+                [(x0, y0), (x1, y1)],
+                BLACK.stroke_width(1),
+            )))
+            .map_err(|e| err(&e))?;
+    }
+    for (span, c, label) in &fig.x_spans {
+        let a = fx(span[0]).max(x0);
+        let b = fx(span[1]).min(x1);
+        let colour = c.plotters();
+        let series = chart
+            .draw_series(std::iter::once(Rectangle::new(
+                [(a, y0), (b, y1)],
+                colour.filled(),
+            )))
+            .map_err(|e| err(&e))?;
+        if text {
+            series.label(label.as_str()).legend(move |(x, y)| {
+                Rectangle::new([(x, y - 5), (x + 20, y + 5)], colour.filled())
+            });
+        }
+    }
+    for band in &fig.bands {
+        if band.points.len() < 2 {
+            continue;
+        }
+        let mut poly: Vec<(f64, f64)> = band.points.iter().map(|&(x, _, hi)| (fx(x), hi)).collect();
+        poly.extend(band.points.iter().rev().map(|&(x, lo, _)| (fx(x), lo)));
+        let colour = band.colour.plotters();
+        let series = chart
+            .draw_series(std::iter::once(Polygon::new(poly, colour.filled())))
+            .map_err(|e| err(&e))?;
+        if text {
+            series.label(band.label.as_str()).legend(move |(x, y)| {
+                Rectangle::new([(x, y - 5), (x + 20, y + 5)], colour.filled())
+            });
+        }
+    }
+    for l in &fig.hlines {
+        let colour = l.colour.plotters();
+        let series = chart
+            .draw_series(DashedLineSeries::new(
+                vec![(x0, l.y), (x1, l.y)],
+                8,
+                5,
+                colour.stroke_width(2),
+            ))
+            .map_err(|e| err(&e))?;
+        if text {
+            series.label(l.label.as_str()).legend(move |(x, y)| {
+                PathElement::new(vec![(x, y), (x + 20, y)], colour.stroke_width(2))
+            });
+        }
+    }
+    for c in &fig.curves {
+        let pts: Vec<(f64, f64)> = c
+            .points
+            .iter()
+            .copied()
+            .filter(|p| (p.0 > 0.0 || !fig.x_log) && p.1.is_finite())
+            .map(|(x, y)| (fx(x), y))
+            .collect();
+        let colour = c.colour.plotters();
+        let style = colour.stroke_width(2);
+        let series = if c.dashed {
+            chart.draw_series(DashedLineSeries::new(pts.clone(), 6, 4, style))
+        } else {
+            chart.draw_series(LineSeries::new(pts.clone(), style))
+        }
+        .map_err(|e| err(&e))?;
+        if text {
+            series.label(c.label.as_str()).legend(move |(x, y)| {
+                PathElement::new(vec![(x, y), (x + 20, y)], colour.stroke_width(2))
+            });
+        }
+        if c.markers {
+            chart
+                .draw_series(pts.iter().map(|&p| Circle::new(p, 2, colour.filled())))
+                .map_err(|e| err(&e))?;
+        }
+    }
+    if text {
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperRight)
+            .background_style(WHITE.mix(0.85))
+            .border_style(BLACK)
+            .label_font((FAMILY, 13))
+            .draw()
+            .map_err(|e| err(&e))?;
+    }
+    root.present().map_err(|e| err(&e))?;
+    Ok(())
+}

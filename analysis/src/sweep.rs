@@ -1,0 +1,504 @@
+//! Sweeps: a grid of runs over scenario keys × seeds, each analysed, joined
+//! into `summary.csv` and `summary.json` with model values beside them.
+//!
+//! Every point leaves `points/pNNNN_sSEED.json` in the output folder as soon
+//! as it is done, so an interrupted sweep picks up where it stopped, shards
+//! of one sweep (`--shard I/N`, every N-th point) can run on different
+//! machines, and a final merge joins whatever points are there.
+
+use crate::estimators::{analyze, AnalyzeOptions};
+use crate::models;
+use crate::report::scenario_models;
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+use std::sync::atomic::AtomicBool;
+use thicket_engine::run::{run, RunOptions, RunOutcome};
+use thicket_engine::Scenario;
+
+/// Errors of a sweep, naming the file and key concerned.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum SweepError {
+    /// The sweep file could not be read or parsed.
+    #[error("{}: {message}", file.display())]
+    Spec {
+        /// Sweep file.
+        file: PathBuf,
+        /// What is wrong.
+        message: String,
+    },
+    /// A grid key is not a key of the scenario, or a value is refused.
+    #[error("{}: grid key `{key}` = {value}: {message}", file.display())]
+    GridKey {
+        /// Sweep file.
+        file: PathBuf,
+        /// Dotted key.
+        key: String,
+        /// Value tried.
+        value: String,
+        /// The scenario's own error.
+        message: String,
+    },
+    /// A run or its analysis failed.
+    #[error("sweep point {point} (seed {seed}): {message}")]
+    Point {
+        /// Point index.
+        point: usize,
+        /// Seed.
+        seed: i64,
+        /// What failed.
+        message: String,
+    },
+    /// Output could not be written or read.
+    #[error("{}: {message}", path.display())]
+    Output {
+        /// Path concerned.
+        path: PathBuf,
+        /// What failed.
+        message: String,
+    },
+}
+
+type Result<T> = std::result::Result<T, SweepError>;
+
+/// The sweep file as written.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawSweep {
+    /// Scenario file, relative to the sweep file.
+    pub scenario: String,
+    /// Seeds: every grid point is run once per seed.
+    #[serde(default = "default_seeds")]
+    pub seeds: Vec<i64>,
+    /// Keys to vary (dotted scenario paths) and their values; the grid is the
+    /// Cartesian product, the first key is the x axis of the plot.
+    pub grid: toml::Table,
+    /// Overrides applied to every point.
+    #[serde(default)]
+    pub set: toml::Table,
+    /// Species to analyse (default: the first).
+    #[serde(default)]
+    pub species: Option<String>,
+    /// Title for the report and plot.
+    #[serde(default)]
+    pub title: Option<String>,
+}
+
+fn default_seeds() -> Vec<i64> {
+    vec![1]
+}
+
+/// A validated sweep.
+#[derive(Debug, Clone)]
+pub struct Sweep {
+    /// The sweep file.
+    pub file: PathBuf,
+    /// The scenario file.
+    pub scenario_file: PathBuf,
+    /// Seeds.
+    pub seeds: Vec<i64>,
+    /// Grid keys in file order.
+    pub keys: Vec<String>,
+    /// Points: one value (TOML text) per key.
+    pub points: Vec<Vec<toml::Value>>,
+    /// Fixed overrides as `KEY=VALUE`.
+    pub fixed: Vec<String>,
+    /// Species analysed.
+    pub species: Option<String>,
+    /// Title.
+    pub title: String,
+}
+
+/// One finished (point, seed) run.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+pub struct PointResult {
+    /// Point index in the grid.
+    pub point: usize,
+    /// Seed.
+    pub seed: i64,
+    /// Grid values by key.
+    pub values: BTreeMap<String, toml::Value>,
+    /// D0 of the analysed species, m²/s.
+    pub d0_m2_per_s: f64,
+    /// D_eff, m²/s.
+    pub d_eff_m2_per_s: f64,
+    /// 95 % interval, m²/s.
+    pub d_eff_ci95_m2_per_s: [f64; 2],
+    /// D_eff/D0.
+    pub d_eff_over_d0: f64,
+    /// Long-time exponent.
+    pub alpha_long: f64,
+    /// Model predictions of D_eff/D0 for this scenario.
+    pub models: BTreeMap<String, f64>,
+    /// Trajectory file, relative to the output folder.
+    pub trajectory: String,
+}
+
+/// One grid point, all seeds combined.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct SummaryRow {
+    /// Point index.
+    pub point: usize,
+    /// Grid values by key.
+    pub values: BTreeMap<String, toml::Value>,
+    /// Seeds combined.
+    pub seeds: usize,
+    /// D0, m²/s.
+    pub d0_m2_per_s: f64,
+    /// Inverse-variance weighted D_eff, m²/s.
+    pub d_eff_m2_per_s: f64,
+    /// 95 % interval of the weighted mean, m²/s.
+    pub d_eff_ci95_m2_per_s: [f64; 2],
+    /// D_eff/D0.
+    pub d_eff_over_d0: f64,
+    /// 95 % interval of D_eff/D0.
+    pub d_eff_over_d0_ci95: [f64; 2],
+    /// Mean long-time exponent.
+    pub alpha_long: f64,
+    /// Model predictions of D_eff/D0 (from the first seed's scenario).
+    pub models: BTreeMap<String, f64>,
+}
+
+/// The whole summary (`summary.json`).
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct Summary {
+    /// Title.
+    pub title: String,
+    /// Sweep file.
+    pub sweep_file: String,
+    /// Grid keys.
+    pub keys: Vec<String>,
+    /// Rows, in point order.
+    pub points: Vec<SummaryRow>,
+    /// Free-volume fit exp(−γ φ/(1−φ)) against the first key, when it is a fraction.
+    pub free_volume_gamma: Option<f64>,
+    /// Standard error of γ.
+    pub free_volume_gamma_se: Option<f64>,
+    /// Points of the grid with no result yet (an unfinished shard).
+    pub missing_points: Vec<usize>,
+    /// The usual caution.
+    pub caution: String,
+}
+
+/// The caution every report carries.
+pub const CAUTION: &str = "Model estimates only: not, on their own, a basis for clinical, dosing or safety decisions, which follow local codes and licensed practice.";
+
+impl Sweep {
+    /// Reads and validates a sweep file: every grid value is tried on the
+    /// scenario, so a key that does not exist is refused before any run.
+    ///
+    /// # Errors
+    /// [`SweepError::Spec`] or [`SweepError::GridKey`].
+    pub fn load(file: &Path) -> Result<Self> {
+        let spec_err = |message: String| SweepError::Spec { file: file.to_path_buf(), message };
+        let text = std::fs::read_to_string(file).map_err(|e| spec_err(format!("cannot read the sweep file: {e}")))?;
+        let raw: RawSweep = toml::from_str(&text).map_err(|e| spec_err(e.to_string().trim_end().to_string()))?;
+        let base = file.parent().unwrap_or(Path::new("."));
+        let scenario_file = base.join(&raw.scenario);
+        if raw.seeds.is_empty() {
+            return Err(spec_err("key `seeds` = []: give at least one seed".into()));
+        }
+        if raw.grid.is_empty() {
+            return Err(spec_err("section [grid] is empty: give at least one key with a list of values".into()));
+        }
+        let mut keys = Vec::new();
+        let mut lists = Vec::new();
+        for (key, value) in &raw.grid {
+            let list = value
+                .as_array()
+                .filter(|a| !a.is_empty())
+                .ok_or_else(|| spec_err(format!("grid key `{key}` = {value}: give a non-empty list of values")))?;
+            keys.push(key.clone());
+            lists.push(list.clone());
+        }
+        let mut points: Vec<Vec<toml::Value>> = vec![vec![]];
+        for list in &lists {
+            points = points
+                .into_iter()
+                .flat_map(|p| {
+                    list.iter().map(move |v| {
+                        let mut q = p.clone();
+                        q.push(v.clone());
+                        q
+                    })
+                })
+                .collect();
+        }
+        let fixed: Vec<String> = raw.set.iter().map(|(k, v)| format!("{k}={v}")).collect();
+        let sweep = Sweep {
+            file: file.to_path_buf(),
+            scenario_file,
+            seeds: raw.seeds,
+            keys,
+            points,
+            fixed,
+            species: raw.species,
+            title: raw.title.unwrap_or_else(|| "sweep".into()),
+        };
+        // Validate every value on its own, so the message names the key at fault.
+        for (k, list) in sweep.keys.iter().zip(&lists) {
+            for v in list {
+                let mut sets = sweep.fixed.clone();
+                sets.push(format!("{k}={v}"));
+                Scenario::load(&sweep.scenario_file, &sets).map_err(|e| SweepError::GridKey {
+                    file: file.to_path_buf(),
+                    key: k.clone(),
+                    value: v.to_string(),
+                    message: e.to_string(),
+                })?;
+            }
+        }
+        Ok(sweep)
+    }
+
+    /// Overrides for one point and seed.
+    pub fn overrides(&self, point: usize, seed: i64) -> Vec<String> {
+        let mut sets = self.fixed.clone();
+        for (k, v) in self.keys.iter().zip(&self.points[point]) {
+            sets.push(format!("{k}={v}"));
+        }
+        sets.push(format!("seed={seed}"));
+        sets
+    }
+}
+
+fn point_json(dir: &Path, point: usize, seed: i64) -> PathBuf {
+    dir.join("points").join(format!("p{point:04}_s{seed}.json"))
+}
+
+/// Runs the sweep's (point, seed) pairs selected by `shard` = (i, n) — every
+/// n-th pair starting at i (1-based) — skipping pairs whose result exists
+/// unless `force`. `progress(done, total)` is called as pairs finish.
+///
+/// # Errors
+/// The first failing run or analysis, or unwritable output.
+pub fn run_sweep(sweep: &Sweep, dir: &Path, shard: (usize, usize), force: bool, stop: &AtomicBool, progress: &(dyn Fn(usize, usize) + Sync)) -> Result<Vec<PointResult>> {
+    let out_err = |path: &Path, e: std::io::Error| SweepError::Output { path: path.to_path_buf(), message: e.to_string() };
+    std::fs::create_dir_all(dir.join("points")).map_err(|e| out_err(dir, e))?;
+    std::fs::create_dir_all(dir.join("runs")).map_err(|e| out_err(dir, e))?;
+    let (shard_i, shard_n) = shard;
+    let pairs: Vec<(usize, i64)> = (0..sweep.points.len())
+        .flat_map(|p| sweep.seeds.iter().map(move |&s| (p, s)))
+        .enumerate()
+        .filter(|(k, _)| k % shard_n == shard_i - 1)
+        .map(|(_, pair)| pair)
+        .collect();
+    let total = pairs.len();
+    let done = std::sync::atomic::AtomicUsize::new(0);
+    progress(0, total);
+    let results: Vec<Result<Option<PointResult>>> = pairs
+        .par_iter()
+        .map(|&(point, seed)| {
+            let json_path = point_json(dir, point, seed);
+            let result = if json_path.exists() && !force {
+                read_point(&json_path).map(Some)
+            } else {
+                run_point(sweep, dir, point, seed, stop)
+            };
+            let n = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
+            progress(n, total);
+            result
+        })
+        .collect();
+    let mut out = Vec::new();
+    for r in results {
+        if let Some(p) = r? {
+            out.push(p);
+        }
+    }
+    Ok(out)
+}
+
+fn read_point(path: &Path) -> Result<PointResult> {
+    let text = std::fs::read_to_string(path).map_err(|e| SweepError::Output { path: path.to_path_buf(), message: e.to_string() })?;
+    serde_json::from_str(&text).map_err(|e| SweepError::Output { path: path.to_path_buf(), message: format!("not a sweep point result ({e}); delete it to rerun the point") })
+}
+
+/// Runs and analyses one (point, seed); `None` if stopped by `stop`.
+fn run_point(sweep: &Sweep, dir: &Path, point: usize, seed: i64, stop: &AtomicBool) -> Result<Option<PointResult>> {
+    let fail = |message: String| SweepError::Point { point, seed, message };
+    let scenario = Scenario::load(&sweep.scenario_file, &sweep.overrides(point, seed)).map_err(|e| fail(e.to_string()))?;
+    let rel = format!("runs/p{point:04}_s{seed}.h5");
+    let out = dir.join(&rel);
+    let options = RunOptions { out: out.clone(), force: true, resume: false };
+    match run(&scenario, &options, stop, &mut |_, _| {}).map_err(|e| fail(e.to_string()))? {
+        RunOutcome::Completed { .. } => {}
+        RunOutcome::Interrupted { .. } => return Ok(None),
+    }
+    let analysis = analyze(&out, sweep.species.as_deref(), &AnalyzeOptions::default()).map_err(|e| fail(e.to_string()))?;
+    let report = analysis.report;
+    let d0 = report.d0_m2_per_s.ok_or_else(|| fail("the trajectory does not give D0".into()))?;
+    let species_name = report.species.clone();
+    let result = PointResult {
+        point,
+        seed,
+        values: sweep.keys.iter().cloned().zip(sweep.points[point].iter().cloned()).collect(),
+        d0_m2_per_s: d0,
+        d_eff_m2_per_s: report.d_eff_m2_per_s,
+        d_eff_ci95_m2_per_s: report.d_eff_ci95_m2_per_s,
+        d_eff_over_d0: report.d_eff_m2_per_s / d0,
+        alpha_long: report.alpha_long,
+        models: scenario_models(&scenario, &species_name),
+        trajectory: rel,
+    };
+    let json_path = point_json(dir, point, seed);
+    let text = serde_json::to_string_pretty(&result).map_err(|e| fail(e.to_string()))?;
+    // Write then rename, so a killed sweep never leaves half a result.
+    let tmp = json_path.with_extension("json.tmp");
+    std::fs::write(&tmp, text).and_then(|_| std::fs::rename(&tmp, &json_path)).map_err(|e| SweepError::Output { path: json_path.clone(), message: e.to_string() })?;
+    Ok(Some(result))
+}
+
+/// Joins every point result present in `dir` into a summary.
+///
+/// # Errors
+/// Unreadable point files.
+pub fn summarize(sweep: &Sweep, dir: &Path) -> Result<Summary> {
+    let mut rows = Vec::new();
+    let mut missing = Vec::new();
+    for point in 0..sweep.points.len() {
+        let mut results = Vec::new();
+        for &seed in &sweep.seeds {
+            let path = point_json(dir, point, seed);
+            if path.exists() {
+                results.push(read_point(&path)?);
+            }
+        }
+        if results.is_empty() {
+            missing.push(point);
+            continue;
+        }
+        rows.push(combine(point, &results));
+    }
+    let (gamma, gamma_se) = fit_gamma(sweep, &rows);
+    Ok(Summary {
+        title: sweep.title.clone(),
+        sweep_file: sweep.file.display().to_string(),
+        keys: sweep.keys.clone(),
+        points: rows,
+        free_volume_gamma: gamma,
+        free_volume_gamma_se: gamma_se,
+        missing_points: missing,
+        caution: CAUTION.into(),
+    })
+}
+
+/// Inverse-variance weighted mean of the seeds' D_eff (each seed's SE from
+/// its 95 % interval), which also spans the spread between realisations.
+fn combine(point: usize, results: &[PointResult]) -> SummaryRow {
+    let z = 1.959_963_984_540_054;
+    let mut wsum = 0.0;
+    let mut dsum = 0.0;
+    for r in results {
+        let se = ((r.d_eff_ci95_m2_per_s[1] - r.d_eff_ci95_m2_per_s[0]) / (2.0 * z)).max(f64::MIN_POSITIVE);
+        let w = 1.0 / (se * se);
+        wsum += w;
+        dsum += w * r.d_eff_m2_per_s;
+    }
+    let d = dsum / wsum;
+    let mut se = (1.0 / wsum).sqrt();
+    if results.len() > 1 {
+        // Widen to the observed scatter between seeds when it exceeds the within-run errors.
+        let n = results.len() as f64;
+        let mean = results.iter().map(|r| r.d_eff_m2_per_s).sum::<f64>() / n;
+        let var = results.iter().map(|r| (r.d_eff_m2_per_s - mean).powi(2)).sum::<f64>() / (n - 1.0);
+        se = se.max((var / n).sqrt());
+    }
+    let d0 = results[0].d0_m2_per_s;
+    let ci = [d - z * se, d + z * se];
+    SummaryRow {
+        point,
+        values: results[0].values.clone(),
+        seeds: results.len(),
+        d0_m2_per_s: d0,
+        d_eff_m2_per_s: d,
+        d_eff_ci95_m2_per_s: ci,
+        d_eff_over_d0: d / d0,
+        d_eff_over_d0_ci95: [ci[0] / d0, ci[1] / d0],
+        alpha_long: results.iter().map(|r| r.alpha_long).sum::<f64>() / results.len() as f64,
+        models: results[0].models.clone(),
+    }
+}
+
+/// Fits γ of the free-volume form to D_eff/D0 against the first key when
+/// that key's values are fractions in [0, 1).
+fn fit_gamma(sweep: &Sweep, rows: &[SummaryRow]) -> (Option<f64>, Option<f64>) {
+    let key = &sweep.keys[0];
+    if !key.ends_with("volume_fraction") {
+        return (None, None);
+    }
+    let mut phis = Vec::new();
+    let mut ratios = Vec::new();
+    let mut weights = Vec::new();
+    for r in rows {
+        let Some(phi) = r.values.get(key).and_then(|v| v.as_float().or(v.as_integer().map(|i| i as f64))) else { continue };
+        if phi <= 0.0 || phi >= 1.0 || r.d_eff_over_d0 <= 0.0 {
+            continue;
+        }
+        let half = (r.d_eff_over_d0_ci95[1] - r.d_eff_over_d0_ci95[0]) / 2.0;
+        phis.push(phi);
+        ratios.push(r.d_eff_over_d0);
+        // Weight ln-ratio points by their inverse variance, (ratio / SE)².
+        weights.push((r.d_eff_over_d0 / (half / 1.96).max(1e-12)).powi(2));
+    }
+    match models::fit_free_volume_gamma(&phis, &ratios, &weights) {
+        Ok(fit) => (Some(fit.gamma), Some(fit.gamma_standard_error)),
+        Err(_) => (None, None),
+    }
+}
+
+/// Writes `summary.csv` and `summary.json` into `dir`; returns their paths.
+///
+/// # Errors
+/// Unwritable files.
+pub fn write_summary(summary: &Summary, dir: &Path) -> Result<Vec<PathBuf>> {
+    let out_err = |path: &Path, e: String| SweepError::Output { path: path.to_path_buf(), message: e };
+    let json_path = dir.join("summary.json");
+    let json = serde_json::to_string_pretty(summary).map_err(|e| out_err(&json_path, e.to_string()))?;
+    std::fs::write(&json_path, json).map_err(|e| out_err(&json_path, e.to_string()))?;
+    let model_names: Vec<String> = {
+        let mut names: Vec<String> = summary.points.iter().flat_map(|r| r.models.keys().cloned()).collect();
+        names.sort();
+        names.dedup();
+        names
+    };
+    let mut csv = String::new();
+    let mut header: Vec<String> = vec!["point".into()];
+    header.extend(summary.keys.iter().cloned());
+    header.extend(
+        ["seeds", "d0_m2_per_s", "d_eff_m2_per_s", "d_eff_ci95_low_m2_per_s", "d_eff_ci95_high_m2_per_s", "d_eff_over_d0", "d_eff_over_d0_ci95_low", "d_eff_over_d0_ci95_high", "alpha_long"]
+            .map(String::from),
+    );
+    header.extend(model_names.iter().map(|m| format!("model: {m}")));
+    csv.push_str(&header.iter().map(|h| csv_field(h)).collect::<Vec<_>>().join(","));
+    csv.push('\n');
+    for r in &summary.points {
+        let mut fields = vec![r.point.to_string()];
+        for k in &summary.keys {
+            fields.push(r.values.get(k).map(|v| csv_field(&v.to_string())).unwrap_or_default());
+        }
+        for v in [r.d0_m2_per_s, r.d_eff_m2_per_s, r.d_eff_ci95_m2_per_s[0], r.d_eff_ci95_m2_per_s[1], r.d_eff_over_d0, r.d_eff_over_d0_ci95[0], r.d_eff_over_d0_ci95[1], r.alpha_long] {
+            fields.push(format!("{v:e}"));
+        }
+        fields.insert(1 + summary.keys.len(), r.seeds.to_string());
+        for m in &model_names {
+            fields.push(r.models.get(m).map(|v| format!("{v:.6}")).unwrap_or_default());
+        }
+        csv.push_str(&fields.join(","));
+        csv.push('\n');
+    }
+    let csv_path = dir.join("summary.csv");
+    std::fs::write(&csv_path, csv).map_err(|e| out_err(&csv_path, e.to_string()))?;
+    Ok(vec![csv_path, json_path])
+}
+
+/// Quotes a CSV field when it holds a comma or a quote.
+fn csv_field(s: &str) -> String {
+    if s.contains([',', '"', '\n']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
+}
