@@ -18,8 +18,8 @@ pub fn parse_shard(text: &str) -> Result<(usize, usize)> {
 
 /// Runs (or with `merge`, only joins) a sweep into `out`.
 pub fn sweep(file: &Path, out: &Path, shard: Option<&str>, merge: bool, force: bool) -> Result<ExitCode> {
-    let spec = Sweep::load(file)?;
     let shard = shard.map(parse_shard).transpose()?.unwrap_or((1, 1));
+    let spec = Sweep::load(file)?;
     let stop = crate::run::stop_flag()?;
     if !merge {
         let total = spec.points.len() * spec.seeds.len();

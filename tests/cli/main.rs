@@ -1,5 +1,6 @@
 //! End-to-end tests of the `thicket` binary, one module per topic.
 
+mod analysis;
 mod bad_input;
 mod file_format;
 mod free;
