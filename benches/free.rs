@@ -24,7 +24,11 @@ fn scenario(count: usize, steps: u64, record: u64) -> Scenario {
 fn rss_kib() -> u64 {
     std::fs::read_to_string("/proc/self/status")
         .ok()
-        .and_then(|s| s.lines().find(|l| l.starts_with("VmRSS:")).and_then(|l| l.split_whitespace().nth(1)?.parse().ok()))
+        .and_then(|s| {
+            s.lines()
+                .find(|l| l.starts_with("VmRSS:"))
+                .and_then(|l| l.split_whitespace().nth(1)?.parse().ok())
+        })
         .unwrap_or(0)
 }
 
@@ -32,7 +36,10 @@ fn rss_kib() -> u64 {
 fn throughput(count: usize, steps: u64, threads: usize, repeats: usize) -> f64 {
     let sc = scenario(count, steps, steps);
     let kin = kinetics(&sc);
-    let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().expect("thread pool");
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads)
+        .build()
+        .expect("thread pool");
     let mut best = f64::INFINITY;
     let mut state = State::initial(&sc);
     for _ in 0..repeats {
@@ -45,7 +52,9 @@ fn throughput(count: usize, steps: u64, threads: usize, repeats: usize) -> f64 {
 
 /// The floor: three standard normals per particle-step and nothing else, one thread.
 fn bare_normals(count: usize, steps: u64) -> f64 {
-    let mut rngs: Vec<ParticleRng> = (0..count as u64).map(|i| ParticleRng::for_particle(5, i)).collect();
+    let mut rngs: Vec<ParticleRng> = (0..count as u64)
+        .map(|i| ParticleRng::for_particle(5, i))
+        .collect();
     let mut best = f64::INFINITY;
     for _ in 0..5 {
         let t = Instant::now();
@@ -67,13 +76,26 @@ fn bare_normals(count: usize, steps: u64) -> f64 {
 fn main() {
     let count = 200_000;
     let steps = 200;
-    println!("free diffusion, f64 3D Euler–Maruyama, {count} particles × {steps} steps (best of 5)");
+    println!(
+        "free diffusion, f64 3D Euler–Maruyama, {count} particles × {steps} steps (best of 5)"
+    );
     let bare = bare_normals(count, steps);
     let one = throughput(count, steps, 1, 5);
     let two = throughput(count, steps, 2, 5);
-    println!("  bare cost, 3 normals per step: {:8.1} M particle-steps/s", bare / 1e6);
-    println!("  1 thread : {:8.1} M particle-steps/s   ({:.0} % of the bare random-number rate)", one / 1e6, 100.0 * one / bare);
-    println!("  2 threads: {:8.1} M particle-steps/s   speed-up {:.2}×", two / 1e6, two / one);
+    println!(
+        "  bare cost, 3 normals per step: {:8.1} M particle-steps/s",
+        bare / 1e6
+    );
+    println!(
+        "  1 thread : {:8.1} M particle-steps/s   ({:.0} % of the bare random-number rate)",
+        one / 1e6,
+        100.0 * one / bare
+    );
+    println!(
+        "  2 threads: {:8.1} M particle-steps/s   speed-up {:.2}×",
+        two / 1e6,
+        two / one
+    );
 
     // Recording: the whole driver writing a frame every 100 steps (f32) against the bare kernel.
     let dir = std::env::temp_dir().join(format!("thicket-bench-{}", std::process::id()));
@@ -91,7 +113,11 @@ fn main() {
         advance_free(&mut state, &kin, &sc.sim_box, rec_steps);
         bare_best = bare_best.min(t.elapsed().as_secs_f64());
         let out = dir.join("bench.h5");
-        let opts = RunOptions { out: out.clone(), force: true, resume: false };
+        let opts = RunOptions {
+            out: out.clone(),
+            force: true,
+            resume: false,
+        };
         let t = Instant::now();
         run(&sc, &opts, &stop, &mut |_, _| {}).expect("bench run");
         rec_best = rec_best.min(t.elapsed().as_secs_f64());

@@ -7,11 +7,24 @@ use thicket_analysis::estimators::{analyze, AnalyzeOptions};
 use thicket_analysis::report::{scenario_models, stored_scenario};
 
 /// Analyses a trajectory and prints a table or JSON; optional plots.
-pub fn analyze_trajectory(file: &Path, species: Option<&str>, window: Option<&str>, d0: Option<f64>, plot: Option<&Path>, as_json: bool) -> Result<ExitCode> {
-    let mut options = AnalyzeOptions { d0_m2_per_s: d0, ..AnalyzeOptions::default() };
+pub fn analyze_trajectory(
+    file: &Path,
+    species: Option<&str>,
+    window: Option<&str>,
+    d0: Option<f64>,
+    plot: Option<&Path>,
+    as_json: bool,
+) -> Result<ExitCode> {
+    let mut options = AnalyzeOptions {
+        d0_m2_per_s: d0,
+        ..AnalyzeOptions::default()
+    };
     if let Some(w) = window {
         let parts = crate::models::parse_list("--window", w)?;
-        anyhow::ensure!(parts.len() == 2 && parts[0] < parts[1], "--window {w}: give two times in seconds, T0,T1 with T0 < T1");
+        anyhow::ensure!(
+            parts.len() == 2 && parts[0] < parts[1],
+            "--window {w}: give two times in seconds, T0,T1 with T0 < T1"
+        );
         options.fit.window_s = Some([parts[0], parts[1]]);
     }
     let mut analysis = analyze(file, species, &options)?;
@@ -26,7 +39,8 @@ pub fn analyze_trajectory(file: &Path, species: Option<&str>, window: Option<&st
         println!("{}", thicket_analysis::sweep::CAUTION);
     }
     if let Some(prefix) = plot {
-        let written = thicket_analysis::plot::write_plots(prefix, &analysis.msd, report).with_context(|| format!("writing plots {}_*", prefix.display()))?;
+        let written = thicket_analysis::plot::write_plots(prefix, &analysis.msd, report)
+            .with_context(|| format!("writing plots {}_*", prefix.display()))?;
         for p in written {
             eprintln!("wrote {}", p.display());
         }

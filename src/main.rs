@@ -8,6 +8,8 @@ mod models;
 mod progress;
 mod run;
 mod sweep;
+mod tracks;
+mod validate;
 
 use clap::{Parser, Subcommand};
 use std::path::PathBuf;
@@ -70,9 +72,29 @@ enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// Synthetic single-particle tracks: simulate, image with the scenario's [camera], write CSV + HDF5 with ground truth.
+    Tracks {
+        /// Scenario file (TOML) with a [camera] section.
+        config: PathBuf,
+        /// CSV of detections; the HDF5 file with the truth goes beside it (.h5), the trajectory as .trajectory.h5.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Override a scenario key by dotted path, e.g. --set camera.exposure_s=0.005.
+        #[arg(long = "set", value_name = "KEY=VALUE")]
+        sets: Vec<String>,
+        /// Worker threads for the simulation (default: all cores). Results do not depend on it.
+        #[arg(long)]
+        threads: Option<usize>,
+        /// Overwrite existing outputs.
+        #[arg(long)]
+        force: bool,
+        /// Image an existing trajectory of the same scenario instead of simulating (only [camera] may differ).
+        #[arg(long)]
+        trajectory: Option<PathBuf>,
+    },
     /// Analyse a trajectory: MSD, D_eff with its 95 % interval, α, models.
     Analyze {
-        /// Trajectory (HDF5, H5MD layout).
+        /// Trajectory (HDF5, H5MD layout), or a tracks CSV from `thicket tracks` (estimates against the truth beside it).
         file: PathBuf,
         /// Print one JSON object instead of a table.
         #[arg(long)]
@@ -107,6 +129,12 @@ enum Command {
         #[arg(long)]
         force: bool,
     },
+    /// Run a fixed set of published checks at modest size and report each (exit 1 on a failure).
+    Validate {
+        /// Print one JSON object instead of a table.
+        #[arg(long)]
+        json: bool,
+    },
     /// Run the built-in demonstration end to end and leave a report behind.
     Demo {
         /// Output folder.
@@ -121,14 +149,77 @@ enum Command {
 fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match cli.command {
-        Command::Run { config, out, sets, threads, force, resume } => run::run(&config, out, &sets, threads, force, resume),
+        Command::Run {
+            config,
+            out,
+            sets,
+            threads,
+            force,
+            resume,
+        } => run::run(&config, out, &sets, threads, force, resume),
         Command::Check { config, sets, json } => check::check(&config, &sets, json),
-        Command::Models { phi, size_ratio, lambda, json } => models::models(&phi, size_ratio, &lambda, json),
-        Command::Analyze { file, json, plot, species, window, d0 } => {
-            analyze::analyze_trajectory(&file, species.as_deref(), window.as_deref(), d0, plot.as_deref(), json)
+        Command::Models {
+            phi,
+            size_ratio,
+            lambda,
+            json,
+        } => models::models(&phi, size_ratio, &lambda, json),
+        Command::Analyze {
+            file,
+            json,
+            plot,
+            species,
+            window,
+            d0,
+        } if file
+            .extension()
+            .is_some_and(|e| e.eq_ignore_ascii_case("csv")) =>
+        {
+            tracks::analyze_tracks_csv(
+                &file,
+                json,
+                plot.is_some() || species.is_some() || window.is_some() || d0.is_some(),
+            )
         }
-        Command::Sweep { sweep, out, shard, merge, force } => sweep::sweep(&sweep, &out, shard.as_deref(), merge, force),
+        Command::Analyze {
+            file,
+            json,
+            plot,
+            species,
+            window,
+            d0,
+        } => analyze::analyze_trajectory(
+            &file,
+            species.as_deref(),
+            window.as_deref(),
+            d0,
+            plot.as_deref(),
+            json,
+        ),
+        Command::Sweep {
+            sweep,
+            out,
+            shard,
+            merge,
+            force,
+        } => sweep::sweep(&sweep, &out, shard.as_deref(), merge, force),
+        Command::Validate { json } => validate::validate(json),
         Command::Demo { out, force } => demo::demo(&out, force),
+        Command::Tracks {
+            config,
+            out,
+            sets,
+            threads,
+            force,
+            trajectory,
+        } => tracks::tracks(&tracks::TracksArgs {
+            config,
+            out,
+            sets,
+            threads,
+            force,
+            trajectory,
+        }),
     };
     match result {
         Ok(code) => code,

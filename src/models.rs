@@ -17,8 +17,13 @@ pub fn parse_list(flag: &str, text: &str) -> Result<Vec<f64>> {
 }
 
 /// Model name → value, as reports and JSON print them.
-pub fn as_map(predictions: &[models::ModelPrediction]) -> serde_json::Map<String, serde_json::Value> {
-    predictions.iter().map(|m| (m.name.to_string(), json!(m.value))).collect()
+pub fn as_map(
+    predictions: &[models::ModelPrediction],
+) -> serde_json::Map<String, serde_json::Value> {
+    predictions
+        .iter()
+        .map(|m| (m.name.to_string(), json!(m.value)))
+        .collect()
 }
 
 /// Prints crowding, fibre and pore model values.
@@ -34,12 +39,17 @@ pub fn models(phi: &str, size_ratio: f64, lambda: &str, as_json: bool) -> Result
             format!("--phi {p} with --size-ratio {size_ratio}: the excluded fraction φ(1+a/b)³ = {phi_excl:.4} must be below 1")
         })?;
         let conductivity = models::maxwell_conductivity(phi_excl)?;
-        let fibres = models::fibre_predictions(p, size_ratio, 1.0).with_context(|| format!("--phi {p}: must lie in [0, 1)"))?;
+        let fibres = models::fibre_predictions(p, size_ratio, 1.0)
+            .with_context(|| format!("--phi {p}: must lie in [0, 1)"))?;
         crowd.push((p, phi_excl, spheres, conductivity, fibres));
     }
     let mut pores = Vec::new();
     for &l in &lambdas {
-        pores.push((l, models::pore_predictions(l).with_context(|| format!("--lambda {l}: λ = a/r_pore must lie in [0, 1)"))?));
+        pores.push((
+            l,
+            models::pore_predictions(l)
+                .with_context(|| format!("--lambda {l}: λ = a/r_pore must lie in [0, 1)"))?,
+        ));
     }
     if as_json {
         let out = json!({
@@ -58,25 +68,36 @@ pub fn models(phi: &str, size_ratio: f64, lambda: &str, as_json: bool) -> Result
         println!("{}", serde_json::to_string_pretty(&out)?);
         return Ok(ExitCode::SUCCESS);
     }
-    println!("Tracer among fixed impermeable spheres, tracer/obstacle radius ratio a/b = {size_ratio}");
+    println!(
+        "Tracer among fixed impermeable spheres, tracer/obstacle radius ratio a/b = {size_ratio}"
+    );
     println!("(D_eff/D0 is the tracer self-diffusivity from the MSD; σ_eff/σ0 is the composite conductivity = (1−φ)·D_eff/D0)");
     for (p, pe, spheres, c, _) in &crowd {
         println!("  φ = {p:<6} excluded φ(1+a/b)³ = {pe:.4}");
         for m in spheres {
             println!("    {:<44} {:>8.4}   {}", m.name, m.value, m.source);
         }
-        println!("    {:<44} {:>8.4}   {}", "Maxwell conductivity sigma_eff/sigma0", c, "Maxwell (1873), conductivity form");
+        println!(
+            "    {:<44} {c:>8.4}   Maxwell (1873), conductivity form",
+            "Maxwell conductivity sigma_eff/sigma0"
+        );
     }
     println!("Tracer among random fibres, tracer/fibre radius ratio a/r_f = {size_ratio}");
     for (p, _, _, _, fibres) in &crowd {
         for m in fibres {
-            println!("  φ = {p:<6} {:<40} {:>8.4}   {}", m.name, m.value, m.source);
+            println!(
+                "  φ = {p:<6} {:<40} {:>8.4}   {}",
+                m.name, m.value, m.source
+            );
         }
     }
     println!("Sphere in a cylindrical pore, λ = a/r_pore");
     for (l, ms) in &pores {
         for m in ms {
-            println!("  λ = {l:<6} {:<40} {:>8.4}   {}", m.name, m.value, m.source);
+            println!(
+                "  λ = {l:<6} {:<40} {:>8.4}   {}",
+                m.name, m.value, m.source
+            );
         }
     }
     println!("These are model estimates, not a basis on their own for clinical, dosing or safety decisions.");

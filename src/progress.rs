@@ -10,9 +10,11 @@ pub fn bar(total: u64, what: &str) -> ProgressBar {
     }
     let bar = ProgressBar::new(total);
     bar.set_style(
-        ProgressStyle::with_template("{prefix} [{bar:40}] {percent:>3}%  {pos}/{len} steps  elapsed {elapsed}  left {eta}")
-            .unwrap_or_else(|_| ProgressStyle::default_bar())
-            .progress_chars("=> "),
+        ProgressStyle::with_template(
+            "{prefix} [{bar:40}] {percent:>3}%  {pos}/{len} steps  elapsed {elapsed}  left {eta}",
+        )
+        .unwrap_or_else(|_| ProgressStyle::default_bar())
+        .progress_chars("=> "),
     );
     bar.set_prefix(what.to_string());
     bar

@@ -14,14 +14,18 @@ const EXIT_INTERRUPTED: u8 = 130;
 
 /// Where the trajectory goes: `--out`, else `output.file`, else CONFIG with `.h5`.
 pub fn output_path(config: &Path, scenario: &Scenario, out: Option<PathBuf>) -> PathBuf {
-    out.or_else(|| scenario.output.file.clone()).unwrap_or_else(|| config.with_extension("h5"))
+    out.or_else(|| scenario.output.file.clone())
+        .unwrap_or_else(|| config.with_extension("h5"))
 }
 
 /// Sets the worker-thread count once for the process.
 pub fn set_threads(threads: Option<usize>) -> Result<()> {
     if let Some(n) = threads {
         anyhow::ensure!(n >= 1, "--threads {n}: the thread count must be at least 1");
-        rayon::ThreadPoolBuilder::new().num_threads(n).build_global().context("cannot start the worker threads")?;
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(n)
+            .build_global()
+            .context("cannot start the worker threads")?;
     }
     Ok(())
 }
@@ -30,12 +34,20 @@ pub fn set_threads(threads: Option<usize>) -> Result<()> {
 pub fn stop_flag() -> Result<Arc<AtomicBool>> {
     let stop = Arc::new(AtomicBool::new(false));
     let flag = stop.clone();
-    ctrlc::set_handler(move || flag.store(true, Ordering::Relaxed)).context("cannot install the interrupt handler")?;
+    ctrlc::set_handler(move || flag.store(true, Ordering::Relaxed))
+        .context("cannot install the interrupt handler")?;
     Ok(stop)
 }
 
 /// Runs a scenario file to completion or interruption.
-pub fn run(config: &Path, out: Option<PathBuf>, sets: &[String], threads: Option<usize>, force: bool, resume: bool) -> Result<ExitCode> {
+pub fn run(
+    config: &Path,
+    out: Option<PathBuf>,
+    sets: &[String],
+    threads: Option<usize>,
+    force: bool,
+    resume: bool,
+) -> Result<ExitCode> {
     set_threads(threads)?;
     let scenario = Scenario::load(config, sets)?;
     let out = output_path(config, &scenario, out);
@@ -44,12 +56,24 @@ pub fn run(config: &Path, out: Option<PathBuf>, sets: &[String], threads: Option
     }
     let stop = stop_flag()?;
     let bar = progress::bar(scenario.steps, "run");
-    let options = RunOptions { out: out.clone(), force, resume };
-    let outcome = thicket_engine::run::run(&scenario, &options, &stop, &mut |step, _| bar.set_position(step))?;
+    let options = RunOptions {
+        out: out.clone(),
+        force,
+        resume,
+    };
+    let outcome = thicket_engine::run::run(&scenario, &options, &stop, &mut |step, _| {
+        bar.set_position(step)
+    })?;
     bar.finish_and_clear();
     match outcome {
         RunOutcome::Completed { frames } => {
-            println!("wrote {} ({} frames, {} particles, {} steps)", out.display(), frames, scenario.particle_count(), scenario.steps);
+            println!(
+                "wrote {} ({} frames, {} particles, {} steps)",
+                out.display(),
+                frames,
+                scenario.particle_count(),
+                scenario.steps
+            );
             Ok(ExitCode::SUCCESS)
         }
         RunOutcome::Interrupted { step, frames } => {

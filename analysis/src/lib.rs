@@ -1,9 +1,12 @@
-pub mod models;
+pub mod camera;
 pub mod error;
 pub mod estimators;
+pub mod models;
 pub mod msd;
 pub mod plot;
 pub mod read;
 pub mod report;
 pub mod sweep;
 pub mod sweep_plot;
+pub mod tracks;
+pub mod validate;

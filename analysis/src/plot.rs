@@ -453,7 +453,9 @@ pub fn render_svg(fig: &Figure) -> String {
     }
     // Grid lines at decades (or linear ticks) of x and at the y ticks.
     let decades: Vec<f64> = if fig.x_log {
-        (lx0.ceil() as i32..=lx1.floor() as i32).map(|k| 10f64.powi(k)).collect()
+        (lx0.ceil() as i32..=lx1.floor() as i32)
+            .map(|k| 10f64.powi(k))
+            .collect()
     } else {
         linear_ticks(lx0, lx1)
     };
@@ -529,7 +531,11 @@ pub fn render_svg(fig: &Figure) -> String {
             top + ph,
             top + ph + 6.0,
             top + ph + 20.0,
-            if fig.x_log { format!("1e{}", x.log10().round() as i32) } else { fmt_tick(x) }
+            if fig.x_log {
+                format!("1e{}", x.log10().round() as i32)
+            } else {
+                fmt_tick(x)
+            }
         );
     }
     for &y in &yticks {
@@ -656,14 +662,22 @@ pub fn render_png(fig: &Figure, path: &Path, text: bool) -> Result<()> {
             .configure_mesh()
             .x_desc(fig.x_label.as_str())
             .y_desc(fig.y_label.as_str())
-            .x_label_formatter(&|x| if fig.x_log { format!("{:.0e}", 10f64.powf(*x)) } else { fmt_tick(*x) })
+            .x_label_formatter(&|x| {
+                if fig.x_log {
+                    format!("{:.0e}", 10f64.powf(*x))
+                } else {
+                    fmt_tick(*x)
+                }
+            })
             .label_style((FAMILY, 14))
             .draw()
             .map_err(|e| err(&e))?;
     } else {
         // Without a font: the frame and decade grid lines only.
         let decades: Vec<f64> = if fig.x_log {
-            (x0.ceil() as i32..=x1.floor() as i32).map(f64::from).collect()
+            (x0.ceil() as i32..=x1.floor() as i32)
+                .map(f64::from)
+                .collect()
         } else {
             linear_ticks(x0, x1)
         };

@@ -192,24 +192,32 @@ impl Sweep {
     /// # Errors
     /// [`SweepError::Spec`] or [`SweepError::GridKey`].
     pub fn load(file: &Path) -> Result<Self> {
-        let spec_err = |message: String| SweepError::Spec { file: file.to_path_buf(), message };
-        let text = std::fs::read_to_string(file).map_err(|e| spec_err(format!("cannot read the sweep file: {e}")))?;
-        let raw: RawSweep = toml::from_str(&text).map_err(|e| spec_err(e.to_string().trim_end().to_string()))?;
+        let spec_err = |message: String| SweepError::Spec {
+            file: file.to_path_buf(),
+            message,
+        };
+        let text = std::fs::read_to_string(file)
+            .map_err(|e| spec_err(format!("cannot read the sweep file: {e}")))?;
+        let raw: RawSweep =
+            toml::from_str(&text).map_err(|e| spec_err(e.to_string().trim_end().to_string()))?;
         let base = file.parent().unwrap_or(Path::new("."));
         let scenario_file = base.join(&raw.scenario);
         if raw.seeds.is_empty() {
             return Err(spec_err("key `seeds` = []: give at least one seed".into()));
         }
         if raw.grid.is_empty() {
-            return Err(spec_err("section [grid] is empty: give at least one key with a list of values".into()));
+            return Err(spec_err(
+                "section [grid] is empty: give at least one key with a list of values".into(),
+            ));
         }
         let mut keys = Vec::new();
         let mut lists = Vec::new();
         for (key, value) in &raw.grid {
-            let list = value
-                .as_array()
-                .filter(|a| !a.is_empty())
-                .ok_or_else(|| spec_err(format!("grid key `{key}` = {value}: give a non-empty list of values")))?;
+            let list = value.as_array().filter(|a| !a.is_empty()).ok_or_else(|| {
+                spec_err(format!(
+                    "grid key `{key}` = {value}: give a non-empty list of values"
+                ))
+            })?;
             keys.push(key.clone());
             lists.push(list.clone());
         }
@@ -274,8 +282,18 @@ fn point_json(dir: &Path, point: usize, seed: i64) -> PathBuf {
 ///
 /// # Errors
 /// The first failing run or analysis, or unwritable output.
-pub fn run_sweep(sweep: &Sweep, dir: &Path, shard: (usize, usize), force: bool, stop: &AtomicBool, progress: &(dyn Fn(usize, usize) + Sync)) -> Result<Vec<PointResult>> {
-    let out_err = |path: &Path, e: std::io::Error| SweepError::Output { path: path.to_path_buf(), message: e.to_string() };
+pub fn run_sweep(
+    sweep: &Sweep,
+    dir: &Path,
+    shard: (usize, usize),
+    force: bool,
+    stop: &AtomicBool,
+    progress: &(dyn Fn(usize, usize) + Sync),
+) -> Result<Vec<PointResult>> {
+    let out_err = |path: &Path, e: std::io::Error| SweepError::Output {
+        path: path.to_path_buf(),
+        message: e.to_string(),
+    };
     std::fs::create_dir_all(dir.join("points")).map_err(|e| out_err(dir, e))?;
     std::fs::create_dir_all(dir.join("runs")).map_err(|e| out_err(dir, e))?;
     let (shard_i, shard_n) = shard;
@@ -312,29 +330,58 @@ pub fn run_sweep(sweep: &Sweep, dir: &Path, shard: (usize, usize), force: bool, 
 }
 
 fn read_point(path: &Path) -> Result<PointResult> {
-    let text = std::fs::read_to_string(path).map_err(|e| SweepError::Output { path: path.to_path_buf(), message: e.to_string() })?;
-    serde_json::from_str(&text).map_err(|e| SweepError::Output { path: path.to_path_buf(), message: format!("not a sweep point result ({e}); delete it to rerun the point") })
+    let text = std::fs::read_to_string(path).map_err(|e| SweepError::Output {
+        path: path.to_path_buf(),
+        message: e.to_string(),
+    })?;
+    serde_json::from_str(&text).map_err(|e| SweepError::Output {
+        path: path.to_path_buf(),
+        message: format!("not a sweep point result ({e}); delete it to rerun the point"),
+    })
 }
 
 /// Runs and analyses one (point, seed); `None` if stopped by `stop`.
-fn run_point(sweep: &Sweep, dir: &Path, point: usize, seed: i64, stop: &AtomicBool) -> Result<Option<PointResult>> {
-    let fail = |message: String| SweepError::Point { point, seed, message };
-    let scenario = Scenario::load(&sweep.scenario_file, &sweep.overrides(point, seed)).map_err(|e| fail(e.to_string()))?;
+fn run_point(
+    sweep: &Sweep,
+    dir: &Path,
+    point: usize,
+    seed: i64,
+    stop: &AtomicBool,
+) -> Result<Option<PointResult>> {
+    let fail = |message: String| SweepError::Point {
+        point,
+        seed,
+        message,
+    };
+    let scenario = Scenario::load(&sweep.scenario_file, &sweep.overrides(point, seed))
+        .map_err(|e| fail(e.to_string()))?;
     let rel = format!("runs/p{point:04}_s{seed}.h5");
     let out = dir.join(&rel);
-    let options = RunOptions { out: out.clone(), force: true, resume: false };
+    let options = RunOptions {
+        out: out.clone(),
+        force: true,
+        resume: false,
+    };
     match run(&scenario, &options, stop, &mut |_, _| {}).map_err(|e| fail(e.to_string()))? {
         RunOutcome::Completed { .. } => {}
         RunOutcome::Interrupted { .. } => return Ok(None),
     }
-    let analysis = analyze(&out, sweep.species.as_deref(), &AnalyzeOptions::default()).map_err(|e| fail(e.to_string()))?;
+    let analysis = analyze(&out, sweep.species.as_deref(), &AnalyzeOptions::default())
+        .map_err(|e| fail(e.to_string()))?;
     let report = analysis.report;
-    let d0 = report.d0_m2_per_s.ok_or_else(|| fail("the trajectory does not give D0".into()))?;
+    let d0 = report
+        .d0_m2_per_s
+        .ok_or_else(|| fail("the trajectory does not give D0".into()))?;
     let species_name = report.species.clone();
     let result = PointResult {
         point,
         seed,
-        values: sweep.keys.iter().cloned().zip(sweep.points[point].iter().cloned()).collect(),
+        values: sweep
+            .keys
+            .iter()
+            .cloned()
+            .zip(sweep.points[point].iter().cloned())
+            .collect(),
         d0_m2_per_s: d0,
         d_eff_m2_per_s: report.d_eff_m2_per_s,
         d_eff_ci95_m2_per_s: report.d_eff_ci95_m2_per_s,
@@ -347,7 +394,12 @@ fn run_point(sweep: &Sweep, dir: &Path, point: usize, seed: i64, stop: &AtomicBo
     let text = serde_json::to_string_pretty(&result).map_err(|e| fail(e.to_string()))?;
     // Write then rename, so a killed sweep never leaves half a result.
     let tmp = json_path.with_extension("json.tmp");
-    std::fs::write(&tmp, text).and_then(|_| std::fs::rename(&tmp, &json_path)).map_err(|e| SweepError::Output { path: json_path.clone(), message: e.to_string() })?;
+    std::fs::write(&tmp, text)
+        .and_then(|_| std::fs::rename(&tmp, &json_path))
+        .map_err(|e| SweepError::Output {
+            path: json_path.clone(),
+            message: e.to_string(),
+        })?;
     Ok(Some(result))
 }
 
@@ -392,7 +444,8 @@ fn combine(point: usize, results: &[PointResult]) -> SummaryRow {
     let mut wsum = 0.0;
     let mut dsum = 0.0;
     for r in results {
-        let se = ((r.d_eff_ci95_m2_per_s[1] - r.d_eff_ci95_m2_per_s[0]) / (2.0 * z)).max(f64::MIN_POSITIVE);
+        let se = ((r.d_eff_ci95_m2_per_s[1] - r.d_eff_ci95_m2_per_s[0]) / (2.0 * z))
+            .max(f64::MIN_POSITIVE);
         let w = 1.0 / (se * se);
         wsum += w;
         dsum += w * r.d_eff_m2_per_s;
@@ -403,7 +456,11 @@ fn combine(point: usize, results: &[PointResult]) -> SummaryRow {
         // Widen to the observed scatter between seeds when it exceeds the within-run errors.
         let n = results.len() as f64;
         let mean = results.iter().map(|r| r.d_eff_m2_per_s).sum::<f64>() / n;
-        let var = results.iter().map(|r| (r.d_eff_m2_per_s - mean).powi(2)).sum::<f64>() / (n - 1.0);
+        let var = results
+            .iter()
+            .map(|r| (r.d_eff_m2_per_s - mean).powi(2))
+            .sum::<f64>()
+            / (n - 1.0);
         se = se.max((var / n).sqrt());
     }
     let d0 = results[0].d0_m2_per_s;
@@ -433,7 +490,13 @@ fn fit_gamma(sweep: &Sweep, rows: &[SummaryRow]) -> (Option<f64>, Option<f64>) {
     let mut ratios = Vec::new();
     let mut weights = Vec::new();
     for r in rows {
-        let Some(phi) = r.values.get(key).and_then(|v| v.as_float().or(v.as_integer().map(|i| i as f64))) else { continue };
+        let Some(phi) = r
+            .values
+            .get(key)
+            .and_then(|v| v.as_float().or(v.as_integer().map(|i| i as f64)))
+        else {
+            continue;
+        };
         if phi <= 0.0 || phi >= 1.0 || r.d_eff_over_d0 <= 0.0 {
             continue;
         }
@@ -454,12 +517,20 @@ fn fit_gamma(sweep: &Sweep, rows: &[SummaryRow]) -> (Option<f64>, Option<f64>) {
 /// # Errors
 /// Unwritable files.
 pub fn write_summary(summary: &Summary, dir: &Path) -> Result<Vec<PathBuf>> {
-    let out_err = |path: &Path, e: String| SweepError::Output { path: path.to_path_buf(), message: e };
+    let out_err = |path: &Path, e: String| SweepError::Output {
+        path: path.to_path_buf(),
+        message: e,
+    };
     let json_path = dir.join("summary.json");
-    let json = serde_json::to_string_pretty(summary).map_err(|e| out_err(&json_path, e.to_string()))?;
+    let json =
+        serde_json::to_string_pretty(summary).map_err(|e| out_err(&json_path, e.to_string()))?;
     std::fs::write(&json_path, json).map_err(|e| out_err(&json_path, e.to_string()))?;
     let model_names: Vec<String> = {
-        let mut names: Vec<String> = summary.points.iter().flat_map(|r| r.models.keys().cloned()).collect();
+        let mut names: Vec<String> = summary
+            .points
+            .iter()
+            .flat_map(|r| r.models.keys().cloned())
+            .collect();
         names.sort();
         names.dedup();
         names
@@ -468,23 +539,58 @@ pub fn write_summary(summary: &Summary, dir: &Path) -> Result<Vec<PathBuf>> {
     let mut header: Vec<String> = vec!["point".into()];
     header.extend(summary.keys.iter().cloned());
     header.extend(
-        ["seeds", "d0_m2_per_s", "d_eff_m2_per_s", "d_eff_ci95_low_m2_per_s", "d_eff_ci95_high_m2_per_s", "d_eff_over_d0", "d_eff_over_d0_ci95_low", "d_eff_over_d0_ci95_high", "alpha_long"]
-            .map(String::from),
+        [
+            "seeds",
+            "d0_m2_per_s",
+            "d_eff_m2_per_s",
+            "d_eff_ci95_low_m2_per_s",
+            "d_eff_ci95_high_m2_per_s",
+            "d_eff_over_d0",
+            "d_eff_over_d0_ci95_low",
+            "d_eff_over_d0_ci95_high",
+            "alpha_long",
+        ]
+        .map(String::from),
     );
     header.extend(model_names.iter().map(|m| format!("model: {m}")));
-    csv.push_str(&header.iter().map(|h| csv_field(h)).collect::<Vec<_>>().join(","));
+    csv.push_str(
+        &header
+            .iter()
+            .map(|h| csv_field(h))
+            .collect::<Vec<_>>()
+            .join(","),
+    );
     csv.push('\n');
     for r in &summary.points {
         let mut fields = vec![r.point.to_string()];
         for k in &summary.keys {
-            fields.push(r.values.get(k).map(|v| csv_field(&v.to_string())).unwrap_or_default());
+            fields.push(
+                r.values
+                    .get(k)
+                    .map(|v| csv_field(&v.to_string()))
+                    .unwrap_or_default(),
+            );
         }
-        for v in [r.d0_m2_per_s, r.d_eff_m2_per_s, r.d_eff_ci95_m2_per_s[0], r.d_eff_ci95_m2_per_s[1], r.d_eff_over_d0, r.d_eff_over_d0_ci95[0], r.d_eff_over_d0_ci95[1], r.alpha_long] {
+        for v in [
+            r.d0_m2_per_s,
+            r.d_eff_m2_per_s,
+            r.d_eff_ci95_m2_per_s[0],
+            r.d_eff_ci95_m2_per_s[1],
+            r.d_eff_over_d0,
+            r.d_eff_over_d0_ci95[0],
+            r.d_eff_over_d0_ci95[1],
+            r.alpha_long,
+        ] {
             fields.push(format!("{v:e}"));
         }
         fields.insert(1 + summary.keys.len(), r.seeds.to_string());
         for m in &model_names {
-            fields.push(r.models.get(m).map(|v| format!("{v:.6}")).unwrap_or_default());
+            fields.push(
+                r.models
+                    .get(m)
+                    .map(|v| format!("{v:.6}"))
+                    .unwrap_or_default(),
+            );
         }
         csv.push_str(&fields.join(","));
         csv.push('\n');

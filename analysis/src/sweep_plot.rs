@@ -6,7 +6,14 @@ use crate::plot::{png_font_available, render_png, render_svg, Band, Colour, Curv
 use crate::sweep::{Summary, SweepError};
 use std::path::{Path, PathBuf};
 
-const PALETTE: [(u8, u8, u8); 6] = [(214, 39, 40), (44, 160, 44), (148, 103, 189), (140, 86, 75), (227, 119, 194), (127, 127, 127)];
+const PALETTE: [(u8, u8, u8); 6] = [
+    (214, 39, 40),
+    (44, 160, 44),
+    (148, 103, 189),
+    (140, 86, 75),
+    (227, 119, 194),
+    (127, 127, 127),
+];
 
 fn x_value(summary: &Summary, row: &crate::sweep::SummaryRow) -> Option<f64> {
     let v = row.values.get(&summary.keys[0])?;
@@ -15,7 +22,11 @@ fn x_value(summary: &Summary, row: &crate::sweep::SummaryRow) -> Option<f64> {
 
 /// The sweep figure (linear axes).
 pub fn sweep_figure(summary: &Summary) -> Figure {
-    let mut pts: Vec<(f64, &crate::sweep::SummaryRow)> = summary.points.iter().filter_map(|r| Some((x_value(summary, r)?, r))).collect();
+    let mut pts: Vec<(f64, &crate::sweep::SummaryRow)> = summary
+        .points
+        .iter()
+        .filter_map(|r| Some((x_value(summary, r)?, r)))
+        .collect();
     pts.sort_by(|a, b| a.0.total_cmp(&b.0));
     let xs: Vec<f64> = pts.iter().map(|p| p.0).collect();
     let lo = xs.first().copied().unwrap_or(0.0);
@@ -23,7 +34,10 @@ pub fn sweep_figure(summary: &Summary) -> Figure {
     let pad = ((hi - lo) * 0.05).max(1e-3);
     let mut curves = vec![Curve {
         points: pts.iter().map(|(x, r)| (*x, r.d_eff_over_d0)).collect(),
-        colour: Colour { rgb: (31, 119, 180), opacity: 1.0 },
+        colour: Colour {
+            rgb: (31, 119, 180),
+            opacity: 1.0,
+        },
         label: "simulation D_eff/D0".into(),
         dashed: false,
         markers: true,
@@ -32,17 +46,42 @@ pub fn sweep_figure(summary: &Summary) -> Figure {
     names.sort();
     names.dedup();
     for (i, name) in names.iter().enumerate() {
-        let line: Vec<(f64, f64)> = pts.iter().filter_map(|(x, r)| Some((*x, *r.models.get(*name)?))).collect();
-        curves.push(Curve { points: line, colour: Colour { rgb: PALETTE[i % PALETTE.len()], opacity: 1.0 }, label: (*name).clone(), dashed: true, markers: false });
+        let line: Vec<(f64, f64)> = pts
+            .iter()
+            .filter_map(|(x, r)| Some((*x, *r.models.get(*name)?)))
+            .collect();
+        curves.push(Curve {
+            points: line,
+            colour: Colour {
+                rgb: PALETTE[i % PALETTE.len()],
+                opacity: 1.0,
+            },
+            label: (*name).clone(),
+            dashed: true,
+            markers: false,
+        });
     }
     if let Some(gamma) = summary.free_volume_gamma {
         let line: Vec<(f64, f64)> = (0..=50)
             .map(|k| lo + (hi - lo) * k as f64 / 50.0)
             .filter_map(|phi| Some((phi, models::free_volume(phi, gamma).ok()?)))
             .collect();
-        curves.push(Curve { points: line, colour: Colour { rgb: (23, 190, 207), opacity: 1.0 }, label: format!("free volume, fitted γ = {gamma:.3}"), dashed: true, markers: false });
+        curves.push(Curve {
+            points: line,
+            colour: Colour {
+                rgb: (23, 190, 207),
+                opacity: 1.0,
+            },
+            label: format!("free volume, fitted γ = {gamma:.3}"),
+            dashed: true,
+            markers: false,
+        });
     }
-    let ymax = pts.iter().map(|(_, r)| r.d_eff_over_d0_ci95[1]).chain(pts.iter().flat_map(|(_, r)| r.models.values().copied())).fold(1.0_f64, f64::max);
+    let ymax = pts
+        .iter()
+        .map(|(_, r)| r.d_eff_over_d0_ci95[1])
+        .chain(pts.iter().flat_map(|(_, r)| r.models.values().copied()))
+        .fold(1.0_f64, f64::max);
     Figure {
         title: summary.title.clone(),
         x_label: summary.keys[0].clone(),
@@ -52,8 +91,14 @@ pub fn sweep_figure(summary: &Summary) -> Figure {
         x_log: false,
         x_spans: vec![],
         bands: vec![Band {
-            points: pts.iter().map(|(x, r)| (*x, r.d_eff_over_d0_ci95[0], r.d_eff_over_d0_ci95[1])).collect(),
-            colour: Colour { rgb: (31, 119, 180), opacity: 0.2 },
+            points: pts
+                .iter()
+                .map(|(x, r)| (*x, r.d_eff_over_d0_ci95[0], r.d_eff_over_d0_ci95[1]))
+                .collect(),
+            colour: Colour {
+                rgb: (31, 119, 180),
+                opacity: 0.2,
+            },
             label: "95 % interval".into(),
         }],
         hlines: vec![],
@@ -68,23 +113,40 @@ pub fn sweep_figure(summary: &Summary) -> Figure {
 pub fn write_sweep_plots(summary: &Summary, prefix: &Path) -> Result<Vec<PathBuf>, SweepError> {
     let fig = sweep_figure(summary);
     let svg = prefix.with_extension("svg");
-    std::fs::write(&svg, render_svg(&fig)).map_err(|e| SweepError::Output { path: svg.clone(), message: e.to_string() })?;
+    std::fs::write(&svg, render_svg(&fig)).map_err(|e| SweepError::Output {
+        path: svg.clone(),
+        message: e.to_string(),
+    })?;
     let png = prefix.with_extension("png");
-    render_png(&fig, &png, png_font_available()).map_err(|e| SweepError::Output { path: png.clone(), message: e.to_string() })?;
+    render_png(&fig, &png, png_font_available()).map_err(|e| SweepError::Output {
+        path: png.clone(),
+        message: e.to_string(),
+    })?;
     Ok(vec![svg, png])
 }
 
 /// A plain-text table of the summary.
 pub fn summary_table(summary: &Summary) -> String {
     let mut out = String::new();
-    let mut names: Vec<&String> = summary.points.iter().flat_map(|r| r.models.keys()).collect();
+    let mut names: Vec<&String> = summary
+        .points
+        .iter()
+        .flat_map(|r| r.models.keys())
+        .collect();
     names.sort();
     names.dedup();
-    let key_w = summary.keys.iter().map(|k| k.len().max(8)).collect::<Vec<_>>();
+    let key_w = summary
+        .keys
+        .iter()
+        .map(|k| k.len().max(8))
+        .collect::<Vec<_>>();
     for (k, w) in summary.keys.iter().zip(&key_w) {
         out.push_str(&format!("  {k:>w$}"));
     }
-    out.push_str(&format!("  {:>5}  {:>9}  {:>19}  {:>6}", "seeds", "D_eff/D0", "95 % interval", "α"));
+    out.push_str(&format!(
+        "  {:>5}  {:>9}  {:>19}  {:>6}",
+        "seeds", "D_eff/D0", "95 % interval", "α"
+    ));
     for (i, _) in names.iter().enumerate() {
         out.push_str(&format!("  {:>8}", format!("model {}", i + 1)));
     }
@@ -96,10 +158,17 @@ pub fn summary_table(summary: &Summary) -> String {
         }
         out.push_str(&format!(
             "  {:>5}  {:>9.4}  [{:>8.4}, {:>8.4}]  {:>6.3}",
-            r.seeds, r.d_eff_over_d0, r.d_eff_over_d0_ci95[0], r.d_eff_over_d0_ci95[1], r.alpha_long
+            r.seeds,
+            r.d_eff_over_d0,
+            r.d_eff_over_d0_ci95[0],
+            r.d_eff_over_d0_ci95[1],
+            r.alpha_long
         ));
         for n in &names {
-            out.push_str(&format!("  {:>8.4}", r.models.get(*n).copied().unwrap_or(f64::NAN)));
+            out.push_str(&format!(
+                "  {:>8.4}",
+                r.models.get(*n).copied().unwrap_or(f64::NAN)
+            ));
         }
         out.push('\n');
     }

@@ -7,8 +7,12 @@
 //! file, the key, the value and the allowed range. Nothing downstream sees an
 //! unchecked value.
 
+use crate::crowders::Sweep;
 use crate::error::{EngineError, Result};
+use crate::fibres::{FibreSpec, Orientation};
+use crate::geometry::Geometry;
 use crate::medium;
+use crate::obstacles::{Generator, ObstacleSpec, RadiusDistribution, Target};
 use serde::{Deserialize, Serialize};
 use std::path::{Path, PathBuf};
 
@@ -19,6 +23,8 @@ pub const MAX_STEPS: i64 = 1_000_000_000_000;
 /// Step length as a fraction of the smallest feature above which `check` warns
 /// (a tenth: common practice, REFERENCE.md "Numerics").
 pub const STEP_WARNING_FRACTION: f64 = 0.1;
+/// The largest number of fixed obstacles (spheres or fibres) a scenario may ask for.
+pub const MAX_OBSTACLES: i64 = 20_000_000;
 
 /// Scenario as written in TOML, before validation.
 #[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
@@ -39,6 +45,143 @@ pub struct RawScenario {
     /// Trajectory output.
     #[serde(default)]
     pub output: RawOutput,
+    /// Synthetic camera for `thicket tracks`; absent for plain runs.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub camera: Option<RawCamera>,
+    /// Fixed spherical obstacles.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub obstacles: Option<RawObstacles>,
+    /// Fixed fibres.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fibres: Option<RawFibres>,
+    /// Confinement: walls, slit, cylindrical pore or membrane (see `geometry`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub geometry: Option<RawGeometry>,
+}
+
+/// `[geometry]`: confining walls, as written (validated by
+/// [`crate::geometry::Geometry::from_raw`]). Sizes along z come from
+/// `box.edges_nm[2]`: the slit's gap, the plane wall's box height, the
+/// membrane's total height (slab centred, reservoirs above and below).
+#[derive(Debug, Clone, Default, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct RawGeometry {
+    /// "plane_wall", "slit", "cylinder" or "membrane".
+    pub kind: String,
+    /// Hydrodynamic wall corrections of D with the Itô drift. By default, this is disabled.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub wall_hydrodynamics: Option<bool>,
+    /// "brenner" (default) or "bevan_prieve", with `wall_hydrodynamics = true`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub perpendicular_model: Option<String>,
+    /// Pore radius in nm ("cylinder"; "membrane" with arranged pores).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pore_radius_nm: Option<f64>,
+    /// Slab thickness (pore length) in nm ("membrane").
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub thickness_nm: Option<f64>,
+    /// Pores along x in a square arrangement ("membrane", default 1).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pores_x: Option<i64>,
+    /// Pores along y in a square arrangement ("membrane", default 1).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pores_y: Option<i64>,
+    /// CSV of pores `x_nm,y_nm,radius_nm` ("membrane"), instead of an
+    /// arrangement; relative to the scenario's folder.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pores_file: Option<String>,
+    /// Bath concentration at z = L_z ("membrane", default 1).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub top_concentration_mol_per_m3: Option<f64>,
+    /// Bath concentration at z = 0 ("membrane", default 0).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub bottom_concentration_mol_per_m3: Option<f64>,
+    /// Start of the steady-state window for flux averages, s ("membrane",
+    /// default half the run).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub flux_after_s: Option<f64>,
+}
+
+impl RawGeometry {
+    /// The kind-specific keys and whether each was given.
+    pub fn given_kind_keys(&self) -> [(&'static str, bool); 8] {
+        [
+            ("pore_radius_nm", self.pore_radius_nm.is_some()),
+            ("thickness_nm", self.thickness_nm.is_some()),
+            ("pores_x", self.pores_x.is_some()),
+            ("pores_y", self.pores_y.is_some()),
+            ("pores_file", self.pores_file.is_some()),
+            (
+                "top_concentration_mol_per_m3",
+                self.top_concentration_mol_per_m3.is_some(),
+            ),
+            (
+                "bottom_concentration_mol_per_m3",
+                self.bottom_concentration_mol_per_m3.is_some(),
+            ),
+            ("flux_after_s", self.flux_after_s.is_some()),
+        ]
+    }
+}
+
+/// `[obstacles]`: fixed spheres.
+#[derive(Debug, Clone, Default, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct RawObstacles {
+    /// "random" (random sequential addition, non-overlapping), "poisson"
+    /// (freely overlapping), "simple_cubic", "fcc", or "file".
+    pub placement: String,
+    /// Target volume fraction (covered fraction for "poisson"); give this or `count`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub volume_fraction: Option<f64>,
+    /// Target number of obstacles; give this or `volume_fraction`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub count: Option<i64>,
+    /// Radius in nm ("fixed"), or the median radius ("lognormal").
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub radius_nm: Option<f64>,
+    /// "fixed" (default), "uniform" or "lognormal".
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub radius_distribution: Option<String>,
+    /// Smallest radius in nm ("uniform"; optional truncation for "lognormal").
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub radius_min_nm: Option<f64>,
+    /// Largest radius in nm ("uniform"; optional truncation for "lognormal").
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub radius_max_nm: Option<f64>,
+    /// Standard deviation of ln(radius) ("lognormal").
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub radius_log_sd: Option<f64>,
+    /// CSV of x_nm,y_nm,z_nm,radius_nm ("file"); relative to the scenario's folder.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub file: Option<String>,
+    /// Whether obstacles read from a file may overlap ("file"; default false).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub allow_overlap: Option<bool>,
+}
+
+/// `[fibres]`: fixed straight cylinders.
+#[derive(Debug, Clone, Default, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct RawFibres {
+    /// Fibre radius in nm.
+    pub radius_nm: f64,
+    /// Nominal volume fraction N·π r²·ℓ / V; give this or `count`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub volume_fraction: Option<f64>,
+    /// Number of fibres; give this or `volume_fraction`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub count: Option<i64>,
+    /// "isotropic" (default) or "aligned".
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub orientation: Option<String>,
+    /// Axis of aligned fibres: "x", "y" or "z" (default "z").
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub axis: Option<String>,
+    /// Length of each fibre's axis in nm (default: the box edge along the
+    /// axis when aligned, the smallest edge when isotropic).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub length_nm: Option<f64>,
 }
 
 /// `[medium]`.
@@ -49,7 +192,11 @@ pub struct RawMedium {
     #[serde(rename = "temperature_K")]
     pub temperature_k: f64,
     /// Dynamic viscosity; omitted means water at the temperature.
-    #[serde(rename = "viscosity_Pa_s", default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        rename = "viscosity_Pa_s",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
     pub viscosity_pa_s: Option<f64>,
 }
 
@@ -81,6 +228,10 @@ pub struct RawSpecies {
     /// Explicit free diffusivity, overriding Stokes–Einstein.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub diffusivity_m2_per_s: Option<f64>,
+    /// "tracer" (default: no contacts with other tracers) or "crowder" (hard
+    /// contacts with every particle).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub role: Option<String>,
 }
 
 /// `[integrator]`.
@@ -91,6 +242,10 @@ pub struct RawIntegrator {
     pub dt_s: f64,
     /// Number of steps.
     pub steps: i64,
+    /// Update order with crowders: "parallel" (default) or "sequential"
+    /// (the reference sweep); both give the same result.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sweep: Option<String>,
 }
 
 /// `[output]`.
@@ -135,6 +290,9 @@ pub struct Species {
     pub d0_m2_per_s: f64,
     /// Whether `d0_m2_per_s` was given explicitly rather than from Stokes–Einstein.
     pub d0_explicit: bool,
+    /// True for a crowder (hard contacts with every particle); tracers only
+    /// touch crowders, obstacles and walls.
+    pub crowder: bool,
 }
 
 impl Species {
@@ -194,6 +352,16 @@ pub struct Scenario {
     pub steps: u64,
     /// Output settings.
     pub output: OutputSpec,
+    /// Validated `[camera]` section, if the scenario has one.
+    pub camera: Option<CameraSpec>,
+    /// Fixed spherical obstacles, if any.
+    pub obstacles: Option<ObstacleSpec>,
+    /// Fixed fibres, if any.
+    pub fibres: Option<FibreSpec>,
+    /// Update order of particles with hard contacts.
+    pub sweep: Sweep,
+    /// Confining geometry, if any.
+    pub geometry: Option<Geometry>,
     /// The resolved scenario (defaults filled in) as TOML text.
     pub resolved_toml: String,
 }
@@ -231,10 +399,71 @@ impl Scenario {
         self.steps / self.output.record_every_steps + 1
     }
 
-    /// True when particles can touch something (a wall), where the step
-    /// length matters; free periodic diffusion is exact for any Δt.
+    /// True when particles can touch something (a wall, an obstacle, a
+    /// crowder), where the step length matters; free periodic diffusion is
+    /// exact for any Δt.
     pub fn has_contacts(&self) -> bool {
         self.sim_box.periodic.iter().any(|p| !p)
+            || self.obstacles.is_some()
+            || self.fibres.is_some()
+            || self.has_crowders()
+    }
+
+    /// True when some species has hard contacts with other particles.
+    pub fn has_crowders(&self) -> bool {
+        self.species.iter().any(|s| s.crowder)
+    }
+
+    /// Smallest length over which species `s` meets a contact: its radius at
+    /// walls, the contact distance a + a' at a particle it touches, a + b at
+    /// a sphere of radius b, a + r_f at a fibre.
+    pub fn smallest_feature_nm(&self, s: &Species) -> f64 {
+        let mut feature = f64::INFINITY;
+        if self.sim_box.periodic.iter().any(|p| !p) {
+            feature = feature.min(s.radius_nm);
+        }
+        // A pair meets at the contact distance a_i + a_j: that is the curvature to resolve.
+        for other in self.species.iter().filter(|o| s.crowder || o.crowder) {
+            feature = feature.min(s.radius_nm + other.radius_nm);
+        }
+        if let Some(spec) = &self.obstacles {
+            let b_min = match spec {
+                ObstacleSpec::Generated {
+                    radii: RadiusDistribution::Fixed { radius_nm },
+                    ..
+                } => *radius_nm,
+                ObstacleSpec::Generated {
+                    radii: RadiusDistribution::Uniform { min_nm, .. },
+                    ..
+                } => *min_nm,
+                ObstacleSpec::Generated {
+                    radii:
+                        RadiusDistribution::LogNormal {
+                            median_nm, min_nm, ..
+                        },
+                    ..
+                } => {
+                    if *min_nm > 0.0 {
+                        *min_nm
+                    } else {
+                        *median_nm
+                    }
+                }
+                ObstacleSpec::File { .. } => 0.0,
+            };
+            feature = feature.min(s.radius_nm + b_min);
+        }
+        if let Some(f) = &self.fibres {
+            feature = feature.min(s.radius_nm + f.radius_nm);
+        }
+        if let Some(g) = &self.geometry {
+            feature = feature.min(g.shape.smallest_feature_nm(s.radius_nm));
+        }
+        if feature.is_finite() {
+            feature
+        } else {
+            s.radius_nm
+        }
     }
 
     /// Warnings a careful user would want before running.
@@ -242,18 +471,41 @@ impl Scenario {
         let mut out = Vec::new();
         for s in self.species.iter().filter(|_| self.has_contacts()) {
             let step = s.step_rms_nm(self.dt_s);
-            let feature = s.radius_nm;
+            let feature = self.smallest_feature_nm(s);
             if step > STEP_WARNING_FRACTION * feature {
                 out.push(format!(
                     "species '{}': rms step per axis √(2 D0 Δt) = {:.4} nm is more than a tenth of the \
-                     smallest feature (radius {} nm); a smaller integrator.dt_s reduces the \
-                     discretisation bias at contacts (common practice)",
+                     smallest feature ({} nm: radius at a wall, else a contact distance); a smaller integrator.dt_s \
+                     reduces the discretisation bias at contacts (common practice)",
                     s.name, step, feature
                 ));
             }
         }
+        if let Some(c) = self
+            .camera
+            .as_ref()
+            .filter(|c| c.exposure_s > 0.0 && c.samples_per_exposure < 10)
+        {
+            let m = c.samples_per_exposure as f64;
+            out.push(format!(
+                "camera: the exposure of {:e} s is resolved by only {} recorded positions, so the motion blur is that of an \
+                 exposure of {:e} s (t_E (1 − 1/m²)); record more often (output.record_every_steps) for a smoother blur",
+                c.exposure_s,
+                c.samples_per_exposure,
+                c.exposure_s * (1.0 - 1.0 / (m * m))
+            ));
+        }
+        if let Some(g) = &self.geometry {
+            out.extend(g.warnings(&self.species, self.dt_s));
+        }
         let total = self.particle_count() as f64 * self.frames() as f64 * 3.0;
-        let bytes = total * if self.output.precision == Precision::F32 { 4.0 } else { 8.0 } * 1.5;
+        let bytes = total
+            * if self.output.precision == Precision::F32 {
+                4.0
+            } else {
+                8.0
+            }
+            * 1.5;
         if bytes > 20e9 {
             out.push(format!(
                 "the trajectory will be about {:.1} GB; raise output.record_every_steps to record fewer frames",
@@ -264,7 +516,12 @@ impl Scenario {
     }
 }
 
-fn invalid(file: &Path, key: impl Into<String>, value: impl ToString, allowed: impl Into<String>) -> EngineError {
+fn invalid(
+    file: &Path,
+    key: impl Into<String>,
+    value: impl ToString,
+    allowed: impl Into<String>,
+) -> EngineError {
     EngineError::InvalidValue {
         file: file.to_path_buf(),
         key: key.into(),
@@ -278,7 +535,12 @@ fn positive(file: &Path, key: &str, value: f64) -> Result<f64> {
     if value.is_finite() && value > 0.0 {
         Ok(value)
     } else {
-        Err(invalid(file, key, value, "it must be a finite number greater than 0"))
+        Err(invalid(
+            file,
+            key,
+            value,
+            "it must be a finite number greater than 0",
+        ))
     }
 }
 
@@ -289,7 +551,9 @@ impl RawScenario {
     /// [`EngineError::EmptyScenario`] or [`EngineError::ParseScenario`].
     pub fn parse(text: &str, path: &Path) -> Result<Self> {
         if text.trim().is_empty() {
-            return Err(EngineError::EmptyScenario { file: path.to_path_buf() });
+            return Err(EngineError::EmptyScenario {
+                file: path.to_path_buf(),
+            });
         }
         toml::from_str(text).map_err(|e| EngineError::ParseScenario {
             file: path.to_path_buf(),
@@ -321,10 +585,12 @@ impl RawScenario {
                     reason: e.to_string().trim_end().to_string(),
                 })?;
         }
-        toml::Value::Table(table).try_into().map_err(|e: toml::de::Error| EngineError::Override {
-            assignment: overrides.join(" "),
-            reason: e.to_string(),
-        })
+        toml::Value::Table(table)
+            .try_into()
+            .map_err(|e: toml::de::Error| EngineError::Override {
+                assignment: overrides.join(" "),
+                reason: e.to_string(),
+            })
     }
 
     /// Validates every value and resolves defaults.
@@ -371,7 +637,7 @@ impl RawScenario {
         for (k, e) in self.sim_box.edges_nm.iter().enumerate() {
             edges_nm[k] = positive(file, &format!("box.edges_nm[{k}]"), *e)?;
         }
-        let periodic = match &self.sim_box.periodic {
+        let mut periodic = match &self.sim_box.periodic {
             None => [true; 3],
             Some(p) if p.len() == 3 => [p[0], p[1], p[2]],
             Some(p) => {
@@ -385,14 +651,21 @@ impl RawScenario {
         };
 
         if self.species.is_empty() {
-            return Err(invalid(file, "species", "[]", "at least one [[species]] entry is needed"));
+            return Err(invalid(
+                file,
+                "species",
+                "[]",
+                "at least one [[species]] entry is needed",
+            ));
         }
         let mut species = Vec::with_capacity(self.species.len());
         for (i, s) in self.species.iter().enumerate() {
             let key = |k: &str| format!("species[{i}].{k}");
             let name_ok = !s.name.is_empty()
                 && s.name.len() <= 64
-                && s.name.chars().all(|c| c.is_ascii_alphanumeric() || c == '_' || c == '-');
+                && s.name
+                    .chars()
+                    .all(|c| c.is_ascii_alphanumeric() || c == '_' || c == '-');
             if !name_ok {
                 return Err(invalid(
                     file,
@@ -402,10 +675,20 @@ impl RawScenario {
                 ));
             }
             if s.name == "obstacles" {
-                return Err(invalid(file, key("name"), "\"obstacles\"", "the name 'obstacles' is reserved for fixed obstacles"));
+                return Err(invalid(
+                    file,
+                    key("name"),
+                    "\"obstacles\"",
+                    "the name 'obstacles' is reserved for fixed obstacles",
+                ));
             }
             if species.iter().any(|o: &Species| o.name == s.name) {
-                return Err(invalid(file, key("name"), format!("{:?}", s.name), "species names must be unique"));
+                return Err(invalid(
+                    file,
+                    key("name"),
+                    format!("{:?}", s.name),
+                    "species names must be unique",
+                ));
             }
             let radius_nm = positive(file, &key("radius_nm"), s.radius_nm)?;
             let drag_radius_nm = match s.drag_radius_nm {
@@ -413,21 +696,30 @@ impl RawScenario {
                 None => radius_nm,
             };
             if !(1..=MAX_COUNT).contains(&s.count) {
-                return Err(invalid(file, key("count"), s.count, format!("it must be a whole number from 1 to {MAX_COUNT}")));
+                return Err(invalid(
+                    file,
+                    key("count"),
+                    s.count,
+                    format!("it must be a whole number from 1 to {MAX_COUNT}"),
+                ));
             }
             let (d0_m2_per_s, d0_explicit) = match s.diffusivity_m2_per_s {
                 Some(d) => (positive(file, &key("diffusivity_m2_per_s"), d)?, true),
                 None => (
-                    medium::stokes_einstein_m2_per_s(temperature_k, viscosity_pa_s, drag_radius_nm * 1e-9),
+                    medium::stokes_einstein_m2_per_s(
+                        temperature_k,
+                        viscosity_pa_s,
+                        drag_radius_nm * 1e-9,
+                    ),
                     false,
                 ),
             };
-            for k in 0..3 {
-                if edges_nm[k] <= 2.0 * radius_nm {
+            for (k, &edge) in edges_nm.iter().enumerate() {
+                if edge <= 2.0 * radius_nm {
                     return Err(invalid(
                         file,
                         format!("box.edges_nm[{k}]"),
-                        edges_nm[k],
+                        edge,
                         format!(
                             "the box must be wider than the diameter of species '{}' ({} nm)",
                             s.name,
@@ -436,6 +728,18 @@ impl RawScenario {
                     ));
                 }
             }
+            let crowder = match s.role.as_deref() {
+                None | Some("tracer") => false,
+                Some("crowder") => true,
+                Some(other) => {
+                    return Err(invalid(
+                        file,
+                        key("role"),
+                        format!("{other:?}"),
+                        "allowed: \"tracer\" (default) or \"crowder\"",
+                    ))
+                }
+            };
             species.push(Species {
                 name: s.name.clone(),
                 radius_nm,
@@ -443,6 +747,7 @@ impl RawScenario {
                 count: s.count as usize,
                 d0_m2_per_s,
                 d0_explicit,
+                crowder,
             });
         }
 
@@ -456,6 +761,60 @@ impl RawScenario {
             ));
         }
         let steps = self.integrator.steps as u64;
+        let sweep = match self.integrator.sweep.as_deref() {
+            None | Some("parallel") => Sweep::Parallel,
+            Some("sequential") => Sweep::Sequential,
+            Some(other) => {
+                return Err(invalid(
+                    file,
+                    "integrator.sweep",
+                    format!("{other:?}"),
+                    "allowed: \"parallel\" (default) or \"sequential\"",
+                ))
+            }
+        };
+        // A geometry decides which axes are walled, so it comes before anything that uses the box.
+        let geometry = match &self.geometry {
+            None => None,
+            Some(g) => {
+                let has_fixed = self.obstacles.is_some() || self.fibres.is_some();
+                let geometry = Geometry::from_raw(
+                    g,
+                    file,
+                    self.sim_box.periodic.as_deref(),
+                    &edges_nm,
+                    &species,
+                    steps as f64 * dt_s,
+                    has_fixed,
+                )?;
+                periodic = geometry.periodic();
+                Some(geometry)
+            }
+        };
+        let crowd_box = SimBox { edges_nm, periodic };
+        let obstacles = match &self.obstacles {
+            None => None,
+            Some(o) => Some(validate_obstacles(o, file, &crowd_box)?),
+        };
+        let max_species_radius = species.iter().map(|s| s.radius_nm).fold(0.0, f64::max);
+        let fibres = match &self.fibres {
+            None => None,
+            Some(f) => Some(validate_fibres(f, file, &crowd_box, max_species_radius)?),
+        };
+        if species.iter().any(|s| s.crowder) {
+            let min_edge = edges_nm.iter().cloned().fold(f64::INFINITY, f64::min);
+            if min_edge <= 4.0 * max_species_radius {
+                return Err(invalid(
+                    file,
+                    "box.edges_nm",
+                    format!("{:?}", self.sim_box.edges_nm),
+                    format!(
+                        "with crowders every edge must exceed twice the largest contact distance, 4 × {max_species_radius} nm, \
+                         so that each pair has one nearest image"
+                    ),
+                ));
+            }
+        }
 
         let record_every_steps = match self.output.record_every_steps {
             None => (steps / 100).max(1),
@@ -465,14 +824,23 @@ impl RawScenario {
                     file,
                     "output.record_every_steps",
                     r,
-                    format!("it must be a whole number ≥ 1 that divides integrator.steps = {steps}"),
+                    format!(
+                        "it must be a whole number ≥ 1 that divides integrator.steps = {steps}"
+                    ),
                 ))
             }
         };
         let precision = match self.output.precision.as_deref() {
             None | Some("f32") => Precision::F32,
             Some("f64") => Precision::F64,
-            Some(other) => return Err(invalid(file, "output.precision", format!("{other:?}"), "allowed: \"f32\" or \"f64\"")),
+            Some(other) => {
+                return Err(invalid(
+                    file,
+                    "output.precision",
+                    format!("{other:?}"),
+                    "allowed: \"f32\" or \"f64\"",
+                ))
+            }
         };
         let checkpoint_interval_s = match self.output.checkpoint_interval_s {
             None => 60.0,
@@ -485,14 +853,76 @@ impl RawScenario {
             checkpoint_interval_s,
         };
 
+        let camera = match &self.camera {
+            Some(c) => {
+                Some(c.validate(file, &edges_nm, &species, dt_s, steps, record_every_steps)?)
+            }
+            None => None,
+        };
+
         let mut resolved = self.clone();
         resolved.seed = Some(seed as i64);
         resolved.medium.viscosity_pa_s = Some(viscosity_pa_s);
         resolved.sim_box.periodic = Some(periodic.to_vec());
         resolved.output.record_every_steps = Some(record_every_steps as i64);
-        resolved.output.precision = Some(if precision == Precision::F32 { "f32" } else { "f64" }.into());
+        resolved.output.precision = Some(
+            if precision == Precision::F32 {
+                "f32"
+            } else {
+                "f64"
+            }
+            .into(),
+        );
         resolved.output.checkpoint_interval_s = Some(checkpoint_interval_s);
-        let resolved_toml = toml::to_string(&resolved).map_err(|e| invalid(file, "(whole scenario)", e, "a scenario that can be written back as TOML"))?;
+        resolved.integrator.sweep = Some(
+            if sweep == Sweep::Parallel {
+                "parallel"
+            } else {
+                "sequential"
+            }
+            .into(),
+        );
+        if let Some(o) = resolved.obstacles.as_mut() {
+            if o.placement != "file" && o.radius_distribution.is_none() {
+                o.radius_distribution = Some("fixed".into());
+            }
+        }
+        if let (Some(f), Some(spec)) = (resolved.fibres.as_mut(), &fibres) {
+            f.length_nm = Some(spec.length_nm);
+            if f.orientation.is_none() {
+                f.orientation = Some("isotropic".into());
+            }
+        }
+        if let (Some(g), Some(spec)) = (resolved.geometry.as_mut(), &geometry) {
+            g.wall_hydrodynamics = Some(spec.hydrodynamics.is_some());
+            if let Some(m) = spec.hydrodynamics {
+                g.perpendicular_model = Some(
+                    if m == crate::mobility::PerpendicularModel::Brenner {
+                        "brenner"
+                    } else {
+                        "bevan_prieve"
+                    }
+                    .into(),
+                );
+            }
+            if let crate::geometry::Shape::Membrane(m) = &spec.shape {
+                g.top_concentration_mol_per_m3 = Some(m.top_concentration_mol_per_m3);
+                g.bottom_concentration_mol_per_m3 = Some(m.bottom_concentration_mol_per_m3);
+                g.flux_after_s = Some(spec.flux_after_s);
+                if g.pores_file.is_none() {
+                    g.pores_x = Some(g.pores_x.unwrap_or(1));
+                    g.pores_y = Some(g.pores_y.unwrap_or(1));
+                }
+            }
+        }
+        let resolved_toml = toml::to_string(&resolved).map_err(|e| {
+            invalid(
+                file,
+                "(whole scenario)",
+                e,
+                "a scenario that can be written back as TOML",
+            )
+        })?;
 
         Ok(Scenario {
             source: file.to_path_buf(),
@@ -505,27 +935,338 @@ impl RawScenario {
             dt_s,
             steps,
             output,
+            camera,
+            obstacles,
+            fibres,
+            sweep,
+            geometry,
             resolved_toml,
         })
     }
 }
 
+/// Exactly one of a volume fraction and a count, validated.
+fn target(
+    file: &Path,
+    section: &str,
+    volume_fraction: Option<f64>,
+    count: Option<i64>,
+) -> Result<Target> {
+    match (volume_fraction, count) {
+        (Some(phi), None) => {
+            if phi.is_finite() && phi > 0.0 && phi < 1.0 {
+                Ok(Target::VolumeFraction(phi))
+            } else {
+                Err(invalid(
+                    file,
+                    format!("{section}.volume_fraction"),
+                    phi,
+                    "an impossible fraction: it must lie strictly between 0 and 1",
+                ))
+            }
+        }
+        (None, Some(n)) => {
+            if (1..=MAX_OBSTACLES).contains(&n) {
+                Ok(Target::Count(n as usize))
+            } else {
+                Err(invalid(
+                    file,
+                    format!("{section}.count"),
+                    n,
+                    format!("it must be a whole number from 1 to {MAX_OBSTACLES}"),
+                ))
+            }
+        }
+        (Some(phi), Some(n)) => Err(invalid(
+            file,
+            format!("{section}.count"),
+            n,
+            format!(
+                "give either {section}.volume_fraction (here {phi}) or {section}.count, not both"
+            ),
+        )),
+        (None, None) => Err(invalid(
+            file,
+            format!("{section}.volume_fraction"),
+            "(missing)",
+            format!("give {section}.volume_fraction or {section}.count"),
+        )),
+    }
+}
+
+/// Validates `[obstacles]`.
+fn validate_obstacles(o: &RawObstacles, file: &Path, sim_box: &SimBox) -> Result<ObstacleSpec> {
+    let unused = |key: &str, why: &str| {
+        invalid(file, format!("obstacles.{key}"), "(given)", why.to_string())
+    };
+    let generator = match o.placement.as_str() {
+        "random" => Generator::RandomSequential,
+        "poisson" => Generator::Poisson,
+        "simple_cubic" => Generator::SimpleCubic,
+        "fcc" => Generator::FaceCentredCubic,
+        "file" => {
+            let name = o
+                .file
+                .as_deref()
+                .ok_or_else(|| invalid(file, "obstacles.file", "(missing)", "placement = \"file\" needs obstacles.file, a CSV of x_nm,y_nm,z_nm,radius_nm"))?;
+            let why = "it is not used with placement = \"file\" (the file gives centres and radii)";
+            for (key, given) in [
+                ("volume_fraction", o.volume_fraction.is_some()),
+                ("count", o.count.is_some()),
+                ("radius_nm", o.radius_nm.is_some()),
+                ("radius_distribution", o.radius_distribution.is_some()),
+                ("radius_min_nm", o.radius_min_nm.is_some()),
+                ("radius_max_nm", o.radius_max_nm.is_some()),
+                ("radius_log_sd", o.radius_log_sd.is_some()),
+            ] {
+                if given {
+                    return Err(unused(key, why));
+                }
+            }
+            let path = PathBuf::from(name);
+            // Inputs named by a scenario travel with it: relative paths start at its folder.
+            let path = if path.is_relative() { file.parent().map(|d| d.join(&path)).unwrap_or(path) } else { path };
+            return Ok(ObstacleSpec::File { path, allow_overlap: o.allow_overlap.unwrap_or(false) });
+        }
+        other => {
+            return Err(invalid(
+                file,
+                "obstacles.placement",
+                format!("{other:?}"),
+                "allowed: \"random\" (non-overlapping, random sequential addition), \"poisson\" (overlapping), \"simple_cubic\", \"fcc\" or \"file\"",
+            ))
+        }
+    };
+    for (key, given) in [
+        ("file", o.file.is_some()),
+        ("allow_overlap", o.allow_overlap.is_some()),
+    ] {
+        if given {
+            return Err(unused(key, "it is only used with placement = \"file\""));
+        }
+    }
+    let target = target(file, "obstacles", o.volume_fraction, o.count)?;
+    let only = |key: &str, given: bool, dist: &str| -> Result<()> {
+        if given {
+            Err(unused(
+                key,
+                &format!("it is not used with radius_distribution = \"{dist}\""),
+            ))
+        } else {
+            Ok(())
+        }
+    };
+    let need = |key: &str, v: Option<f64>, dist: &str| -> Result<f64> {
+        let v = v.ok_or_else(|| {
+            invalid(
+                file,
+                format!("obstacles.{key}"),
+                "(missing)",
+                format!("radius_distribution = \"{dist}\" needs obstacles.{key}"),
+            )
+        })?;
+        positive(file, &format!("obstacles.{key}"), v)
+    };
+    let radii = match o.radius_distribution.as_deref().unwrap_or("fixed") {
+        "fixed" => {
+            only("radius_min_nm", o.radius_min_nm.is_some(), "fixed")?;
+            only("radius_max_nm", o.radius_max_nm.is_some(), "fixed")?;
+            only("radius_log_sd", o.radius_log_sd.is_some(), "fixed")?;
+            RadiusDistribution::Fixed {
+                radius_nm: need("radius_nm", o.radius_nm, "fixed")?,
+            }
+        }
+        "uniform" => {
+            only("radius_nm", o.radius_nm.is_some(), "uniform")?;
+            only("radius_log_sd", o.radius_log_sd.is_some(), "uniform")?;
+            let min_nm = need("radius_min_nm", o.radius_min_nm, "uniform")?;
+            let max_nm = need("radius_max_nm", o.radius_max_nm, "uniform")?;
+            if max_nm < min_nm {
+                return Err(invalid(
+                    file,
+                    "obstacles.radius_max_nm",
+                    max_nm,
+                    format!("it must be at least obstacles.radius_min_nm = {min_nm}"),
+                ));
+            }
+            RadiusDistribution::Uniform { min_nm, max_nm }
+        }
+        "lognormal" => {
+            let median_nm = need("radius_nm", o.radius_nm, "lognormal")?;
+            let log_sd = need("radius_log_sd", o.radius_log_sd, "lognormal")?;
+            let min_nm = match o.radius_min_nm {
+                Some(v) => positive(file, "obstacles.radius_min_nm", v)?,
+                None => 0.0,
+            };
+            let max_nm = match o.radius_max_nm {
+                Some(v) => positive(file, "obstacles.radius_max_nm", v)?,
+                None => f64::INFINITY,
+            };
+            if max_nm <= min_nm {
+                return Err(invalid(
+                    file,
+                    "obstacles.radius_max_nm",
+                    max_nm,
+                    format!("it must exceed obstacles.radius_min_nm = {min_nm}"),
+                ));
+            }
+            RadiusDistribution::LogNormal {
+                median_nm,
+                log_sd,
+                min_nm,
+                max_nm,
+            }
+        }
+        other => {
+            return Err(invalid(
+                file,
+                "obstacles.radius_distribution",
+                format!("{other:?}"),
+                "allowed: \"fixed\" (default), \"uniform\" or \"lognormal\"",
+            ))
+        }
+    };
+    let min_edge = sim_box
+        .edges_nm
+        .iter()
+        .cloned()
+        .fold(f64::INFINITY, f64::min);
+    let r_max = radii.max_nm();
+    if r_max.is_finite() && 2.0 * r_max >= min_edge {
+        let key = if matches!(radii, RadiusDistribution::Fixed { .. }) {
+            "obstacles.radius_nm"
+        } else {
+            "obstacles.radius_max_nm"
+        };
+        return Err(invalid(
+            file,
+            key,
+            r_max,
+            format!("obstacles must be smaller than the box: the diameter must stay below the smallest edge, {min_edge} nm"),
+        ));
+    }
+    Ok(ObstacleSpec::Generated {
+        generator,
+        radii,
+        target,
+    })
+}
+
+/// Validates `[fibres]`; `max_species_radius_nm` bounds the reach of a fibre's excluded region.
+fn validate_fibres(
+    f: &RawFibres,
+    file: &Path,
+    sim_box: &SimBox,
+    max_species_radius_nm: f64,
+) -> Result<FibreSpec> {
+    let radius_nm = positive(file, "fibres.radius_nm", f.radius_nm)?;
+    let target = target(file, "fibres", f.volume_fraction, f.count)?;
+    let orientation = match f.orientation.as_deref().unwrap_or("isotropic") {
+        "isotropic" => {
+            if f.axis.is_some() {
+                return Err(invalid(
+                    file,
+                    "fibres.axis",
+                    "(given)",
+                    "it is only used with orientation = \"aligned\"",
+                ));
+            }
+            Orientation::Isotropic
+        }
+        "aligned" => {
+            let axis = match f.axis.as_deref().unwrap_or("z") {
+                "x" => 0,
+                "y" => 1,
+                "z" => 2,
+                other => {
+                    return Err(invalid(
+                        file,
+                        "fibres.axis",
+                        format!("{other:?}"),
+                        "allowed: \"x\", \"y\" or \"z\"",
+                    ))
+                }
+            };
+            Orientation::Aligned { axis }
+        }
+        other => {
+            return Err(invalid(
+                file,
+                "fibres.orientation",
+                format!("{other:?}"),
+                "allowed: \"isotropic\" (default) or \"aligned\"",
+            ))
+        }
+    };
+    let min_edge = sim_box
+        .edges_nm
+        .iter()
+        .cloned()
+        .fold(f64::INFINITY, f64::min);
+    let longest = match orientation {
+        Orientation::Isotropic => min_edge,
+        Orientation::Aligned { axis } => sim_box.edges_nm[axis],
+    };
+    let length_nm = match f.length_nm {
+        None => longest,
+        Some(l) => {
+            let l = positive(file, "fibres.length_nm", l)?;
+            if l > longest {
+                return Err(invalid(
+                    file,
+                    "fibres.length_nm",
+                    l,
+                    format!("a fibre may be at most {longest} nm long here (the box edge it could lie along), so that it does not meet its own periodic image"),
+                ));
+            }
+            l
+        }
+    };
+    if 2.0 * (radius_nm + max_species_radius_nm) >= min_edge {
+        return Err(invalid(
+            file,
+            "fibres.radius_nm",
+            radius_nm,
+            format!(
+                "fibre plus particle radius must stay below half the smallest box edge ({} nm)",
+                0.5 * min_edge
+            ),
+        ));
+    }
+    Ok(FibreSpec {
+        radius_nm,
+        length_nm,
+        orientation,
+        target,
+    })
+}
+
 /// Applies one `a.b.c=value` assignment to a TOML table.
 fn apply_override(table: &mut toml::Table, assignment: &str) -> Result<()> {
-    let fail = |reason: String| EngineError::Override { assignment: assignment.to_string(), reason };
+    let fail = |reason: String| EngineError::Override {
+        assignment: assignment.to_string(),
+        reason,
+    };
     let (path, value_text) = assignment
         .split_once('=')
         .ok_or_else(|| fail("expected KEY=VALUE, e.g. integrator.steps=1000".into()))?;
     let parts: Vec<&str> = path.trim().split('.').map(str::trim).collect();
     if parts.iter().any(|p| p.is_empty()) {
-        return Err(fail("the key is empty or has an empty part; use a dotted path such as medium.temperature_K".into()));
+        return Err(fail(
+            "the key is empty or has an empty part; use a dotted path such as medium.temperature_K"
+                .into(),
+        ));
     }
     set_in_table(table, &parts, parse_value(value_text.trim())).map_err(fail)
 }
 
 /// Sets `parts` (a dotted path) to `value`, creating sections on the way; an
 /// array of tables is indexed by position or by its entries' `name` key.
-fn set_in_table(table: &mut toml::Table, parts: &[&str], value: toml::Value) -> std::result::Result<(), String> {
+fn set_in_table(
+    table: &mut toml::Table,
+    parts: &[&str],
+    value: toml::Value,
+) -> std::result::Result<(), String> {
     let (head, rest) = parts.split_first().ok_or("empty key")?;
     if rest.is_empty() {
         table.insert((*head).to_string(), value);
@@ -539,7 +1280,9 @@ fn set_in_table(table: &mut toml::Table, parts: &[&str], value: toml::Value) -> 
         toml::Value::Array(items) => {
             let (selector, inner) = rest.split_first().ok_or("empty key")?;
             if inner.is_empty() {
-                return Err(format!("name a key inside `{head}.{selector}`, e.g. {head}.{selector}.count"));
+                return Err(format!(
+                    "name a key inside `{head}.{selector}`, e.g. {head}.{selector}.count"
+                ));
             }
             let index = match selector.parse::<usize>() {
                 Ok(i) => i,
@@ -552,7 +1295,9 @@ fn set_in_table(table: &mut toml::Table, parts: &[&str], value: toml::Value) -> 
             match items.get_mut(index) {
                 Some(toml::Value::Table(t)) => set_in_table(t, inner, value),
                 Some(_) => Err(format!("`{head}.{selector}` is not a section")),
-                None => Err(format!("`{head}` has {len} entries; index {index} is out of range")),
+                None => Err(format!(
+                    "`{head}` has {len} entries; index {index} is out of range"
+                )),
             }
         }
         _ => Err(format!("`{head}` is a value, not a section")),
@@ -563,8 +1308,414 @@ fn set_in_table(table: &mut toml::Table, parts: &[&str], value: toml::Value) -> 
 /// otherwise as a bare string.
 fn parse_value(text: &str) -> toml::Value {
     match format!("v = {text}").parse::<toml::Table>() {
-        Ok(mut t) => t.remove("v").unwrap_or_else(|| toml::Value::String(text.to_string())),
+        Ok(mut t) => t
+            .remove("v")
+            .unwrap_or_else(|| toml::Value::String(text.to_string())),
         Err(_) => toml::Value::String(text.to_string()),
+    }
+}
+
+/// `[camera]`: the synthetic microscope of `thicket tracks`, as written.
+///
+/// The camera looks at a trajectory recorded every
+/// `output.record_every_steps × integrator.dt_s` (the recording interval),
+/// which must resolve the exposure: frame interval and exposure are whole
+/// multiples of it.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct RawCamera {
+    /// Time between the starts of consecutive frames, s.
+    pub frame_interval_s: f64,
+    /// Exposure of each frame, s, starting at the frame start (default: the
+    /// frame interval; 0 means instantaneous snapshots without blur).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub exposure_s: Option<f64>,
+    /// Gaussian localisation error per lateral axis, nm (default 0; not
+    /// together with `[camera.photons]`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub localisation_sigma_nm: Option<f64>,
+    /// Gaussian localisation error along z, nm, for `projection = "3d"`
+    /// (default: the lateral error of each detection).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub localisation_sigma_z_nm: Option<f64>,
+    /// Field of view [x, y], nm, centred on the box (default: the whole box).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub field_of_view_nm: Option<Vec<f64>>,
+    /// Height of the focal plane, nm (default: the middle of the box along z).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub focal_plane_z_nm: Option<f64>,
+    /// Half-depth z_f of the focal slab, nm: a particle further than z_f from
+    /// the focal plane is not detected (default: no limit).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub focal_depth_nm: Option<f64>,
+    /// Mean photobleaching lifetime of a fluorophore, s (default: no bleaching).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub bleach_lifetime_s: Option<f64>,
+    /// Blinking: rate of switching from emitting to dark, 1/s (default: no blinking).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub blink_on_to_off_per_s: Option<f64>,
+    /// Blinking: rate of switching from dark back to emitting, 1/s.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub blink_off_to_on_per_s: Option<f64>,
+    /// "2d" (default: x, y reported) or "3d" (x, y, z reported).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub projection: Option<String>,
+    /// Names of the species that carry a fluorescent label (default: all);
+    /// the others, e.g. crowders, are not seen.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub labelled_species: Option<Vec<String>>,
+    /// Photon-limited localisation error instead of a fixed σ.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub photons: Option<RawPhotons>,
+}
+
+/// `[camera.photons]`: what sets a photon-limited localisation error.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct RawPhotons {
+    /// Photons collected from the particle in one detection.
+    pub photons_per_detection: f64,
+    /// Standard deviation of the point-spread function, nm.
+    pub psf_sigma_nm: f64,
+    /// Camera pixel size in the sample plane, nm.
+    pub pixel_size_nm: f64,
+    /// Background photons per pixel per frame (default 0).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub background_photons_per_pixel: Option<f64>,
+}
+
+/// Coordinates a camera reports.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Projection {
+    /// x and y (a widefield image).
+    TwoD,
+    /// x, y and z (3D localisation).
+    ThreeD,
+}
+
+impl Projection {
+    /// Number of reported coordinates.
+    pub fn dims(self) -> usize {
+        match self {
+            Projection::TwoD => 2,
+            Projection::ThreeD => 3,
+        }
+    }
+}
+
+/// How the localisation error of a detection is set.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum LocalisationNoise {
+    /// A fixed Gaussian σ per lateral axis, nm.
+    Fixed {
+        /// σ, nm.
+        sigma_nm: f64,
+    },
+    /// σ from the photon count (formula in `thicket_analysis::camera`).
+    PhotonLimited {
+        /// Photons per detection.
+        photons_per_detection: f64,
+        /// PSF standard deviation, nm.
+        psf_sigma_nm: f64,
+        /// Pixel size, nm.
+        pixel_size_nm: f64,
+        /// Background photons per pixel.
+        background_photons_per_pixel: f64,
+    },
+}
+
+/// Two-state blinking rates.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Blinking {
+    /// Emitting → dark, 1/s.
+    pub on_to_off_per_s: f64,
+    /// Dark → emitting, 1/s.
+    pub off_to_on_per_s: f64,
+}
+
+/// A validated `[camera]`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CameraSpec {
+    /// Time between frame starts, s.
+    pub frame_interval_s: f64,
+    /// Exposure, s (0: instantaneous).
+    pub exposure_s: f64,
+    /// Interval between recorded positions, s.
+    pub recording_interval_s: f64,
+    /// Recorded positions per frame interval.
+    pub samples_per_frame: usize,
+    /// Recorded positions averaged into one detection (1 when the exposure is 0).
+    pub samples_per_exposure: usize,
+    /// Frames whose exposure lies inside the run.
+    pub frames: usize,
+    /// Lateral localisation error.
+    pub noise: LocalisationNoise,
+    /// Axial localisation error, nm, if given.
+    pub sigma_z_nm: Option<f64>,
+    /// Field of view as [[x_lo, x_hi], [y_lo, y_hi]], nm, in box coordinates.
+    pub field_of_view_nm: [[f64; 2]; 2],
+    /// Focal slab [z_lo, z_hi], nm, if limited.
+    pub focal_slab_nm: Option<[f64; 2]>,
+    /// Bleaching lifetime, s, if any.
+    pub bleach_lifetime_s: Option<f64>,
+    /// Blinking, if any.
+    pub blink: Option<Blinking>,
+    /// Reported coordinates.
+    pub projection: Projection,
+    /// Per species (scenario order): carries a label, so the camera sees it.
+    pub labelled: Vec<bool>,
+}
+
+impl RawCamera {
+    /// Validates the camera against the box and the recording of the run.
+    ///
+    /// # Errors
+    /// [`EngineError::InvalidValue`] naming the first bad `camera.` key.
+    pub fn validate(
+        &self,
+        file: &Path,
+        edges_nm: &[f64; 3],
+        species: &[Species],
+        dt_s: f64,
+        steps: u64,
+        record_every_steps: u64,
+    ) -> Result<CameraSpec> {
+        let recording_interval_s = dt_s * record_every_steps as f64;
+        let frame_interval_s = positive(file, "camera.frame_interval_s", self.frame_interval_s)?;
+        // Whole multiples within round-off: 0.01 / 0.001 is 9.999999999999998.
+        let whole = |t: f64| {
+            let r = t / recording_interval_s;
+            let n = r.round();
+            (n >= 1.0 && (r - n).abs() <= 1e-6 * n).then_some(n as usize)
+        };
+        let multiple_hint = format!(
+            "it must be a whole multiple of the recording interval output.record_every_steps × integrator.dt_s = {record_every_steps} × {dt_s:e} s = {recording_interval_s:e} s"
+        );
+        let samples_per_frame = whole(frame_interval_s).ok_or_else(|| {
+            invalid(
+                file,
+                "camera.frame_interval_s",
+                frame_interval_s,
+                multiple_hint.clone(),
+            )
+        })?;
+        let exposure_s = self.exposure_s.unwrap_or(frame_interval_s);
+        if !(exposure_s.is_finite()
+            && (0.0..=frame_interval_s * (1.0 + 1e-9)).contains(&exposure_s))
+        {
+            return Err(invalid(
+                file,
+                "camera.exposure_s",
+                exposure_s,
+                format!("it must lie from 0 to camera.frame_interval_s = {frame_interval_s:e} s: an exposure cannot be longer than the frame interval"),
+            ));
+        }
+        let samples_per_exposure = if exposure_s == 0.0 {
+            1
+        } else {
+            whole(exposure_s).ok_or_else(|| {
+                invalid(
+                    file,
+                    "camera.exposure_s",
+                    exposure_s,
+                    format!("0, or {}", multiple_hint.trim_start_matches("it must be ")),
+                )
+            })?
+        };
+        let recorded = steps / record_every_steps;
+        let needed = samples_per_frame as u64 + samples_per_exposure as u64 - 1;
+        if recorded < needed {
+            return Err(invalid(
+                file,
+                "integrator.steps",
+                steps,
+                format!(
+                    "with [camera] the run must last at least two frames: integrator.steps ≥ {} (frame interval {frame_interval_s:e} s plus exposure at dt_s = {dt_s:e} s)",
+                    needed * record_every_steps
+                ),
+            ));
+        }
+        let frames =
+            ((recorded + 1 - samples_per_exposure as u64) / samples_per_frame as u64 + 1) as usize;
+
+        let nonnegative = |key: &str, v: f64| -> Result<f64> {
+            if v.is_finite() && v >= 0.0 {
+                Ok(v)
+            } else {
+                Err(invalid(
+                    file,
+                    key,
+                    v,
+                    "it must be a finite number ≥ 0 (a localisation error cannot be negative)",
+                ))
+            }
+        };
+        let noise = match (&self.photons, self.localisation_sigma_nm) {
+            (Some(_), Some(s)) => {
+                return Err(invalid(
+                    file,
+                    "camera.localisation_sigma_nm",
+                    s,
+                    "give either a fixed camera.localisation_sigma_nm or a [camera.photons] section, not both",
+                ))
+            }
+            (None, s) => LocalisationNoise::Fixed { sigma_nm: nonnegative("camera.localisation_sigma_nm", s.unwrap_or(0.0))? },
+            (Some(p), None) => LocalisationNoise::PhotonLimited {
+                photons_per_detection: positive(file, "camera.photons.photons_per_detection", p.photons_per_detection)?,
+                psf_sigma_nm: positive(file, "camera.photons.psf_sigma_nm", p.psf_sigma_nm)?,
+                pixel_size_nm: positive(file, "camera.photons.pixel_size_nm", p.pixel_size_nm)?,
+                background_photons_per_pixel: match p.background_photons_per_pixel {
+                    None => 0.0,
+                    Some(b) if b.is_finite() && b >= 0.0 => b,
+                    Some(b) => return Err(invalid(file, "camera.photons.background_photons_per_pixel", b, "it must be a finite number ≥ 0")),
+                },
+            },
+        };
+        let projection = match self.projection.as_deref() {
+            None | Some("2d") => Projection::TwoD,
+            Some("3d") => Projection::ThreeD,
+            Some(other) => {
+                return Err(invalid(
+                    file,
+                    "camera.projection",
+                    format!("{other:?}"),
+                    "allowed: \"2d\" or \"3d\"",
+                ))
+            }
+        };
+        let sigma_z_nm = match self.localisation_sigma_z_nm {
+            None => None,
+            Some(s) if projection == Projection::TwoD => {
+                return Err(invalid(
+                    file,
+                    "camera.localisation_sigma_z_nm",
+                    s,
+                    "it is used only with camera.projection = \"3d\"",
+                ))
+            }
+            Some(s) => Some(nonnegative("camera.localisation_sigma_z_nm", s)?),
+        };
+
+        let mut field_of_view_nm = [[0.0, edges_nm[0]], [0.0, edges_nm[1]]];
+        if let Some(fov) = &self.field_of_view_nm {
+            if fov.len() != 2 {
+                return Err(invalid(
+                    file,
+                    "camera.field_of_view_nm",
+                    format!("{fov:?}"),
+                    "it must list two widths [x, y] in nm",
+                ));
+            }
+            for k in 0..2 {
+                let w = fov[k];
+                if !(w.is_finite() && w > 0.0 && w <= edges_nm[k]) {
+                    return Err(invalid(
+                        file,
+                        format!("camera.field_of_view_nm[{k}]"),
+                        w,
+                        format!("it must lie in (0, {}] nm: the field of view is centred on the box and cannot be wider than box.edges_nm[{k}]", edges_nm[k]),
+                    ));
+                }
+                let lo = 0.5 * (edges_nm[k] - w);
+                field_of_view_nm[k] = [lo, lo + w];
+            }
+        }
+
+        let lz = edges_nm[2];
+        let plane = self.focal_plane_z_nm.unwrap_or(0.5 * lz);
+        if !(plane.is_finite() && (0.0..=lz).contains(&plane)) {
+            return Err(invalid(
+                file,
+                "camera.focal_plane_z_nm",
+                plane,
+                format!("it must lie inside the box, 0 to {lz} nm along z"),
+            ));
+        }
+        let focal_slab_nm = match self.focal_depth_nm {
+            None => None,
+            Some(zf) => {
+                let max = plane.min(lz - plane);
+                if !(zf.is_finite() && zf > 0.0 && zf <= max * (1.0 + 1e-12)) {
+                    return Err(invalid(
+                        file,
+                        "camera.focal_depth_nm",
+                        zf,
+                        format!(
+                            "it must lie in (0, {max}] nm: the focal slab focal_plane_z_nm ± focal_depth_nm = {plane} ± {zf} nm must lie inside the box, 0 to {lz} nm along z"
+                        ),
+                    ));
+                }
+                Some([plane - zf, plane + zf])
+            }
+        };
+
+        let bleach_lifetime_s = match self.bleach_lifetime_s {
+            None => None,
+            Some(t) => Some(positive(file, "camera.bleach_lifetime_s", t)?),
+        };
+        let blink = match (self.blink_on_to_off_per_s, self.blink_off_to_on_per_s) {
+            (None, None) => None,
+            (Some(off), Some(on)) => Some(Blinking {
+                on_to_off_per_s: positive(file, "camera.blink_on_to_off_per_s", off)?,
+                off_to_on_per_s: positive(file, "camera.blink_off_to_on_per_s", on)?,
+            }),
+            (Some(v), None) => return Err(invalid(
+                file,
+                "camera.blink_on_to_off_per_s",
+                v,
+                "blinking needs both camera.blink_on_to_off_per_s and camera.blink_off_to_on_per_s",
+            )),
+            (None, Some(v)) => return Err(invalid(
+                file,
+                "camera.blink_off_to_on_per_s",
+                v,
+                "blinking needs both camera.blink_on_to_off_per_s and camera.blink_off_to_on_per_s",
+            )),
+        };
+
+        let labelled = match &self.labelled_species {
+            None => vec![true; species.len()],
+            Some(names) => {
+                if let Some(bad) = names
+                    .iter()
+                    .find(|n| !species.iter().any(|s| &s.name == *n))
+                {
+                    let known: Vec<&str> = species.iter().map(|s| s.name.as_str()).collect();
+                    return Err(invalid(
+                        file,
+                        "camera.labelled_species",
+                        format!("{bad:?}"),
+                        format!("names of [[species]] entries: {known:?}"),
+                    ));
+                }
+                if names.is_empty() {
+                    return Err(invalid(
+                        file,
+                        "camera.labelled_species",
+                        "[]",
+                        "at least one species must carry a label",
+                    ));
+                }
+                species.iter().map(|s| names.contains(&s.name)).collect()
+            }
+        };
+
+        Ok(CameraSpec {
+            frame_interval_s,
+            exposure_s,
+            recording_interval_s,
+            samples_per_frame,
+            samples_per_exposure,
+            frames,
+            noise,
+            sigma_z_nm,
+            field_of_view_nm,
+            focal_slab_nm,
+            bleach_lifetime_s,
+            blink,
+            projection,
+            labelled,
+        })
     }
 }
 
@@ -610,14 +1761,25 @@ steps = 100
         let s = load(BASIC, &["species.0.count=20", "integrator.steps=200"]).unwrap();
         assert_eq!(s.species[0].count, 20);
         assert_eq!(s.steps, 200);
-        let s = load(BASIC, &["species.tracer.radius_nm=3.5", "medium.viscosity_Pa_s=1e-3"]).unwrap();
+        let s = load(
+            BASIC,
+            &["species.tracer.radius_nm=3.5", "medium.viscosity_Pa_s=1e-3"],
+        )
+        .unwrap();
         assert_eq!(s.species[0].radius_nm, 3.5);
         assert_eq!(s.viscosity_pa_s, 1e-3);
     }
 
     #[test]
     fn override_errors_name_the_assignment() {
-        for bad in ["integrator.steps", "=3", "integrator.nosuch=3", "species.9.count=1", "species.x.count=1", "seed.a=1"] {
+        for bad in [
+            "integrator.steps",
+            "=3",
+            "integrator.nosuch=3",
+            "species.9.count=1",
+            "species.x.count=1",
+            "seed.a=1",
+        ] {
             let err = load(BASIC, &[bad]).unwrap_err().to_string();
             assert!(err.contains(bad), "{bad}: {err}");
         }

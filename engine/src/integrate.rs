@@ -6,6 +6,10 @@
 //! particle draws from its own random stream.
 
 use crate::config::{Scenario, SimBox};
+use crate::crowders::Crowd;
+use crate::error::{EngineError, Result};
+use crate::neighbors::{Blocker, ObstacleGrid};
+use crate::obstacles::FixedObstacles;
 use crate::rng::{standard_normal, ParticleRng};
 use rayon::prelude::*;
 use std::ops::Range;
@@ -57,7 +61,12 @@ pub fn kinetics(scenario: &Scenario) -> Vec<Kinetics> {
                     upper_nm[k] -= s.radius_nm;
                 }
             }
-            Kinetics { range, sigma_nm: s.step_rms_nm(scenario.dt_s), lower_nm, upper_nm }
+            Kinetics {
+                range,
+                sigma_nm: s.step_rms_nm(scenario.dt_s),
+                lower_nm,
+                upper_nm,
+            }
         })
         .collect()
 }
@@ -67,17 +76,24 @@ impl State {
     /// centre, drawing from its own stream (so placement is thread-independent).
     pub fn initial(scenario: &Scenario) -> Self {
         let n = scenario.particle_count();
-        let mut rngs: Vec<ParticleRng> = (0..n as u64).map(|i| ParticleRng::for_particle(scenario.seed, i)).collect();
+        let mut rngs: Vec<ParticleRng> = (0..n as u64)
+            .map(|i| ParticleRng::for_particle(scenario.seed, i))
+            .collect();
         let mut positions = vec![[0.0; 3]; n];
         for kin in kinetics(scenario) {
             for i in kin.range.clone() {
                 let rng = &mut rngs[i];
-                for k in 0..3 {
-                    positions[i][k] = kin.lower_nm[k] + rng.uniform() * (kin.upper_nm[k] - kin.lower_nm[k]);
-                }
+                positions[i] = std::array::from_fn(|k| {
+                    kin.lower_nm[k] + rng.uniform() * (kin.upper_nm[k] - kin.lower_nm[k])
+                });
             }
         }
-        Self { positions, images: vec![[0; 3]; n], rngs, step: 0 }
+        Self {
+            positions,
+            images: vec![[0; 3]; n],
+            rngs,
+            step: 0,
+        }
     }
 
     /// Number of particles.
@@ -122,7 +138,14 @@ pub fn advance_free(state: &mut State, kinetics: &[Kinetics], sim_box: &SimBox, 
 
 /// One particle through `steps` free steps; kept inline so the state lives in registers.
 #[inline(always)]
-fn advance_one_free(p: &mut [f64; 3], im: &mut [i32; 3], g: &mut ParticleRng, kin: &Kinetics, sim_box: &SimBox, steps: u64) {
+fn advance_one_free(
+    p: &mut [f64; 3],
+    im: &mut [i32; 3],
+    g: &mut ParticleRng,
+    kin: &Kinetics,
+    sim_box: &SimBox,
+    steps: u64,
+) {
     let mut x = *p;
     let mut n = *im;
     let sigma = kin.sigma_nm;
@@ -145,6 +168,283 @@ fn advance_one_free(p: &mut [f64; 3], im: &mut [i32; 3], g: &mut ParticleRng, ki
     }
     *p = x;
     *im = n;
+}
+
+/// Tracers per rayon task among obstacles: each runs a whole block of steps,
+/// so small tasks already amortise scheduling and keep both cores busy.
+const OBSTRUCTED_CHUNK: usize = 256;
+
+/// Attempts allowed to find an open starting point for one tracer among
+/// fixed obstacles before its species is declared unable to fit.
+pub const OPEN_START_ATTEMPTS: u64 = 1_000_000;
+
+/// Advances non-interacting particles among fixed obstacles by `steps` steps
+/// (particle-major, like [`advance_free`]).
+///
+/// Each step proposes the Gaussian move (wrapped, or reflected at walls) and
+/// rejects it whole if the new centre would overlap an obstacle: move
+/// rejection, a Monte Carlo Brownian dynamics scheme whose bias shrinks like
+/// √Δt (REFERENCE.md "Numerics"). `blockers[s]` answers for species s.
+pub fn advance_obstructed<B: Blocker>(
+    state: &mut State,
+    kinetics: &[Kinetics],
+    blockers: &[B],
+    sim_box: &SimBox,
+    steps: u64,
+) {
+    for (kin, blocker) in kinetics.iter().zip(blockers) {
+        let r = kin.range.clone();
+        let pos = &mut state.positions[r.clone()];
+        let img = &mut state.images[r.clone()];
+        let rng = &mut state.rngs[r];
+        pos.par_chunks_mut(OBSTRUCTED_CHUNK)
+            .zip(img.par_chunks_mut(OBSTRUCTED_CHUNK))
+            .zip(rng.par_chunks_mut(OBSTRUCTED_CHUNK))
+            .for_each(|((p, im), g)| {
+                for ((p, im), g) in p.iter_mut().zip(im.iter_mut()).zip(g.iter_mut()) {
+                    advance_one_obstructed(p, im, g, kin, blocker, sim_box, steps);
+                    debug_assert!(
+                        !blocker.blocked(p),
+                        "a tracer ended inside an obstacle at {p:?}"
+                    );
+                }
+            });
+    }
+    state.step += steps;
+}
+
+/// One particle through `steps` obstructed steps, its state kept in registers.
+#[inline(always)]
+fn advance_one_obstructed<B: Blocker>(
+    p: &mut [f64; 3],
+    im: &mut [i32; 3],
+    g: &mut ParticleRng,
+    kin: &Kinetics,
+    blocker: &B,
+    sim_box: &SimBox,
+    steps: u64,
+) {
+    let mut x = *p;
+    let mut n = *im;
+    let sigma = kin.sigma_nm;
+    let periodic = sim_box.periodic;
+    let edges = sim_box.edges_nm;
+    // A ball around `anchor` known to be open: moves that stay inside it need no
+    // lookup. Same decisions as testing every move, only cheaper.
+    let mut anchor = x;
+    let mut safe2 = -1.0;
+    for _ in 0..steps {
+        // Draws first (x, y, z in order, as every kernel), so the small axis loop unrolls.
+        let z = [standard_normal(g), standard_normal(g), standard_normal(g)];
+        let mut y = x;
+        let mut crossed = [0i32; 3];
+        let mut wrapped = false;
+        for k in 0..3 {
+            y[k] += sigma * z[k];
+            if periodic[k] {
+                if y[k] >= edges[k] {
+                    y[k] -= edges[k];
+                    crossed[k] = 1;
+                    wrapped = true;
+                } else if y[k] < 0.0 {
+                    y[k] += edges[k];
+                    crossed[k] = -1;
+                    wrapped = true;
+                }
+            } else {
+                y[k] = reflect(y[k], kin.lower_nm[k], kin.upper_nm[k]);
+            }
+        }
+        let d = [y[0] - anchor[0], y[1] - anchor[1], y[2] - anchor[2]];
+        let accept = if d[0] * d[0] + d[1] * d[1] + d[2] * d[2] < safe2 {
+            true
+        } else {
+            let clear = blocker.clearance(&y);
+            if clear >= 0.0 {
+                anchor = y;
+                safe2 = clear * clear;
+            }
+            clear >= 0.0
+        };
+        if accept {
+            x = y;
+            if wrapped {
+                for k in 0..3 {
+                    n[k] += crossed[k];
+                }
+            }
+        }
+    }
+    *p = x;
+    *im = n;
+}
+
+/// The step kernel a scenario needs, with its prepared neighbour structures.
+#[derive(Debug, Clone)]
+pub struct Dynamics {
+    sim_box: SimBox,
+    kinetics: Vec<Kinetics>,
+    kernel: Kernel,
+}
+
+#[derive(Debug, Clone)]
+enum Kernel {
+    Free,
+    Obstructed(Vec<ObstacleGrid>),
+    Crowded(Box<Crowd>),
+}
+
+impl Dynamics {
+    /// Chooses the kernel: free particles, tracers among fixed obstacles
+    /// (particle-major with rejection), or hard contacts between particles
+    /// (a [`Crowd`]) when some species is a crowder.
+    pub fn new(scenario: &Scenario, obstacles: &FixedObstacles) -> Self {
+        let kinetics = kinetics(scenario);
+        let grids = || -> Vec<ObstacleGrid> {
+            scenario
+                .species
+                .iter()
+                .map(|s| {
+                    ObstacleGrid::build(
+                        &obstacles.spheres,
+                        &obstacles.fibres,
+                        s.radius_nm,
+                        &scenario.sim_box,
+                    )
+                })
+                .collect()
+        };
+        let kernel = if scenario.has_crowders() {
+            let g = if obstacles.is_empty() {
+                vec![None; scenario.species.len()]
+            } else {
+                grids().into_iter().map(Some).collect()
+            };
+            Kernel::Crowded(Box::new(Crowd::new(scenario, g)))
+        } else if obstacles.is_empty() {
+            Kernel::Free
+        } else {
+            Kernel::Obstructed(grids())
+        };
+        Self {
+            sim_box: scenario.sim_box,
+            kinetics,
+            kernel,
+        }
+    }
+
+    /// Short name of the kernel ("free", "obstructed", "crowded").
+    pub fn name(&self) -> &'static str {
+        match self.kernel {
+            Kernel::Free => "free",
+            Kernel::Obstructed(_) => "obstructed",
+            Kernel::Crowded(_) => "crowded",
+        }
+    }
+
+    /// Cost of a particle-step relative to a free one (roughly), so that
+    /// the run driver can size its blocks.
+    pub fn relative_cost(&self) -> u64 {
+        match self.kernel {
+            Kernel::Free => 1,
+            Kernel::Obstructed(_) => 2,
+            Kernel::Crowded(_) => 8,
+        }
+    }
+
+    /// Per-species kinetics.
+    pub fn kinetics(&self) -> &[Kinetics] {
+        &self.kinetics
+    }
+
+    /// The crowd, when particles have hard contacts.
+    pub fn crowd(&self) -> Option<&Crowd> {
+        match &self.kernel {
+            Kernel::Crowded(c) => Some(c),
+            _ => None,
+        }
+    }
+
+    /// Mutable access to the crowd (to switch its sweep for comparisons).
+    pub fn crowd_mut(&mut self) -> Option<&mut Crowd> {
+        match &mut self.kernel {
+            Kernel::Crowded(c) => Some(c),
+            _ => None,
+        }
+    }
+
+    /// Initial state: uniform in the space open to each centre, every
+    /// particle drawing from its own stream. Free particles are placed as by
+    /// [`State::initial`]; tracers among obstacles redraw until open;
+    /// interacting particles are added one by one in index order.
+    ///
+    /// # Errors
+    /// [`EngineError::Placement`] when a species cannot fit.
+    pub fn initial_state(&self, scenario: &Scenario) -> Result<State> {
+        match &self.kernel {
+            Kernel::Free => Ok(State::initial(scenario)),
+            Kernel::Crowded(c) => {
+                let grids = c.grids();
+                crate::crowders::place_crowd(scenario, &self.kinetics, grids)
+            }
+            Kernel::Obstructed(grids) => {
+                let n = scenario.particle_count();
+                let mut rngs: Vec<ParticleRng> = (0..n as u64)
+                    .map(|i| ParticleRng::for_particle(scenario.seed, i))
+                    .collect();
+                let mut positions = vec![[0.0; 3]; n];
+                for (s, (kin, grid)) in self.kinetics.iter().zip(grids).enumerate() {
+                    let r = kin.range.clone();
+                    let failed = positions[r.clone()]
+                        .par_iter_mut()
+                        .zip(rngs[r].par_iter_mut())
+                        .map(|(p, g)| {
+                            for _ in 0..OPEN_START_ATTEMPTS {
+                                let c = [0, 1, 2].map(|k| {
+                                    kin.lower_nm[k]
+                                        + g.uniform() * (kin.upper_nm[k] - kin.lower_nm[k])
+                                });
+                                if !grid.blocked(&c) {
+                                    *p = c;
+                                    return false;
+                                }
+                            }
+                            true
+                        })
+                        .reduce(|| false, |a, b| a || b);
+                    if failed {
+                        let sp = &scenario.species[s];
+                        return Err(EngineError::Placement {
+                            file: scenario.source.clone(),
+                            reason: format!(
+                                "species '{}' (radius {} nm) found no open starting point in {OPEN_START_ATTEMPTS} tries: the \
+                                 obstacles leave (almost) no room for its centre (open fraction below about 1e-6); a smaller \
+                                 tracer, fewer or smaller obstacles would fit",
+                                sp.name, sp.radius_nm
+                            ),
+                        });
+                    }
+                }
+                Ok(State {
+                    positions,
+                    images: vec![[0; 3]; n],
+                    rngs,
+                    step: 0,
+                })
+            }
+        }
+    }
+
+    /// Advances the state by `steps` steps with the chosen kernel.
+    pub fn advance(&mut self, state: &mut State, steps: u64) {
+        match &mut self.kernel {
+            Kernel::Free => advance_free(state, &self.kinetics, &self.sim_box, steps),
+            Kernel::Obstructed(grids) => {
+                advance_obstructed(state, &self.kinetics, grids, &self.sim_box, steps)
+            }
+            Kernel::Crowded(c) => c.advance(state, &self.kinetics, &self.sim_box, steps),
+        }
+    }
 }
 
 /// Specular reflection of a coordinate into [lo, hi].
@@ -199,7 +499,10 @@ mod tests {
             for i in k.range.clone() {
                 for ax in 0..3 {
                     let x = st.positions[i][ax];
-                    assert!(x >= k.lower_nm[ax] && x <= k.upper_nm[ax], "particle {i} axis {ax}: {x}");
+                    assert!(
+                        x >= k.lower_nm[ax] && x <= k.upper_nm[ax],
+                        "particle {i} axis {ax}: {x}"
+                    );
                 }
                 assert_eq!(st.images[i], [0, 0, 0]);
             }

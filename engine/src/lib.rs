@@ -4,10 +4,16 @@
 //! The engine moves particles and writes trajectories; it never reads
 //! trajectories back (that is `thicket-analysis`).
 
-pub mod mobility;
 pub mod config;
+pub mod confined;
+pub mod crowders;
 pub mod error;
+pub mod fibres;
+pub mod geometry;
 pub mod medium;
+pub mod mobility;
+pub mod neighbors;
+pub mod obstacles;
 pub mod rng;
 
 pub use config::Scenario;

@@ -26,7 +26,11 @@ pub fn water_viscosity_pa_s(temperature_k: f64) -> Option<f64> {
 /// Stokes–Einstein diffusivity D0 = k_B T / (6 π η a) in m²/s (stick boundary).
 ///
 /// `drag_radius_m` is the hydrodynamic radius in metres.
-pub fn stokes_einstein_m2_per_s(temperature_k: f64, viscosity_pa_s: f64, drag_radius_m: f64) -> f64 {
+pub fn stokes_einstein_m2_per_s(
+    temperature_k: f64,
+    viscosity_pa_s: f64,
+    drag_radius_m: f64,
+) -> f64 {
     BOLTZMANN_J_PER_K * temperature_k / (6.0 * PI * viscosity_pa_s * drag_radius_m)
 }
 
@@ -53,7 +57,10 @@ mod tests {
         for (t, eta_table) in rows {
             let eta = water_viscosity_pa_s(t).unwrap();
             let rel = (eta - eta_table).abs() / eta_table;
-            assert!(rel < 0.01, "T = {t} K: {eta} vs table {eta_table} (rel {rel})");
+            assert!(
+                rel < 0.01,
+                "T = {t} K: {eta} vs table {eta_table} (rel {rel})"
+            );
         }
     }
 

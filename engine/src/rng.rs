@@ -114,7 +114,8 @@ mod tests {
     // rand_xoshiro's reference implementation of xoshiro256++.
     #[test]
     fn matches_reference_xoshiro256plusplus() {
-        let seed_bytes: [u8; 32] = core::array::from_fn(|i| (i as u8).wrapping_mul(37).wrapping_add(1));
+        let seed_bytes: [u8; 32] =
+            core::array::from_fn(|i| (i as u8).wrapping_mul(37).wrapping_add(1));
         let mut reference = rand_xoshiro::Xoshiro256PlusPlus::from_seed(seed_bytes);
         let words: [u64; 4] = core::array::from_fn(|i| {
             u64::from_le_bytes(seed_bytes[8 * i..8 * i + 8].try_into().unwrap())
@@ -149,6 +150,9 @@ mod tests {
         }
         let mean = sum / n as f64;
         // Standard error of the mean of U(0,1): sqrt(1/12/n); 5 SE.
-        assert!((mean - 0.5).abs() < 5.0 * (1.0 / 12.0 / n as f64).sqrt(), "mean {mean}");
+        assert!(
+            (mean - 0.5).abs() < 5.0 * (1.0 / 12.0 / n as f64).sqrt(),
+            "mean {mean}"
+        );
     }
 }

@@ -2,8 +2,10 @@
 //! blocks, records frames, checkpoints on a timer and stops cleanly when asked.
 
 use crate::config::Scenario;
+use crate::confined::{sidecar_path, ConfinedRun};
 use crate::error::{EngineError, Result};
-use crate::integrate::{advance_free, kinetics, State};
+use crate::integrate::{Dynamics, State};
+use crate::obstacles::FixedObstacles;
 use crate::trajectory::{checkpoint_path, Checkpoint, TrajectoryWriter};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -48,9 +50,23 @@ pub enum RunOutcome {
 /// # Errors
 /// Output that exists without `force`, unwritable output, a resume whose
 /// checkpoint or scenario does not match, HDF5 or I/O failures.
-pub fn run(scenario: &Scenario, options: &RunOptions, stop: &AtomicBool, progress: &mut dyn FnMut(u64, u64)) -> Result<RunOutcome> {
+pub fn run(
+    scenario: &Scenario,
+    options: &RunOptions,
+    stop: &AtomicBool,
+    progress: &mut dyn FnMut(u64, u64),
+) -> Result<RunOutcome> {
     let out = &options.out;
     let ckpt_path = checkpoint_path(out);
+    // Obstacles come from the seed, so a resumed run rebuilds the same medium;
+    // placed before any file is touched, so a failed placement leaves files alone.
+    let obstacles = FixedObstacles::build(scenario)?;
+    let mut dynamics = Dynamics::new(scenario, &obstacles);
+    // Walls, pores and membranes have their own kernels and measurements (confined.rs).
+    let mut confined = scenario
+        .geometry
+        .as_ref()
+        .map(|g| ConfinedRun::new(scenario, g));
     let (mut state, mut writer) = if options.resume {
         resume_state(scenario, out, &ckpt_path)?
     } else {
@@ -58,49 +74,89 @@ pub fn run(scenario: &Scenario, options: &RunOptions, stop: &AtomicBool, progres
             if !options.force {
                 return Err(EngineError::OutputExists { file: out.clone() });
             }
-            std::fs::remove_file(out).map_err(|e| EngineError::OutputNotWritable { file: out.clone(), reason: e.to_string() })?;
+            std::fs::remove_file(out).map_err(|e| EngineError::OutputNotWritable {
+                file: out.clone(),
+                reason: e.to_string(),
+            })?;
         }
         check_parent(out)?;
         let _ = std::fs::remove_file(&ckpt_path);
-        let state = State::initial(scenario);
+        let state = match &confined {
+            Some(c) => c.initial_state(scenario)?,
+            None => dynamics.initial_state(scenario)?,
+        };
         let mut writer = TrajectoryWriter::create(out, scenario)?;
+        writer.write_obstacles(&obstacles, scenario)?;
         writer.write_frame(&state, 0.0)?;
         writer.flush()?;
         (state, writer)
     };
+    if let (Some(c), Some(g)) = (confined.as_mut(), &scenario.geometry) {
+        if options.resume {
+            c.resume(&writer, scenario, &ckpt_path, state.step)?;
+        } else {
+            let _ = std::fs::remove_file(sidecar_path(&ckpt_path));
+            c.start(&writer, scenario, g)?;
+            c.record(&state, 0.0)?;
+            writer.flush()?;
+        }
+    }
 
-    let kin = kinetics(scenario);
     let record = scenario.output.record_every_steps;
     let n = scenario.particle_count() as u64;
-    let block = (BLOCK_PARTICLE_STEPS / n.max(1)).clamp(1, record);
+    let block = (BLOCK_PARTICLE_STEPS / dynamics.relative_cost() / n.max(1)).clamp(1, record);
     let mut last_checkpoint = Instant::now();
     let save = |state: &State, writer: &TrajectoryWriter| -> Result<()> {
         writer.flush()?;
-        Checkpoint { frames: writer.frames() as u64, resolved_toml: scenario.resolved_toml.clone(), state: state.clone() }.save(&ckpt_path)
+        Checkpoint {
+            frames: writer.frames() as u64,
+            resolved_toml: scenario.resolved_toml.clone(),
+            state: state.clone(),
+        }
+        .save(&ckpt_path)
     };
     progress(state.step, scenario.steps);
     while state.step < scenario.steps {
         if stop.load(Ordering::Relaxed) {
+            if let Some(c) = &confined {
+                c.save(&ckpt_path, state.step)?;
+            }
             save(&state, &writer)?;
-            return Ok(RunOutcome::Interrupted { step: state.step, frames: writer.frames() as u64 });
+            return Ok(RunOutcome::Interrupted {
+                step: state.step,
+                frames: writer.frames() as u64,
+            });
         }
         // Never step past the next frame, so frames land exactly on multiples of `record`.
         let to_frame = record - state.step % record;
         let steps = block.min(to_frame);
-        advance_free(&mut state, &kin, &scenario.sim_box, steps);
+        match confined.as_mut() {
+            Some(c) => c.advance(&mut state, steps),
+            None => dynamics.advance(&mut state, steps),
+        }
         if state.step % record == 0 {
             writer.write_frame(&state, state.step as f64 * scenario.dt_s)?;
+            if let Some(c) = confined.as_mut() {
+                c.record(&state, state.step as f64 * scenario.dt_s)?;
+            }
         }
         if last_checkpoint.elapsed().as_secs_f64() >= scenario.output.checkpoint_interval_s {
+            if let Some(c) = &confined {
+                c.save(&ckpt_path, state.step)?;
+            }
             save(&state, &writer)?;
             last_checkpoint = Instant::now();
         }
         progress(state.step, scenario.steps);
     }
+    if let Some(c) = &confined {
+        c.finish(&writer, scenario, state.step)?;
+    }
     writer.flush()?;
     let frames = writer.frames() as u64;
     drop(writer);
     let _ = std::fs::remove_file(&ckpt_path);
+    let _ = std::fs::remove_file(sidecar_path(&ckpt_path));
     Ok(RunOutcome::Completed { frames })
 }
 
@@ -118,9 +174,16 @@ fn check_parent(out: &Path) -> Result<()> {
     Ok(())
 }
 
-fn resume_state(scenario: &Scenario, out: &Path, ckpt_path: &Path) -> Result<(State, TrajectoryWriter)> {
+fn resume_state(
+    scenario: &Scenario,
+    out: &Path,
+    ckpt_path: &Path,
+) -> Result<(State, TrajectoryWriter)> {
     if !out.exists() {
-        return Err(EngineError::Resume { file: out.to_path_buf(), reason: "the trajectory does not exist; start the run without --resume".into() });
+        return Err(EngineError::Resume {
+            file: out.to_path_buf(),
+            reason: "the trajectory does not exist; start the run without --resume".into(),
+        });
     }
     let ckpt = Checkpoint::load(ckpt_path)?;
     if ckpt.resolved_toml != scenario.resolved_toml {
@@ -130,11 +193,21 @@ fn resume_state(scenario: &Scenario, out: &Path, ckpt_path: &Path) -> Result<(St
             .zip(scenario.resolved_toml.lines())
             .find(|(a, b)| a != b)
             .map(|(a, b)| format!("the run was started with `{a}` but the scenario now says `{b}`"))
-            .unwrap_or_else(|| "the scenario differs in length from the one the run was started with".into());
-        return Err(EngineError::Resume { file: out.to_path_buf(), reason: format!("scenario mismatch: {diff}; resume with the same scenario and --set options") });
+            .unwrap_or_else(|| {
+                "the scenario differs in length from the one the run was started with".into()
+            });
+        return Err(EngineError::Resume {
+            file: out.to_path_buf(),
+            reason: format!(
+                "scenario mismatch: {diff}; resume with the same scenario and --set options"
+            ),
+        });
     }
     if ckpt.state.len() != scenario.particle_count() {
-        return Err(EngineError::Resume { file: ckpt_path.to_path_buf(), reason: "the checkpoint holds a different number of particles".into() });
+        return Err(EngineError::Resume {
+            file: ckpt_path.to_path_buf(),
+            reason: "the checkpoint holds a different number of particles".into(),
+        });
     }
     let writer = TrajectoryWriter::reopen(out, scenario, ckpt.frames as usize)?;
     Ok((ckpt.state, writer))

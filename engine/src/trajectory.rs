@@ -5,10 +5,19 @@
 //! every flushed frame. The checkpoint is a small binary file beside the
 //! trajectory (`FILE.h5.ckpt`) holding the exact state, so a resumed run ends
 //! with the same datasets as an uninterrupted one.
+//!
+//! Fixed spheres go to `/particles/obstacles` as one frame:
+//! `position/value` [1, M, 3] nm (with `step` and `time`), `radius` [M] nm
+//! (time-independent) and `box` as for every species. Fibres, which are not
+//! particles, go to `/parameters/thicket/fibres`: `centre` [F, 3] nm,
+//! `direction` [F, 3] (unit vectors), and attributes `radius_nm`,
+//! `length_nm`; each fibre is the set of points within `radius_nm` of the
+//! segment `centre ± (length_nm / 2) · direction`, with periodic images.
 
 use crate::config::{Precision, Scenario};
 use crate::error::{EngineError, Result};
 use crate::integrate::State;
+use crate::obstacles::FixedObstacles;
 use crate::rng::ParticleRng;
 use hdf5::types::FixedAscii;
 use hdf5::{Dataset, File, Group, Location};
@@ -44,7 +53,10 @@ struct SpeciesSets {
 }
 
 fn h5(path: &Path) -> impl Fn(hdf5::Error) -> EngineError + '_ {
-    move |source| EngineError::Hdf5 { file: path.to_path_buf(), source }
+    move |source| EngineError::Hdf5 {
+        file: path.to_path_buf(),
+        source,
+    }
 }
 
 /// Writes a scalar fixed-length ASCII attribute of exactly the string's
@@ -52,9 +64,15 @@ fn h5(path: &Path) -> impl Fn(hdf5::Error) -> EngineError + '_ {
 /// padded in-memory string to the exact stored size).
 pub fn write_str_attr(loc: &Location, name: &str, value: &str) -> hdf5::Result<()> {
     fn put<const N: usize>(loc: &Location, name: &str, value: &str) -> hdf5::Result<()> {
-        let v = FixedAscii::<N>::from_ascii(value.as_bytes()).map_err(|e| hdf5::Error::from(e.to_string().as_str()))?;
-        let stored = hdf5::Datatype::from_descriptor(&hdf5::types::TypeDescriptor::FixedAscii(value.len().max(1)))?;
-        loc.new_attr_builder().empty_as(&stored).create(name)?.write_scalar(&v)
+        let v = FixedAscii::<N>::from_ascii(value.as_bytes())
+            .map_err(|e| hdf5::Error::from(e.to_string().as_str()))?;
+        let stored = hdf5::Datatype::from_descriptor(&hdf5::types::TypeDescriptor::FixedAscii(
+            value.len().max(1),
+        ))?;
+        loc.new_attr_builder()
+            .empty_as(&stored)
+            .create(name)?
+            .write_scalar(&v)
     }
     match value.len() {
         0..=15 => put::<16>(loc, name, value),
@@ -92,25 +110,52 @@ impl TrajectoryWriter {
         let file = File::with_options()
             .with_fapl(|p| p.libver_v110())
             .create(path)
-            .map_err(|e| EngineError::OutputNotWritable { file: path.to_path_buf(), reason: e.to_string() })?;
+            .map_err(|e| EngineError::OutputNotWritable {
+                file: path.to_path_buf(),
+                reason: e.to_string(),
+            })?;
         let e = h5(path);
         let h5md = file.create_group("h5md").map_err(&e)?;
-        h5md.new_attr::<i32>().shape(2).create("version").and_then(|a| a.write(&[1i32, 1])).map_err(&e)?;
+        h5md.new_attr::<i32>()
+            .shape(2)
+            .create("version")
+            .and_then(|a| a.write(&[1i32, 1]))
+            .map_err(&e)?;
         let author = h5md.create_group("author").map_err(&e)?;
         write_str_attr(&author, "name", "thicket user").map_err(&e)?;
         let creator = h5md.create_group("creator").map_err(&e)?;
         write_str_attr(&creator, "name", CREATOR).map_err(&e)?;
         write_str_attr(&creator, "version", VERSION).map_err(&e)?;
-        let units = h5md.create_group("modules").and_then(|m| m.create_group("units")).map_err(&e)?;
-        units.new_attr::<i32>().shape(2).create("version").and_then(|a| a.write(&[1i32, 0])).map_err(&e)?;
+        let units = h5md
+            .create_group("modules")
+            .and_then(|m| m.create_group("units"))
+            .map_err(&e)?;
+        units
+            .new_attr::<i32>()
+            .shape(2)
+            .create("version")
+            .and_then(|a| a.write(&[1i32, 0]))
+            .map_err(&e)?;
         write_str_attr(&units, "system", "SI").map_err(&e)?;
 
-        let params = file.create_group("parameters").and_then(|p| p.create_group("thicket")).map_err(&e)?;
+        let params = file
+            .create_group("parameters")
+            .and_then(|p| p.create_group("thicket"))
+            .map_err(&e)?;
         write_str_attr(&params, "scenario", &scenario.resolved_toml).map_err(&e)?;
-        params.new_attr::<u64>().create("seed").and_then(|a| a.write_scalar(&scenario.seed)).map_err(&e)?;
+        params
+            .new_attr::<u64>()
+            .create("seed")
+            .and_then(|a| a.write_scalar(&scenario.seed))
+            .map_err(&e)?;
         write_str_attr(&params, "version", VERSION).map_err(&e)?;
         i64_attr(&params, "frames_planned", scenario.frames() as i64).map_err(&e)?;
-        i64_attr(&params, "record_every_steps", scenario.output.record_every_steps as i64).map_err(&e)?;
+        i64_attr(
+            &params,
+            "record_every_steps",
+            scenario.output.record_every_steps as i64,
+        )
+        .map_err(&e)?;
         f64_attr(&params, "dt_s", scenario.dt_s).map_err(&e)?;
         f64_attr(&params, "temperature_K", scenario.temperature_k).map_err(&e)?;
         f64_attr(&params, "viscosity_Pa_s", scenario.viscosity_pa_s).map_err(&e)?;
@@ -134,7 +179,13 @@ impl TrajectoryWriter {
             species.push(create_species_sets(&g, range, scenario.output.precision).map_err(&e)?);
         }
         file.flush().map_err(&e)?;
-        Ok(Self { path: path.to_path_buf(), file, species, precision: scenario.output.precision, frames: 0 })
+        Ok(Self {
+            path: path.to_path_buf(),
+            file,
+            species,
+            precision: scenario.output.precision,
+            frames: 0,
+        })
     }
 
     /// Reopens a trajectory for a resumed run, dropping frames past `frames`.
@@ -143,8 +194,12 @@ impl TrajectoryWriter {
     /// [`EngineError::Resume`] when the file lacks the expected datasets or
     /// has fewer frames than the checkpoint.
     pub fn reopen(path: &Path, scenario: &Scenario, frames: usize) -> Result<Self> {
-        let fail = |reason: String| EngineError::Resume { file: path.to_path_buf(), reason };
-        let file = File::open_rw(path).map_err(|e| fail(format!("the trajectory cannot be opened for writing: {e}")))?;
+        let fail = |reason: String| EngineError::Resume {
+            file: path.to_path_buf(),
+            reason,
+        };
+        let file = File::open_rw(path)
+            .map_err(|e| fail(format!("the trajectory cannot be opened for writing: {e}")))?;
         let mut species = Vec::new();
         let mut start = 0;
         for s in &scenario.species {
@@ -152,8 +207,11 @@ impl TrajectoryWriter {
             start = range.end;
             let base = format!("particles/{}", s.name);
             let open = |name: &str| {
-                file.dataset(&format!("{base}/{name}"))
-                    .map_err(|e| fail(format!("dataset /{base}/{name} is missing or unreadable: {e}")))
+                file.dataset(&format!("{base}/{name}")).map_err(|e| {
+                    fail(format!(
+                        "dataset /{base}/{name} is missing or unreadable: {e}"
+                    ))
+                })
             };
             let sets = SpeciesSets {
                 range,
@@ -162,7 +220,12 @@ impl TrajectoryWriter {
                 step: open("position/step")?,
                 time: open("position/time")?,
             };
-            for (name, ds) in [("position/value", &sets.value), ("image/value", &sets.image), ("position/step", &sets.step), ("position/time", &sets.time)] {
+            for (name, ds) in [
+                ("position/value", &sets.value),
+                ("image/value", &sets.image),
+                ("position/step", &sets.step),
+                ("position/time", &sets.time),
+            ] {
                 let have = ds.shape().first().copied().unwrap_or(0);
                 if have < frames {
                     return Err(fail(format!(
@@ -177,7 +240,13 @@ impl TrajectoryWriter {
             sets.time.resize(frames).map_err(h5(path))?;
             species.push(sets);
         }
-        Ok(Self { path: path.to_path_buf(), file, species, precision: scenario.output.precision, frames })
+        Ok(Self {
+            path: path.to_path_buf(),
+            file,
+            species,
+            precision: scenario.output.precision,
+            frames,
+        })
     }
 
     /// Frames written so far.
@@ -202,23 +271,34 @@ impl TrajectoryWriter {
                 let pos = &state.positions[base + lo..base + hi];
                 match self.precision {
                     Precision::F32 => {
-                        let buf = Array3::from_shape_fn((1, hi - lo, 3), |(_, i, k)| pos[i][k] as f32);
-                        sets.value.write_slice(&buf, s![f..f + 1, lo..hi, ..]).map_err(&e)?;
+                        let buf =
+                            Array3::from_shape_fn((1, hi - lo, 3), |(_, i, k)| pos[i][k] as f32);
+                        sets.value
+                            .write_slice(&buf, s![f..f + 1, lo..hi, ..])
+                            .map_err(&e)?;
                     }
                     Precision::F64 => {
                         let buf = Array3::from_shape_fn((1, hi - lo, 3), |(_, i, k)| pos[i][k]);
-                        sets.value.write_slice(&buf, s![f..f + 1, lo..hi, ..]).map_err(&e)?;
+                        sets.value
+                            .write_slice(&buf, s![f..f + 1, lo..hi, ..])
+                            .map_err(&e)?;
                     }
                 }
                 let im = &state.images[base + lo..base + hi];
                 let buf = Array3::from_shape_fn((1, hi - lo, 3), |(_, i, k)| im[i][k]);
-                sets.image.write_slice(&buf, s![f..f + 1, lo..hi, ..]).map_err(&e)?;
+                sets.image
+                    .write_slice(&buf, s![f..f + 1, lo..hi, ..])
+                    .map_err(&e)?;
             }
             // step and time last: a reader takes the shortest length as the frame count.
             sets.step.resize(f + 1).map_err(&e)?;
-            sets.step.write_slice(&Array1::from_elem(1, state.step as i64), s![f..f + 1]).map_err(&e)?;
+            sets.step
+                .write_slice(&Array1::from_elem(1, state.step as i64), s![f..f + 1])
+                .map_err(&e)?;
             sets.time.resize(f + 1).map_err(&e)?;
-            sets.time.write_slice(&Array1::from_elem(1, time_s), s![f..f + 1]).map_err(&e)?;
+            sets.time
+                .write_slice(&Array1::from_elem(1, time_s), s![f..f + 1])
+                .map_err(&e)?;
         }
         self.frames += 1;
         Ok(())
@@ -236,24 +316,111 @@ impl TrajectoryWriter {
     pub fn file(&self) -> &File {
         &self.file
     }
+
+    /// Writes fixed obstacles (spheres to `/particles/obstacles`, fibres to
+    /// `/parameters/thicket/fibres`); nothing when there are none.
+    ///
+    /// # Errors
+    /// HDF5 write failures.
+    pub fn write_obstacles(&self, obstacles: &FixedObstacles, scenario: &Scenario) -> Result<()> {
+        let e = h5(&self.path);
+        let spheres = &obstacles.spheres;
+        if !spheres.is_empty() {
+            let g = self
+                .file
+                .group("particles")
+                .and_then(|p| p.create_group("obstacles"))
+                .map_err(&e)?;
+            write_box(&g, scenario).map_err(&e)?;
+            let m = spheres.len();
+            let pos = g.create_group("position").map_err(&e)?;
+            let value = pos
+                .new_dataset::<f64>()
+                .shape((1, m, 3))
+                .create("value")
+                .map_err(&e)?;
+            let buf = Array3::from_shape_fn((1, m, 3), |(_, i, k)| spheres.centres_nm[i][k]);
+            value.write(&buf).map_err(&e)?;
+            write_str_attr(&value, "unit", "nm").map_err(&e)?;
+            pos.new_dataset::<i64>()
+                .shape(1)
+                .create("step")
+                .and_then(|d| d.write(&[0i64]))
+                .map_err(&e)?;
+            let time = pos
+                .new_dataset::<f64>()
+                .shape(1)
+                .create("time")
+                .map_err(&e)?;
+            time.write(&[0.0f64]).map_err(&e)?;
+            write_str_attr(&time, "unit", "s").map_err(&e)?;
+            let radius = g
+                .new_dataset::<f64>()
+                .shape(m)
+                .create("radius")
+                .map_err(&e)?;
+            radius.write(&spheres.radii_nm).map_err(&e)?;
+            write_str_attr(&radius, "unit", "nm").map_err(&e)?;
+        }
+        let fibres = &obstacles.fibres;
+        if !fibres.is_empty() {
+            let g = self
+                .file
+                .group("parameters/thicket")
+                .and_then(|p| p.create_group("fibres"))
+                .map_err(&e)?;
+            let f = fibres.len();
+            let centre = g
+                .new_dataset::<f64>()
+                .shape((f, 3))
+                .create("centre")
+                .map_err(&e)?;
+            let buf = ndarray::Array2::from_shape_fn((f, 3), |(i, k)| fibres.centres_nm[i][k]);
+            centre.write(&buf).map_err(&e)?;
+            write_str_attr(&centre, "unit", "nm").map_err(&e)?;
+            let direction = g
+                .new_dataset::<f64>()
+                .shape((f, 3))
+                .create("direction")
+                .map_err(&e)?;
+            let buf = ndarray::Array2::from_shape_fn((f, 3), |(i, k)| fibres.directions[i][k]);
+            direction.write(&buf).map_err(&e)?;
+            write_str_attr(&direction, "unit", "1").map_err(&e)?;
+            f64_attr(&g, "radius_nm", fibres.radius_nm).map_err(&e)?;
+            f64_attr(&g, "length_nm", fibres.length_nm).map_err(&e)?;
+            i64_attr(&g, "count", f as i64).map_err(&e)?;
+        }
+        self.file.flush().map_err(&e)
+    }
 }
 
 fn write_box(g: &Group, scenario: &Scenario) -> hdf5::Result<()> {
     let b = g.create_group("box")?;
-    b.new_attr::<i32>().create("dimension")?.write_scalar(&3i32)?;
+    b.new_attr::<i32>()
+        .create("dimension")?
+        .write_scalar(&3i32)?;
     let boundary: Vec<FixedAscii<8>> = scenario
         .sim_box
         .periodic
         .iter()
-        .map(|&p| FixedAscii::<8>::from_ascii(if p { "periodic" } else { "none" }).expect("ascii literal"))
+        .map(|&p| {
+            FixedAscii::<8>::from_ascii(if p { "periodic" } else { "none" }).expect("ascii literal")
+        })
         .collect();
-    b.new_attr::<FixedAscii<8>>().shape(3).create("boundary")?.write(&boundary)?;
+    b.new_attr::<FixedAscii<8>>()
+        .shape(3)
+        .create("boundary")?
+        .write(&boundary)?;
     let edges = b.new_dataset::<f64>().shape(3).create("edges")?;
     edges.write(&scenario.sim_box.edges_nm)?;
     write_str_attr(&edges, "unit", "nm")
 }
 
-fn create_species_sets(g: &Group, range: std::ops::Range<usize>, precision: Precision) -> hdf5::Result<SpeciesSets> {
+fn create_species_sets(
+    g: &Group,
+    range: std::ops::Range<usize>,
+    precision: Precision,
+) -> hdf5::Result<SpeciesSets> {
     let n = range.len();
     let chunk = (chunk_frames(n), chunk_particles(n), 3);
     let pos = g.create_group("position")?;
@@ -265,15 +432,33 @@ fn create_species_sets(g: &Group, range: std::ops::Range<usize>, precision: Prec
     .chunk(chunk)
     .create("value")?;
     write_str_attr(&value, "unit", "nm")?;
-    let step = pos.new_dataset::<i64>().shape(0..).chunk(1024).create("step")?;
-    let time = pos.new_dataset::<f64>().shape(0..).chunk(1024).create("time")?;
+    let step = pos
+        .new_dataset::<i64>()
+        .shape(0..)
+        .chunk(1024)
+        .create("step")?;
+    let time = pos
+        .new_dataset::<f64>()
+        .shape(0..)
+        .chunk(1024)
+        .create("time")?;
     write_str_attr(&time, "unit", "s")?;
     let img = g.create_group("image")?;
-    let image = img.new_dataset::<i32>().shape((0.., n, 3)).chunk(chunk).create("value")?;
+    let image = img
+        .new_dataset::<i32>()
+        .shape((0.., n, 3))
+        .chunk(chunk)
+        .create("value")?;
     let base = g.name();
     img.link_hard(&format!("{base}/position/step"), "step")?;
     img.link_hard(&format!("{base}/position/time"), "time")?;
-    Ok(SpeciesSets { range, value, image, step, time })
+    Ok(SpeciesSets {
+        range,
+        value,
+        image,
+        step,
+        time,
+    })
 }
 
 /// Path of the checkpoint that belongs to a trajectory file.
@@ -303,11 +488,19 @@ impl Checkpoint {
     /// # Errors
     /// I/O failures.
     pub fn save(&self, path: &Path) -> Result<()> {
-        let io = |source| EngineError::Io { file: path.to_path_buf(), source };
+        let io = |source| EngineError::Io {
+            file: path.to_path_buf(),
+            source,
+        };
         let n = self.state.len();
         let mut buf = Vec::with_capacity(64 + self.resolved_toml.len() + n * 68);
         buf.extend_from_slice(CHECKPOINT_MAGIC);
-        for v in [self.frames, self.state.step, n as u64, self.resolved_toml.len() as u64] {
+        for v in [
+            self.frames,
+            self.state.step,
+            n as u64,
+            self.resolved_toml.len() as u64,
+        ] {
             buf.extend_from_slice(&v.to_le_bytes());
         }
         buf.extend_from_slice(self.resolved_toml.as_bytes());
@@ -338,12 +531,22 @@ impl Checkpoint {
     /// # Errors
     /// [`EngineError::Resume`] when missing, truncated or not a checkpoint.
     pub fn load(path: &Path) -> Result<Self> {
-        let fail = |reason: String| EngineError::Resume { file: path.to_path_buf(), reason };
+        let fail = |reason: String| EngineError::Resume {
+            file: path.to_path_buf(),
+            reason,
+        };
         let mut bytes = Vec::new();
         std::fs::File::open(path)
             .and_then(|mut f| f.read_to_end(&mut bytes))
-            .map_err(|e| fail(format!("no readable checkpoint ({e}); only a run that was interrupted can be resumed")))?;
-        let mut r = Reader { bytes: &bytes, at: 0 };
+            .map_err(|e| {
+                fail(format!(
+                    "no readable checkpoint ({e}); only a run that was interrupted can be resumed"
+                ))
+            })?;
+        let mut r = Reader {
+            bytes: &bytes,
+            at: 0,
+        };
         if r.take(8) != Some(CHECKPOINT_MAGIC.as_slice()) {
             return Err(fail("the file is not a thicket checkpoint".into()));
         }
@@ -353,7 +556,8 @@ impl Checkpoint {
         let n = r.u64().ok_or_else(short)? as usize;
         let len = r.u64().ok_or_else(short)? as usize;
         let toml = r.take(len).ok_or_else(short)?;
-        let resolved_toml = String::from_utf8(toml.to_vec()).map_err(|_| fail("the checkpoint's scenario is not text".into()))?;
+        let resolved_toml = String::from_utf8(toml.to_vec())
+            .map_err(|_| fail("the checkpoint's scenario is not text".into()))?;
         if bytes.len() != r.at + n * (24 + 12 + 32) {
             return Err(short());
         }
@@ -367,9 +571,20 @@ impl Checkpoint {
         }
         let mut rngs = Vec::with_capacity(n);
         for _ in 0..n {
-            rngs.push(ParticleRng::from_state([r.u64(), r.u64(), r.u64(), r.u64()].map(|v| v.unwrap_or(1))));
+            rngs.push(ParticleRng::from_state(
+                [r.u64(), r.u64(), r.u64(), r.u64()].map(|v| v.unwrap_or(1)),
+            ));
         }
-        Ok(Self { frames, resolved_toml, state: State { positions, images, rngs, step } })
+        Ok(Self {
+            frames,
+            resolved_toml,
+            state: State {
+                positions,
+                images,
+                rngs,
+                step,
+            },
+        })
     }
 }
 
@@ -385,12 +600,232 @@ impl<'a> Reader<'a> {
         Some(out)
     }
     fn u64(&mut self) -> Option<u64> {
-        self.take(8).map(|b| u64::from_le_bytes(b.try_into().expect("8 bytes")))
+        self.take(8)
+            .map(|b| u64::from_le_bytes(b.try_into().expect("8 bytes")))
     }
     fn f64(&mut self) -> Option<f64> {
-        self.take(8).map(|b| f64::from_le_bytes(b.try_into().expect("8 bytes")))
+        self.take(8)
+            .map(|b| f64::from_le_bytes(b.try_into().expect("8 bytes")))
     }
     fn i32(&mut self) -> Option<i32> {
-        self.take(4).map(|b| i32::from_le_bytes(b.try_into().expect("4 bytes")))
+        self.take(4)
+            .map(|b| i32::from_le_bytes(b.try_into().expect("4 bytes")))
+    }
+}
+
+/// A value written as an HDF5 attribute by [`write_attributes`].
+#[derive(Debug, Clone, PartialEq)]
+pub enum AttrValue {
+    /// A float.
+    F64(f64),
+    /// An integer.
+    I64(i64),
+    /// A string (fixed-length ASCII; non-ASCII characters are replaced by '?').
+    Str(String),
+}
+
+/// Spells the symbols of our messages in ASCII (HDF5 attributes here are
+/// fixed-length ASCII); anything else becomes '?'.
+fn to_ascii(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    for c in text.chars() {
+        let spelled = match c {
+            c if c.is_ascii() => {
+                out.push(c);
+                continue;
+            }
+            '∥' => "_par",
+            '⊥' => "_perp",
+            '∇' => "nabla",
+            '·' => ".",
+            '−' | '–' | '—' => "-",
+            'é' | 'è' => "e",
+            'ô' => "o",
+            'λ' => "lambda",
+            'Φ' => "Phi",
+            'σ' => "sigma",
+            'ε' => "eps",
+            '²' => "^2",
+            '³' => "^3",
+            '×' => "x",
+            '…' => "...",
+            '√' => "sqrt",
+            _ => "?",
+        };
+        out.push_str(spelled);
+    }
+    out
+}
+
+/// Opens the group at `path` (e.g. `observables/tracer/membrane`), creating
+/// missing levels.
+fn ensure_group(file: &File, path: &str) -> hdf5::Result<Group> {
+    let mut group = file.group("/")?;
+    for part in path.split('/').filter(|p| !p.is_empty()) {
+        group = match group.group(part) {
+            Ok(g) => g,
+            Err(_) => group.create_group(part)?,
+        };
+    }
+    Ok(group)
+}
+
+/// Writes (or replaces) attributes on the group at `path`, creating it if
+/// needed: geometry parameters under `/parameters/thicket/geometry`,
+/// measured summaries under `/observables`.
+///
+/// # Errors
+/// HDF5 failures.
+pub fn write_attributes(
+    writer: &TrajectoryWriter,
+    path: &str,
+    attrs: &[(&str, AttrValue)],
+) -> Result<()> {
+    let e = h5(&writer.path);
+    let group = ensure_group(&writer.file, path).map_err(&e)?;
+    for (name, value) in attrs {
+        if group.attr(name).is_ok() {
+            group.delete_attr(name).map_err(&e)?;
+        }
+        match value {
+            AttrValue::F64(v) => f64_attr(&group, name, *v),
+            AttrValue::I64(v) => i64_attr(&group, name, *v),
+            AttrValue::Str(s) => write_str_attr(&group, name, &to_ascii(s)),
+        }
+        .map_err(&e)?;
+    }
+    Ok(())
+}
+
+/// An H5MD observable time series under `/observables/<name>`: `value`
+/// (frames × columns, i64), `step` and `time`, appended frame by frame; the
+/// `columns` attribute names the columns, comma-separated.
+pub struct ObservableSeries {
+    path: PathBuf,
+    value: Dataset,
+    step: Dataset,
+    time: Dataset,
+    columns: usize,
+    rows: usize,
+}
+
+impl ObservableSeries {
+    /// Creates an empty series with the named columns.
+    ///
+    /// # Errors
+    /// HDF5 failures.
+    pub fn create(
+        writer: &TrajectoryWriter,
+        name: &str,
+        columns: &[&str],
+        unit: &str,
+    ) -> Result<Self> {
+        let e = h5(&writer.path);
+        let g = ensure_group(&writer.file, &format!("observables/{name}")).map_err(&e)?;
+        let value = g
+            .new_dataset::<i64>()
+            .shape((0.., columns.len()))
+            .chunk((256, columns.len()))
+            .create("value")
+            .map_err(&e)?;
+        write_str_attr(&value, "unit", unit).map_err(&e)?;
+        write_str_attr(&value, "columns", &columns.join(",")).map_err(&e)?;
+        let step = g
+            .new_dataset::<i64>()
+            .shape(0..)
+            .chunk(1024)
+            .create("step")
+            .map_err(&e)?;
+        let time = g
+            .new_dataset::<f64>()
+            .shape(0..)
+            .chunk(1024)
+            .create("time")
+            .map_err(&e)?;
+        write_str_attr(&time, "unit", "s").map_err(&e)?;
+        Ok(Self {
+            path: writer.path.clone(),
+            value,
+            step,
+            time,
+            columns: columns.len(),
+            rows: 0,
+        })
+    }
+
+    /// Reopens a series for a resumed run, keeping its first `rows` rows.
+    ///
+    /// # Errors
+    /// [`EngineError::Resume`] when the series is missing, has another
+    /// width or fewer rows.
+    pub fn reopen(
+        writer: &TrajectoryWriter,
+        name: &str,
+        columns: usize,
+        rows: usize,
+    ) -> Result<Self> {
+        let fail = |reason: String| EngineError::Resume {
+            file: writer.path.clone(),
+            reason,
+        };
+        let open = |set: &str| {
+            writer
+                .file
+                .dataset(&format!("observables/{name}/{set}"))
+                .map_err(|e| {
+                    fail(format!(
+                        "dataset /observables/{name}/{set} is missing or unreadable: {e}"
+                    ))
+                })
+        };
+        let (value, step, time) = (open("value")?, open("step")?, open("time")?);
+        let shape = value.shape();
+        if shape.len() != 2
+            || shape[1] != columns
+            || shape[0] < rows
+            || step.shape().first().copied().unwrap_or(0) < rows
+        {
+            return Err(fail(format!("/observables/{name} does not match the checkpoint ({shape:?}, expected at least {rows} rows of {columns})")));
+        }
+        let e = h5(&writer.path);
+        value.resize((rows, columns)).map_err(&e)?;
+        step.resize(rows).map_err(&e)?;
+        time.resize(rows).map_err(&e)?;
+        Ok(Self {
+            path: writer.path.clone(),
+            value,
+            step,
+            time,
+            columns,
+            rows,
+        })
+    }
+
+    /// Appends one row.
+    ///
+    /// # Errors
+    /// HDF5 failures; a row of the wrong width is refused.
+    pub fn append(&mut self, step: u64, time_s: f64, values: &[i64]) -> Result<()> {
+        let e = h5(&self.path);
+        if values.len() != self.columns {
+            return Err(EngineError::Hdf5 {
+                file: self.path.clone(),
+                source: hdf5::Error::from("observable row of the wrong width"),
+            });
+        }
+        let f = self.rows;
+        self.value.resize((f + 1, self.columns)).map_err(&e)?;
+        let row = ndarray::Array2::from_shape_fn((1, self.columns), |(_, k)| values[k]);
+        self.value.write_slice(&row, s![f..f + 1, ..]).map_err(&e)?;
+        self.step.resize(f + 1).map_err(&e)?;
+        self.step
+            .write_slice(&Array1::from_elem(1, step as i64), s![f..f + 1])
+            .map_err(&e)?;
+        self.time.resize(f + 1).map_err(&e)?;
+        self.time
+            .write_slice(&Array1::from_elem(1, time_s), s![f..f + 1])
+            .map_err(&e)?;
+        self.rows += 1;
+        Ok(())
     }
 }

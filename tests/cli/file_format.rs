@@ -7,7 +7,18 @@ fn small_run(dir: &std::path::Path) -> std::path::PathBuf {
     let cfg = free_config(dir);
     ok(&thicket(
         dir,
-        &["run", cfg.to_str().unwrap(), "--out", "t.h5", "--set", "integrator.steps=800", "--set", "output.record_every_steps=8", "--set", "species.bead.count=50"],
+        &[
+            "run",
+            cfg.to_str().unwrap(),
+            "--out",
+            "t.h5",
+            "--set",
+            "integrator.steps=800",
+            "--set",
+            "output.record_every_steps=8",
+            "--set",
+            "species.bead.count=50",
+        ],
     ));
     dir.join("t.h5")
 }
@@ -18,8 +29,15 @@ fn small_run(dir: &std::path::Path) -> std::path::PathBuf {
 fn h5dump_shows_the_h5md_layout() {
     let dir = tempdir();
     let file = small_run(dir.path());
-    let out = Command::new("h5dump").args(["-A", file.to_str().unwrap()]).output().expect("h5dump (hdf5-tools) is installed");
-    assert!(out.status.success(), "h5dump failed: {}", String::from_utf8_lossy(&out.stderr));
+    let out = Command::new("h5dump")
+        .args(["-A", file.to_str().unwrap()])
+        .output()
+        .expect("h5dump (hdf5-tools) is installed");
+    assert!(
+        out.status.success(),
+        "h5dump failed: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let text = String::from_utf8_lossy(&out.stdout);
     for needle in [
         "GROUP \"h5md\"",
@@ -80,17 +98,30 @@ out = {
 }
 print(json.dumps(out))
 "#;
-    let out = std::process::Command::new("python3").args(["-c", script, file.to_str().unwrap()]).output().expect("python3 runs");
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let out = std::process::Command::new("python3")
+        .args(["-c", script, file.to_str().unwrap()])
+        .output()
+        .expect("python3 runs");
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     assert_eq!(v["version"], serde_json::json!([1, 1]));
     // 800 steps recorded every 8: 101 frames of 50 particles.
     assert_eq!(v["shape"], serde_json::json!([101, 50, 3]));
     assert_eq!(v["unit"], "nm");
     assert_eq!(v["time_unit"], "s");
-    assert_eq!(v["same_object"], true, "image/step must be a hard link to position/step");
+    assert_eq!(
+        v["same_object"], true,
+        "image/step must be a hard link to position/step"
+    );
     assert_eq!(v["inside"], true);
     assert_eq!(v["steps"], serde_json::json!([0, 8, 16]));
-    assert_eq!(v["boundary"], serde_json::json!(["periodic", "periodic", "periodic"]));
+    assert_eq!(
+        v["boundary"],
+        serde_json::json!(["periodic", "periodic", "periodic"])
+    );
     assert_eq!(v["dimension"], 3);
 }

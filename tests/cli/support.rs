@@ -15,7 +15,11 @@ pub fn repo(rel: &str) -> PathBuf {
 
 /// Runs `thicket ARGS` in `dir` and returns its output.
 pub fn thicket(dir: &Path, args: &[&str]) -> Output {
-    Command::new(bin()).args(args).current_dir(dir).output().expect("the thicket binary runs")
+    Command::new(bin())
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .expect("the thicket binary runs")
 }
 
 /// Stderr as text.
@@ -30,7 +34,13 @@ pub fn stdout(out: &Output) -> String {
 
 /// Asserts success and returns stdout.
 pub fn ok(out: &Output) -> String {
-    assert!(out.status.success(), "thicket failed ({:?}):\nstdout: {}\nstderr: {}", out.status, stdout(out), stderr(out));
+    assert!(
+        out.status.success(),
+        "thicket failed ({:?}):\nstdout: {}\nstderr: {}",
+        out.status,
+        stdout(out),
+        stderr(out)
+    );
     stdout(out)
 }
 
@@ -78,10 +88,30 @@ fn collect(group: &hdf5::Group, prefix: &str, out: &mut Vec<(String, Vec<u8>)>) 
             let dtype = ds.dtype().expect("dtype");
             let size = dtype.size();
             let bytes: Vec<u8> = match size {
-                4 if dtype.is::<f32>() => ds.read_raw::<f32>().unwrap().iter().flat_map(|v| v.to_le_bytes()).collect(),
-                4 => ds.read_raw::<i32>().unwrap().iter().flat_map(|v| v.to_le_bytes()).collect(),
-                8 if dtype.is::<f64>() => ds.read_raw::<f64>().unwrap().iter().flat_map(|v| v.to_le_bytes()).collect(),
-                8 => ds.read_raw::<i64>().unwrap().iter().flat_map(|v| v.to_le_bytes()).collect(),
+                4 if dtype.is::<f32>() => ds
+                    .read_raw::<f32>()
+                    .unwrap()
+                    .iter()
+                    .flat_map(|v| v.to_le_bytes())
+                    .collect(),
+                4 => ds
+                    .read_raw::<i32>()
+                    .unwrap()
+                    .iter()
+                    .flat_map(|v| v.to_le_bytes())
+                    .collect(),
+                8 if dtype.is::<f64>() => ds
+                    .read_raw::<f64>()
+                    .unwrap()
+                    .iter()
+                    .flat_map(|v| v.to_le_bytes())
+                    .collect(),
+                8 => ds
+                    .read_raw::<i64>()
+                    .unwrap()
+                    .iter()
+                    .flat_map(|v| v.to_le_bytes())
+                    .collect(),
                 other => panic!("{path}: unexpected element size {other}"),
             };
             out.push((path, bytes));

@@ -1,0 +1,1154 @@
+//! Fixed spherical obstacles: where they are and how they got there.
+//!
+//! Four ways to place them, all reproducible from the run seed (they draw
+//! from [`OBSTACLE_STREAM`], a stream no particle uses, so a resumed run
+//! rebuilds the same medium):
+//!
+//! * random sequential addition (RSA): uniform random centres, each kept only
+//!   if it overlaps no earlier obstacle (and no wall); it jams near
+//!   φ ≈ 0.3841 for equal spheres (Zhang & Torquato 2013), and a target it
+//!   cannot reach stops after a bounded number of attempts, saying what was
+//!   reached;
+//! * Poisson: independent uniform centres that may overlap freely (the
+//!   "overlapping spheres" model of porous media, whose open fraction is
+//!   exactly exp(−n·(4/3)π(a+b)³));
+//! * simple cubic and face-centred cubic lattices commensurate with the box;
+//! * a CSV file of centres and radii, for a measured microstructure.
+//!
+//! Radii may be fixed, uniform or log-normal; the target is a volume
+//! fraction or a count. On walled axes every obstacle lies wholly inside the
+//! box. All lengths are nm.
+
+use crate::config::{Scenario, SimBox};
+use crate::error::{EngineError, Result};
+use crate::fibres::{self, Fibres};
+use crate::neighbors::{min_image_distance2, DynamicGrid, ObstacleGrid};
+use crate::rng::{standard_normal, ParticleRng};
+use std::f64::consts::PI;
+use std::path::{Path, PathBuf};
+
+/// Stream index (with the run seed) of sphere placement; particle indices
+/// never come near it.
+pub const OBSTACLE_STREAM: u64 = u64::MAX;
+/// Stream index of the Monte Carlo estimates printed by `check`.
+pub const SAMPLING_STREAM: u64 = u64::MAX - 2;
+/// Jamming fraction of random sequential addition of equal spheres,
+/// φ ≈ 0.3841 (Zhang & Torquato 2013, REFERENCE.md; from memory).
+pub const RSA_JAMMING_FRACTION: f64 = 0.3841;
+/// Simple cubic lattice of touching spheres: φ = π/6.
+pub const SIMPLE_CUBIC_MAX_FRACTION: f64 = PI / 6.0;
+/// Face-centred cubic lattice of touching spheres: φ = π/(3√2).
+pub const FCC_MAX_FRACTION: f64 = 0.740_480_489_693_061;
+/// RSA attempts allowed per obstacle asked for (plus [`RSA_ATTEMPT_FLOOR`]):
+/// enough to come within about 1 % of jamming, and a fixed bound on time.
+pub const RSA_ATTEMPTS_PER_OBSTACLE: u64 = 1000;
+/// Attempts every RSA placement may use whatever its size.
+pub const RSA_ATTEMPT_FLOOR: u64 = 2_000_000;
+/// Relative difference allowed between a lattice's achieved and requested
+/// volume fraction (whole unit cells must fill the box).
+pub const LATTICE_FRACTION_TOLERANCE: f64 = 0.005;
+/// Redraws allowed for one truncated log-normal radius before giving up.
+const TRUNCATION_REDRAWS: usize = 10_000;
+
+/// How generated obstacles are placed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Generator {
+    /// Random sequential addition: non-overlapping.
+    RandomSequential,
+    /// Independent uniform centres: freely overlapping.
+    Poisson,
+    /// Simple cubic lattice.
+    SimpleCubic,
+    /// Face-centred cubic lattice.
+    FaceCentredCubic,
+}
+
+impl Generator {
+    /// The name used in scenario files.
+    pub fn name(self) -> &'static str {
+        match self {
+            Self::RandomSequential => "random",
+            Self::Poisson => "poisson",
+            Self::SimpleCubic => "simple_cubic",
+            Self::FaceCentredCubic => "fcc",
+        }
+    }
+}
+
+/// Distribution of obstacle radii.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum RadiusDistribution {
+    /// Every obstacle has this radius.
+    Fixed {
+        /// Radius, nm.
+        radius_nm: f64,
+    },
+    /// Uniform between two radii.
+    Uniform {
+        /// Smallest radius, nm.
+        min_nm: f64,
+        /// Largest radius, nm.
+        max_nm: f64,
+    },
+    /// Log-normal: ln r is normal with mean ln(median) and standard deviation
+    /// `log_sd`, optionally truncated to [min, max] by redrawing.
+    LogNormal {
+        /// Median radius, nm.
+        median_nm: f64,
+        /// Standard deviation of ln r.
+        log_sd: f64,
+        /// Smallest radius kept, nm (0 for none).
+        min_nm: f64,
+        /// Largest radius kept, nm (infinite for none).
+        max_nm: f64,
+    },
+}
+
+impl RadiusDistribution {
+    /// One radius from `rng`; `None` when a truncated log-normal keeps
+    /// missing its window.
+    pub fn sample(&self, rng: &mut ParticleRng) -> Option<f64> {
+        match *self {
+            Self::Fixed { radius_nm } => Some(radius_nm),
+            Self::Uniform { min_nm, max_nm } => Some(min_nm + (max_nm - min_nm) * rng.uniform()),
+            Self::LogNormal {
+                median_nm,
+                log_sd,
+                min_nm,
+                max_nm,
+            } => {
+                for _ in 0..TRUNCATION_REDRAWS {
+                    let r = median_nm * (log_sd * standard_normal(rng)).exp();
+                    if (min_nm..=max_nm).contains(&r) {
+                        return Some(r);
+                    }
+                }
+                None
+            }
+        }
+    }
+
+    /// Largest radius the distribution can produce (infinite for an
+    /// untruncated log-normal).
+    pub fn max_nm(&self) -> f64 {
+        match *self {
+            Self::Fixed { radius_nm } => radius_nm,
+            Self::Uniform { max_nm, .. } => max_nm,
+            Self::LogNormal { max_nm, .. } => max_nm,
+        }
+    }
+
+    /// Mean sphere volume ⟨(4/3)π r³⟩, nm³.
+    pub fn mean_volume_nm3(&self) -> f64 {
+        let k = 4.0 / 3.0 * PI;
+        match *self {
+            Self::Fixed { radius_nm } => k * radius_nm.powi(3),
+            Self::Uniform { min_nm, max_nm } => {
+                if max_nm == min_nm {
+                    k * min_nm.powi(3)
+                } else {
+                    k * (max_nm.powi(4) - min_nm.powi(4)) / (4.0 * (max_nm - min_nm))
+                }
+            }
+            Self::LogNormal {
+                median_nm,
+                log_sd,
+                min_nm,
+                max_nm,
+            } => {
+                // Simpson's rule over the standard normal variable of ln r,
+                // restricted to the truncation window (and to ±12 standard deviations).
+                let z_of = |r: f64| {
+                    if r <= 0.0 {
+                        -12.0
+                    } else {
+                        ((r / median_nm).ln() / log_sd).clamp(-12.0, 12.0)
+                    }
+                };
+                let (z0, z1) = if log_sd == 0.0 {
+                    (0.0, 0.0)
+                } else {
+                    (
+                        z_of(min_nm),
+                        if max_nm.is_finite() {
+                            z_of(max_nm)
+                        } else {
+                            12.0
+                        },
+                    )
+                };
+                if log_sd == 0.0 || z1 <= z0 {
+                    return k * median_nm.powi(3);
+                }
+                let n = 4000;
+                let h = (z1 - z0) / n as f64;
+                let (mut num, mut den) = (0.0, 0.0);
+                for i in 0..=n {
+                    let z = z0 + i as f64 * h;
+                    let w = if i == 0 || i == n {
+                        1.0
+                    } else if i % 2 == 1 {
+                        4.0
+                    } else {
+                        2.0
+                    };
+                    let pdf = (-0.5 * z * z).exp();
+                    num += w * pdf * (3.0 * log_sd * z).exp();
+                    den += w * pdf;
+                }
+                k * median_nm.powi(3) * num / den
+            }
+        }
+    }
+}
+
+/// What a generated placement aims for.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Target {
+    /// Fraction of the box volume covered by obstacles (for overlapping
+    /// obstacles, the covered fraction of the union).
+    VolumeFraction(f64),
+    /// Number of obstacles.
+    Count(usize),
+}
+
+/// Validated `[obstacles]` section.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ObstacleSpec {
+    /// Obstacles generated from the seed.
+    Generated {
+        /// Placement method.
+        generator: Generator,
+        /// Radii.
+        radii: RadiusDistribution,
+        /// Volume fraction or count.
+        target: Target,
+    },
+    /// Obstacles read from a CSV file.
+    File {
+        /// Resolved path of the CSV file.
+        path: PathBuf,
+        /// Whether obstacles in the file may overlap each other. By default, this is disabled.
+        allow_overlap: bool,
+    },
+}
+
+/// Fixed spheres: centres (inside the box) and radii, nm.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Spheres {
+    /// Centres, nm, in [0, L) on every axis.
+    pub centres_nm: Vec<[f64; 3]>,
+    /// Radii, nm.
+    pub radii_nm: Vec<f64>,
+    /// True when the spheres may overlap each other (Poisson, or a file that allows it).
+    pub may_overlap: bool,
+}
+
+impl Spheres {
+    /// Number of spheres.
+    pub fn len(&self) -> usize {
+        self.radii_nm.len()
+    }
+
+    /// True when there are none.
+    pub fn is_empty(&self) -> bool {
+        self.radii_nm.is_empty()
+    }
+
+    /// Sum of sphere volumes over the box volume (the covered fraction when
+    /// they do not overlap).
+    pub fn nominal_volume_fraction(&self, sim_box: &SimBox) -> f64 {
+        let v: f64 = self
+            .radii_nm
+            .iter()
+            .map(|r| 4.0 / 3.0 * PI * r.powi(3))
+            .sum();
+        v / box_volume(sim_box)
+    }
+}
+
+/// Everything fixed in a scenario: spheres and fibres.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct FixedObstacles {
+    /// Spherical obstacles.
+    pub spheres: Spheres,
+    /// Fibres.
+    pub fibres: Fibres,
+}
+
+/// A Monte Carlo estimate with its standard error.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Estimate {
+    /// The estimate.
+    pub value: f64,
+    /// Its standard error (0 when exact).
+    pub standard_error: f64,
+}
+
+fn box_volume(sim_box: &SimBox) -> f64 {
+    sim_box.edges_nm.iter().product()
+}
+
+impl FixedObstacles {
+    /// Places the spheres and fibres a scenario asks for (none if it asks for none).
+    ///
+    /// # Errors
+    /// [`EngineError::Placement`] when a target cannot be reached, and the
+    /// CSV errors of [`read_csv`].
+    pub fn build(scenario: &Scenario) -> Result<Self> {
+        let spheres = match &scenario.obstacles {
+            None => Spheres::default(),
+            Some(spec) => place_spheres(spec, &scenario.sim_box, scenario.seed, &scenario.source)?,
+        };
+        let fibres = match &scenario.fibres {
+            None => Fibres::default(),
+            Some(spec) => fibres::place_fibres(spec, &scenario.sim_box, scenario.seed),
+        };
+        Ok(Self { spheres, fibres })
+    }
+
+    /// True when there is nothing fixed.
+    pub fn is_empty(&self) -> bool {
+        self.spheres.is_empty() && self.fibres.is_empty()
+    }
+
+    /// Fraction of the box covered by obstacles (their union).
+    ///
+    /// Exact (standard error 0) for non-overlapping spheres without fibres,
+    /// else estimated from `samples` uniform points drawn from the seeded
+    /// [`SAMPLING_STREAM`].
+    pub fn volume_fraction(&self, sim_box: &SimBox, samples: usize, seed: u64) -> Estimate {
+        if self.fibres.is_empty() && !self.spheres.may_overlap {
+            return Estimate {
+                value: self.spheres.nominal_volume_fraction(sim_box),
+                standard_error: 0.0,
+            };
+        }
+        let grid = ObstacleGrid::build(&self.spheres, &self.fibres, 0.0, sim_box);
+        let open = sample_fraction(sim_box, samples, seed, |p| !grid.blocked(p));
+        Estimate {
+            value: 1.0 - open.value,
+            standard_error: open.standard_error,
+        }
+    }
+
+    /// Fraction of the box open to the centre of a sphere of radius
+    /// `tracer_radius_nm`: outside every obstacle grown by that radius and at
+    /// least that far from every wall. Estimated from `samples` uniform points
+    /// of the seeded [`SAMPLING_STREAM`]; the standard error is binomial.
+    pub fn open_fraction(
+        &self,
+        sim_box: &SimBox,
+        tracer_radius_nm: f64,
+        samples: usize,
+        seed: u64,
+    ) -> Estimate {
+        let grid = ObstacleGrid::build(&self.spheres, &self.fibres, tracer_radius_nm, sim_box);
+        let mut lo = [0.0; 3];
+        let mut hi = sim_box.edges_nm;
+        for k in 0..3 {
+            if !sim_box.periodic[k] {
+                lo[k] = tracer_radius_nm;
+                hi[k] -= tracer_radius_nm;
+            }
+        }
+        sample_fraction(sim_box, samples, seed, |p| {
+            (0..3).all(|k| p[k] >= lo[k] && p[k] <= hi[k]) && !grid.blocked(p)
+        })
+    }
+}
+
+/// Fraction of uniform points in the box for which `open` holds.
+fn sample_fraction(
+    sim_box: &SimBox,
+    samples: usize,
+    seed: u64,
+    open: impl Fn(&[f64; 3]) -> bool,
+) -> Estimate {
+    let mut rng = ParticleRng::for_particle(seed, SAMPLING_STREAM);
+    let samples = samples.max(1);
+    let mut hits = 0usize;
+    for _ in 0..samples {
+        let p = [0, 1, 2].map(|k| rng.uniform() * sim_box.edges_nm[k]);
+        hits += open(&p) as usize;
+    }
+    let p = hits as f64 / samples as f64;
+    Estimate {
+        value: p,
+        standard_error: (p * (1.0 - p) / samples as f64).sqrt(),
+    }
+}
+
+fn placement_error(file: &Path, reason: String) -> EngineError {
+    EngineError::Placement {
+        file: file.to_path_buf(),
+        reason,
+    }
+}
+
+/// Allowed range of a centre coordinate for a sphere of radius r on axis k.
+fn centre_range(sim_box: &SimBox, k: usize, r: f64) -> (f64, f64) {
+    if sim_box.periodic[k] {
+        (0.0, sim_box.edges_nm[k])
+    } else {
+        (r, sim_box.edges_nm[k] - r)
+    }
+}
+
+/// Places spheres as `spec` asks; `scenario_file` is named in messages.
+///
+/// # Errors
+/// [`EngineError::Placement`] for targets that cannot be reached, and the
+/// errors of [`read_csv`].
+pub fn place_spheres(
+    spec: &ObstacleSpec,
+    sim_box: &SimBox,
+    seed: u64,
+    scenario_file: &Path,
+) -> Result<Spheres> {
+    match spec {
+        ObstacleSpec::File {
+            path,
+            allow_overlap,
+        } => read_csv(path, sim_box, *allow_overlap, scenario_file),
+        ObstacleSpec::Generated {
+            generator,
+            radii,
+            target,
+        } => {
+            let mut rng = ParticleRng::for_particle(seed, OBSTACLE_STREAM);
+            match generator {
+                Generator::RandomSequential => {
+                    random_sequential(radii, *target, sim_box, &mut rng, scenario_file)
+                }
+                Generator::Poisson => poisson(radii, *target, sim_box, &mut rng, scenario_file),
+                Generator::SimpleCubic | Generator::FaceCentredCubic => {
+                    lattice(*generator, radii, *target, sim_box, scenario_file)
+                }
+            }
+        }
+    }
+}
+
+/// Draws radii for a target: `count` of them, or as many as bring the summed
+/// volume closest to φ·V.
+fn draw_radii(
+    radii: &RadiusDistribution,
+    target: Target,
+    sim_box: &SimBox,
+    rng: &mut ParticleRng,
+    file: &Path,
+) -> Result<Vec<f64>> {
+    let fail = || {
+        placement_error(
+            file,
+            "the log-normal radius distribution almost never falls inside obstacles.radius_min_nm … radius_max_nm; widen the window".into(),
+        )
+    };
+    let min_edge = sim_box
+        .edges_nm
+        .iter()
+        .cloned()
+        .fold(f64::INFINITY, f64::min);
+    let check_size = |r: f64| -> Result<f64> {
+        if 2.0 * r >= min_edge {
+            Err(placement_error(
+                file,
+                format!(
+                    "an obstacle of radius {r:.4} nm was drawn, larger than the box (smallest edge {min_edge} nm); \
+                     set obstacles.radius_max_nm below {:.4} nm",
+                    0.5 * min_edge
+                ),
+            ))
+        } else {
+            Ok(r)
+        }
+    };
+    let mut out = Vec::new();
+    match target {
+        Target::Count(n) => {
+            for _ in 0..n {
+                out.push(check_size(radii.sample(rng).ok_or_else(fail)?)?);
+            }
+        }
+        Target::VolumeFraction(phi) => {
+            let goal = phi * box_volume(sim_box);
+            let mut sum = 0.0;
+            loop {
+                let r = check_size(radii.sample(rng).ok_or_else(fail)?)?;
+                let v = 4.0 / 3.0 * PI * r.powi(3);
+                // Stop where the total lands closest to the goal.
+                if sum + v - goal > goal - sum {
+                    break;
+                }
+                sum += v;
+                out.push(r);
+            }
+        }
+    }
+    Ok(out)
+}
+
+/// Consecutive failed RSA trials after which trial centres are drawn from
+/// the voxels that may still hold one.
+const RSA_VOXEL_AFTER_FAILURES: u64 = 5_000;
+/// Voxel edge as a fraction of the radius being placed.
+const RSA_VOXEL_OVER_RADIUS: f64 = 0.25;
+/// Largest number of voxels (32 MB of indices).
+const RSA_MAX_VOXELS: usize = 1 << 23;
+
+/// Voxels of the box that may still hold the centre of a new sphere of
+/// radius `radius`: every other voxel lies wholly inside some sphere's
+/// exclusion zone. Trial centres drawn uniformly from these voxels are
+/// uniform over a superset of the open space, so random sequential addition
+/// keeps its statistics while wasting far fewer trials near jamming.
+struct OpenVoxels {
+    origin: [f64; 3],
+    edge: [f64; 3],
+    n: [usize; 3],
+    list: Vec<u32>,
+    radius: f64,
+}
+
+impl OpenVoxels {
+    fn new(sim_box: &SimBox, radius: f64, spheres: &Spheres, grid: &DynamicGrid) -> Self {
+        // Only the region a centre may occupy (a radius from any wall).
+        let range = [0, 1, 2].map(|k| centre_range(sim_box, k, radius));
+        let span = range.map(|(lo, hi)| (hi - lo).max(0.0));
+        let mut target = RSA_VOXEL_OVER_RADIUS * radius;
+        let n = loop {
+            let n = span.map(|l| ((l / target).ceil() as usize).max(1));
+            if n[0] * n[1] * n[2] <= RSA_MAX_VOXELS {
+                break n;
+            }
+            target *= 1.25;
+        };
+        let edge = [0, 1, 2].map(|k| span[k] / n[k] as f64);
+        let origin = range.map(|(lo, _)| lo);
+        let mut v = Self {
+            origin,
+            edge,
+            n,
+            list: (0..(n[0] * n[1] * n[2]) as u32).collect(),
+            radius,
+        };
+        v.prune(sim_box, spheres, grid);
+        v
+    }
+
+    fn corner(&self, id: u32) -> [f64; 3] {
+        let id = id as usize;
+        let ijk = [
+            id / (self.n[1] * self.n[2]),
+            (id / self.n[2]) % self.n[1],
+            id % self.n[2],
+        ];
+        [0, 1, 2].map(|k| self.origin[k] + ijk[k] as f64 * self.edge[k])
+    }
+
+    /// Drops voxels that now lie wholly inside an exclusion zone.
+    fn prune(&mut self, sim_box: &SimBox, spheres: &Spheres, grid: &DynamicGrid) {
+        let half = self.edge.map(|e| 0.5 * e);
+        let r = self.radius;
+        let corners: Vec<[f64; 3]> = self.list.iter().map(|&id| self.corner(id)).collect();
+        let mut kept = Vec::with_capacity(self.list.len());
+        for (&id, lo) in self.list.iter().zip(&corners) {
+            let mid = [lo[0] + half[0], lo[1] + half[1], lo[2] + half[2]];
+            let covered = grid.any_near(&mid, |j| {
+                let j = j as usize;
+                let d = crate::neighbors::min_image_delta(sim_box, &mid, &spheres.centres_nm[j]);
+                let far2: f64 = (0..3).map(|k| (d[k].abs() + half[k]).powi(2)).sum();
+                let reach = r + spheres.radii_nm[j];
+                far2 < reach * reach
+            });
+            if !covered {
+                kept.push(id);
+            }
+        }
+        self.list = kept;
+    }
+
+    fn sample(&self, rng: &mut ParticleRng) -> [f64; 3] {
+        let pick = ((rng.uniform() * self.list.len() as f64) as usize).min(self.list.len() - 1);
+        let lo = self.corner(self.list[pick]);
+        [0, 1, 2].map(|k| lo[k] + rng.uniform() * self.edge[k])
+    }
+}
+
+/// Random sequential addition, largest radii first.
+fn random_sequential(
+    radii: &RadiusDistribution,
+    target: Target,
+    sim_box: &SimBox,
+    rng: &mut ParticleRng,
+    file: &Path,
+) -> Result<Spheres> {
+    let mut want = draw_radii(radii, target, sim_box, rng, file)?;
+    let asked = match target {
+        Target::VolumeFraction(phi) => format!("φ = {phi} was asked for"),
+        Target::Count(n) => format!(
+            "{n} obstacles (φ = {:.4}) were asked for",
+            Spheres {
+                centres_nm: Vec::new(),
+                radii_nm: want.clone(),
+                may_overlap: false
+            }
+            .nominal_volume_fraction(sim_box)
+        ),
+    };
+    // Larger first: small spheres fill the gaps that large ones leave, so a polydisperse target is reachable.
+    want.sort_by(|a, b| b.total_cmp(a));
+    let r_max = want.first().copied().unwrap_or(0.0);
+    let mut grid = DynamicGrid::new(sim_box, 2.0 * r_max);
+    let mut spheres = Spheres::default();
+    let budget = RSA_ATTEMPT_FLOOR + RSA_ATTEMPTS_PER_OBSTACLE * want.len() as u64;
+    let mut attempts = 0u64;
+    let mut failures = 0u64;
+    let mut voxels: Option<OpenVoxels> = None;
+    for (n, &r) in want.iter().enumerate() {
+        // A voxel list pruned for a larger radius may have dropped room a smaller sphere could use.
+        if voxels.as_ref().is_some_and(|v| v.radius > r) {
+            voxels = None;
+        }
+        loop {
+            if attempts >= budget || voxels.as_ref().is_some_and(|v| v.list.is_empty()) {
+                let reached = spheres.nominal_volume_fraction(sim_box);
+                let why = if attempts >= budget {
+                    format!("after {attempts} attempts without finding room for the next")
+                } else {
+                    "when no room was left for the next (the packing is jammed)".to_string()
+                };
+                return Err(placement_error(
+                    file,
+                    format!(
+                        "random sequential addition reached φ = {reached:.4} ({n} of {} obstacles) {why}; {asked}. \
+                         It jams near φ ≈ {RSA_JAMMING_FRACTION} for equal spheres (Zhang & Torquato 2013); \
+                         ask for less, use a lattice, or use placement = \"poisson\" for overlapping obstacles",
+                        want.len()
+                    ),
+                ));
+            }
+            if voxels.is_none() && failures >= RSA_VOXEL_AFTER_FAILURES {
+                voxels = Some(OpenVoxels::new(sim_box, r, &spheres, &grid));
+                failures = 0;
+                continue;
+            }
+            attempts += 1;
+            let c = match &voxels {
+                Some(v) => v.sample(rng),
+                None => [0, 1, 2].map(|k| {
+                    let (lo, hi) = centre_range(sim_box, k, r);
+                    lo + rng.uniform() * (hi - lo)
+                }),
+            };
+            let inside = (0..3).all(|k| {
+                let (lo, hi) = centre_range(sim_box, k, r);
+                c[k] >= lo && c[k] <= hi && c[k] < sim_box.edges_nm[k]
+            });
+            let clash = !inside
+                || grid.any_near(&c, |j| {
+                    let j = j as usize;
+                    let reach = r + spheres.radii_nm[j];
+                    min_image_distance2(sim_box, &c, &spheres.centres_nm[j]) < reach * reach
+                });
+            if clash {
+                failures += 1;
+                // Re-prune once the list has been tried about once per voxel in vain.
+                if let Some(v) = voxels.as_mut() {
+                    if failures > v.list.len() as u64 + 1000 {
+                        v.prune(sim_box, &spheres, &grid);
+                        failures = 0;
+                    }
+                }
+                continue;
+            }
+            grid.insert(spheres.len() as u32, &c);
+            spheres.centres_nm.push(c);
+            spheres.radii_nm.push(r);
+            failures = 0;
+            break;
+        }
+    }
+    Ok(spheres)
+}
+
+/// Knuth's multiplication method for small means, a normal approximation
+/// rounded to the nearest whole number above 1e4 (relative error of the
+/// count's law far below any statistical resolution there).
+fn poisson_count(mean: f64, rng: &mut ParticleRng) -> usize {
+    if mean < 1e4 {
+        // Split the mean so exp(−m) never underflows.
+        let mut total = 0usize;
+        let mut left = mean;
+        while left > 0.0 {
+            let m = left.min(500.0);
+            left -= m;
+            let limit = (-m).exp();
+            let mut prod = rng.uniform();
+            while prod > limit {
+                total += 1;
+                prod *= rng.uniform();
+            }
+        }
+        total
+    } else {
+        (mean + mean.sqrt() * standard_normal(rng)).round().max(0.0) as usize
+    }
+}
+
+/// Freely overlapping spheres at independent uniform centres. For a volume
+/// fraction target the count is Poisson with mean −ln(1 − φ)·V/⟨v⟩, so that
+/// the expected covered fraction is φ (a Poisson process of intensity n
+/// leaves exp(−n⟨v⟩) uncovered).
+fn poisson(
+    radii: &RadiusDistribution,
+    target: Target,
+    sim_box: &SimBox,
+    rng: &mut ParticleRng,
+    file: &Path,
+) -> Result<Spheres> {
+    let count = match target {
+        Target::Count(n) => n,
+        Target::VolumeFraction(phi) => poisson_count(
+            -(1.0 - phi).ln() * box_volume(sim_box) / radii.mean_volume_nm3(),
+            rng,
+        ),
+    };
+    let radii_nm = draw_radii(radii, Target::Count(count), sim_box, rng, file)?;
+    let centres_nm = radii_nm
+        .iter()
+        .map(|&r| {
+            [0, 1, 2].map(|k| {
+                let (lo, hi) = centre_range(sim_box, k, r);
+                lo + rng.uniform() * (hi - lo)
+            })
+        })
+        .collect();
+    Ok(Spheres {
+        centres_nm,
+        radii_nm,
+        may_overlap: true,
+    })
+}
+
+/// Simple cubic or fcc lattice filling the box with whole unit cells.
+fn lattice(
+    generator: Generator,
+    radii: &RadiusDistribution,
+    target: Target,
+    sim_box: &SimBox,
+    file: &Path,
+) -> Result<Spheres> {
+    let name = generator.name();
+    let r = match *radii {
+        RadiusDistribution::Fixed { radius_nm } => radius_nm,
+        _ => return Err(placement_error(
+            file,
+            format!(
+                "a {name} lattice takes one radius: set obstacles.radius_distribution = \"fixed\""
+            ),
+        )),
+    };
+    let (basis, max_fraction): (&[[f64; 3]], f64) = match generator {
+        Generator::SimpleCubic => (&[[0.5, 0.5, 0.5]], SIMPLE_CUBIC_MAX_FRACTION),
+        _ => (
+            &[
+                [0.25, 0.25, 0.25],
+                [0.75, 0.75, 0.25],
+                [0.75, 0.25, 0.75],
+                [0.25, 0.75, 0.75],
+            ],
+            FCC_MAX_FRACTION,
+        ),
+    };
+    let per_cell = basis.len();
+    let v = 4.0 / 3.0 * PI * r.powi(3);
+    let volume = box_volume(sim_box);
+    let e = sim_box.edges_nm;
+    let cells = match target {
+        Target::VolumeFraction(phi) => {
+            if phi > max_fraction {
+                return Err(placement_error(
+                    file,
+                    format!("spheres on a {name} lattice touch at φ = {max_fraction:.4}; φ = {phi} is impossible"),
+                ));
+            }
+            let a = (per_cell as f64 * v / phi).cbrt();
+            let n = e.map(|l| ((l / a).round() as usize).max(1));
+            let achieved = (per_cell * n[0] * n[1] * n[2]) as f64 * v / volume;
+            if ((achieved - phi) / phi).abs() > LATTICE_FRACTION_TOLERANCE {
+                return Err(placement_error(
+                    file,
+                    format!(
+                        "φ = {phi} at radius {r} nm needs a {name} lattice constant of {a:.4} nm, so the box holds \
+                         {:.3} × {:.3} × {:.3} unit cells; whole cells ({} × {} × {}) give φ = {achieved:.4}. Make each \
+                         edge a whole multiple of {a:.4} nm (e.g. box.edges_nm = [{:.4}, {:.4}, {:.4}]) or change the radius",
+                        e[0] / a,
+                        e[1] / a,
+                        e[2] / a,
+                        n[0],
+                        n[1],
+                        n[2],
+                        n[0] as f64 * a,
+                        n[1] as f64 * a,
+                        n[2] as f64 * a
+                    ),
+                ));
+            }
+            n
+        }
+        Target::Count(count) => {
+            let total = count / per_cell;
+            let scale = (total as f64 / volume).cbrt();
+            let n = e.map(|l| ((l * scale).round() as usize).max(1));
+            if count % per_cell != 0 || n[0] * n[1] * n[2] != total {
+                let m = ((count as f64 / per_cell as f64).cbrt().floor() as usize).max(1);
+                return Err(placement_error(
+                    file,
+                    format!(
+                        "{count} obstacles cannot fill this box with whole {name} unit cells of {per_cell} sites each; \
+                         in a cubic box use {per_cell}·m³, e.g. {} or {}",
+                        per_cell * m.pow(3),
+                        per_cell * (m + 1).pow(3)
+                    ),
+                ));
+            }
+            n
+        }
+    };
+    let h = [0, 1, 2].map(|k| e[k] / cells[k] as f64);
+    let nearest = match generator {
+        Generator::SimpleCubic => h[0].min(h[1]).min(h[2]),
+        _ => [(h[0], h[1]), (h[1], h[2]), (h[0], h[2])]
+            .iter()
+            .map(|(a, b)| 0.5 * (a * a + b * b).sqrt())
+            .fold(f64::INFINITY, f64::min),
+    };
+    if 2.0 * r > nearest {
+        return Err(placement_error(
+            file,
+            format!(
+                "on this {name} lattice neighbouring sites are {nearest:.4} nm apart, less than the obstacle diameter {}; \
+                 spheres on a {name} lattice touch at φ = {max_fraction:.4}, so the fraction asked for is impossible",
+                2.0 * r
+            ),
+        ));
+    }
+    let mut spheres = Spheres::default();
+    for i in 0..cells[0] {
+        for j in 0..cells[1] {
+            for k in 0..cells[2] {
+                for b in basis {
+                    let c = [
+                        (i as f64 + b[0]) * h[0],
+                        (j as f64 + b[1]) * h[1],
+                        (k as f64 + b[2]) * h[2],
+                    ];
+                    for (ax, &x) in c.iter().enumerate() {
+                        let (lo, hi) = centre_range(sim_box, ax, r);
+                        if x < lo || x > hi {
+                            return Err(placement_error(
+                                file,
+                                format!(
+                                    "a {name} lattice site at {x:.4} nm on axis {} puts an obstacle of radius {r} nm through \
+                                     the wall; walled axes need sites at least a radius from the faces",
+                                    ["x", "y", "z"][ax]
+                                ),
+                            ));
+                        }
+                    }
+                    spheres.centres_nm.push(c);
+                    spheres.radii_nm.push(r);
+                }
+            }
+        }
+    }
+    Ok(spheres)
+}
+
+/// Reads obstacles from a CSV file with columns `x_nm, y_nm, z_nm, radius_nm`.
+///
+/// Blank lines and lines starting with `#` are skipped; the first other line
+/// may be a header. Centres must lie in [0, L) on periodic axes, and spheres
+/// wholly inside the box on walled axes. Unless `allow_overlap`, no two
+/// spheres may overlap.
+///
+/// # Errors
+/// [`EngineError::InvalidValue`] naming `obstacles.file` when the file cannot
+/// be read, or naming the CSV file and line for a malformed or impossible
+/// row; [`EngineError::Placement`] for overlaps, naming both lines.
+pub fn read_csv(
+    path: &Path,
+    sim_box: &SimBox,
+    allow_overlap: bool,
+    scenario_file: &Path,
+) -> Result<Spheres> {
+    let text = std::fs::read_to_string(path).map_err(|e| EngineError::InvalidValue {
+        file: scenario_file.to_path_buf(),
+        key: "obstacles.file".into(),
+        value: format!("{:?}", path.display().to_string()),
+        allowed: format!("the file cannot be read ({e}); give a readable CSV of x_nm,y_nm,z_nm,radius_nm (relative paths start at the scenario's folder)"),
+    })?;
+    let bad = |line: usize, row: &str, allowed: String| EngineError::InvalidValue {
+        file: path.to_path_buf(),
+        key: format!("line {line}"),
+        value: format!("{:?}", row.chars().take(80).collect::<String>()),
+        allowed,
+    };
+    let names = ["x_nm", "y_nm", "z_nm", "radius_nm"];
+    let mut spheres = Spheres {
+        may_overlap: allow_overlap,
+        ..Spheres::default()
+    };
+    let mut lines = Vec::new();
+    let mut seen_data = false;
+    for (idx, raw) in text.lines().enumerate() {
+        let line = idx + 1;
+        let row = raw.trim();
+        if row.is_empty() || row.starts_with('#') {
+            continue;
+        }
+        let fields: Vec<&str> = row.split(',').map(str::trim).collect();
+        let first_is_number = fields.first().is_some_and(|f| f.parse::<f64>().is_ok());
+        if !seen_data && !first_is_number {
+            // A header: it must name the four columns.
+            seen_data = true;
+            let lower: Vec<String> = fields.iter().map(|f| f.to_ascii_lowercase()).collect();
+            if lower != names {
+                return Err(bad(
+                    line,
+                    row,
+                    format!("a header must read `{}`", names.join(",")),
+                ));
+            }
+            continue;
+        }
+        seen_data = true;
+        if fields.len() != 4 {
+            return Err(bad(
+                line,
+                row,
+                format!(
+                    "each row needs 4 comma-separated numbers ({}), found {}",
+                    names.join(", "),
+                    fields.len()
+                ),
+            ));
+        }
+        let mut v = [0.0; 4];
+        for (c, f) in fields.iter().enumerate() {
+            v[c] = match f.parse::<f64>() {
+                Ok(x) if x.is_finite() => x,
+                _ => {
+                    return Err(bad(
+                        line,
+                        row,
+                        format!(
+                            "column {} ({}) must be a finite number, not {f:?}",
+                            c + 1,
+                            names[c]
+                        ),
+                    ))
+                }
+            };
+        }
+        let r = v[3];
+        if r <= 0.0 {
+            return Err(bad(
+                line,
+                row,
+                format!("radius_nm must be greater than 0, not {r}"),
+            ));
+        }
+        for k in 0..3 {
+            let l = sim_box.edges_nm[k];
+            if sim_box.periodic[k] {
+                if 2.0 * r >= l {
+                    return Err(bad(
+                        line,
+                        row,
+                        format!(
+                            "the obstacle (diameter {}) is larger than the box along {} ({l} nm)",
+                            2.0 * r,
+                            names[k]
+                        ),
+                    ));
+                }
+                if !(0.0..l).contains(&v[k]) {
+                    return Err(bad(
+                        line,
+                        row,
+                        format!(
+                            "{} = {} lies outside the periodic box [0, {l}) nm",
+                            names[k], v[k]
+                        ),
+                    ));
+                }
+            } else if v[k] - r < 0.0 || v[k] + r > l {
+                return Err(bad(
+                    line,
+                    row,
+                    format!("the obstacle overlaps the wall: along {} it spans {} … {} nm but the box is 0 … {l} nm", names[k], v[k] - r, v[k] + r),
+                ));
+            }
+        }
+        spheres.centres_nm.push([v[0], v[1], v[2]]);
+        spheres.radii_nm.push(r);
+        lines.push(line);
+    }
+    if spheres.is_empty() {
+        return Err(EngineError::InvalidValue {
+            file: scenario_file.to_path_buf(),
+            key: "obstacles.file".into(),
+            value: format!("{:?}", path.display().to_string()),
+            allowed: "the file holds no obstacle rows; each row is x_nm,y_nm,z_nm,radius_nm".into(),
+        });
+    }
+    if !allow_overlap {
+        if let Some((i, j)) = find_sphere_overlap(&spheres, sim_box) {
+            let d =
+                min_image_distance2(sim_box, &spheres.centres_nm[i], &spheres.centres_nm[j]).sqrt();
+            return Err(placement_error(
+                path,
+                format!(
+                    "the obstacle on line {} overlaps the one on line {} (centres {d:.4} nm apart, radii {} and {} nm); \
+                     set obstacles.allow_overlap = true if the microstructure has overlapping obstacles",
+                    lines[j], lines[i], spheres.radii_nm[j], spheres.radii_nm[i]
+                ),
+            ));
+        }
+    }
+    Ok(spheres)
+}
+
+/// The first pair (i < j) of overlapping spheres, if any (grid search).
+pub fn find_sphere_overlap(spheres: &Spheres, sim_box: &SimBox) -> Option<(usize, usize)> {
+    let r_max = spheres.radii_nm.iter().cloned().fold(0.0, f64::max);
+    let mut grid = DynamicGrid::new(sim_box, 2.0 * r_max);
+    for (j, c) in spheres.centres_nm.iter().enumerate() {
+        let mut hit = None;
+        grid.any_near(c, |i| {
+            let i = i as usize;
+            let reach = spheres.radii_nm[i] + spheres.radii_nm[j];
+            let clash = min_image_distance2(sim_box, c, &spheres.centres_nm[i]) < reach * reach;
+            if clash {
+                hit = Some(i);
+            }
+            clash
+        });
+        if let Some(i) = hit {
+            return Some((i, j));
+        }
+        grid.insert(j as u32, c);
+    }
+    None
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn cube(l: f64) -> SimBox {
+        SimBox {
+            edges_nm: [l; 3],
+            periodic: [true; 3],
+        }
+    }
+
+    #[test]
+    fn rsa_reaches_moderate_fraction_without_overlap() {
+        let b = cube(60.0);
+        let mut rng = ParticleRng::for_particle(3, OBSTACLE_STREAM);
+        let s = random_sequential(
+            &RadiusDistribution::Fixed { radius_nm: 3.0 },
+            Target::VolumeFraction(0.3),
+            &b,
+            &mut rng,
+            Path::new("t"),
+        )
+        .unwrap();
+        assert!((s.nominal_volume_fraction(&b) - 0.3).abs() < 0.002);
+        assert_eq!(find_sphere_overlap(&s, &b), None);
+    }
+
+    #[test]
+    fn rsa_above_jamming_stops_with_what_was_reached() {
+        let b = cube(30.0);
+        let mut rng = ParticleRng::for_particle(3, OBSTACLE_STREAM);
+        let err = random_sequential(
+            &RadiusDistribution::Fixed { radius_nm: 2.0 },
+            Target::VolumeFraction(0.45),
+            &b,
+            &mut rng,
+            Path::new("t"),
+        )
+        .unwrap_err()
+        .to_string();
+        assert!(err.contains("reached φ = 0.3"), "{err}");
+    }
+
+    #[test]
+    fn lognormal_mean_volume_matches_closed_form() {
+        // Untruncated: ⟨r³⟩ = median³ exp(9 s²/2) (moments of the log-normal law).
+        let d = RadiusDistribution::LogNormal {
+            median_nm: 2.0,
+            log_sd: 0.3,
+            min_nm: 0.0,
+            max_nm: f64::INFINITY,
+        };
+        let want = 4.0 / 3.0 * PI * 8.0 * (4.5f64 * 0.09).exp();
+        assert!((d.mean_volume_nm3() / want - 1.0).abs() < 1e-6);
+        let u = RadiusDistribution::Uniform {
+            min_nm: 1.0,
+            max_nm: 3.0,
+        };
+        assert!((u.mean_volume_nm3() - 4.0 / 3.0 * PI * (81.0 - 1.0) / 8.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn poisson_count_has_right_mean_and_variance() {
+        let mut rng = ParticleRng::for_particle(1, 2);
+        let n = 20_000;
+        let xs: Vec<f64> = (0..n)
+            .map(|_| poisson_count(7.5, &mut rng) as f64)
+            .collect();
+        let mean = xs.iter().sum::<f64>() / n as f64;
+        let var = xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1) as f64;
+        // Poisson law: mean = variance = 7.5; 5 standard errors.
+        assert!(
+            (mean - 7.5).abs() < 5.0 * (7.5f64 / n as f64).sqrt(),
+            "mean {mean}"
+        );
+        assert!(
+            (var - 7.5).abs() < 5.0 * 7.5 * (2.0f64 / n as f64).sqrt(),
+            "var {var}"
+        );
+    }
+
+    #[test]
+    fn fcc_lattice_hits_fraction_in_commensurate_box() {
+        let r = 2.0f64;
+        let phi = 0.3;
+        let a = (4.0 * 4.0 / 3.0 * PI * r.powi(3) / phi).cbrt();
+        let b = cube(5.0 * a);
+        let s = lattice(
+            Generator::FaceCentredCubic,
+            &RadiusDistribution::Fixed { radius_nm: r },
+            Target::VolumeFraction(phi),
+            &b,
+            Path::new("t"),
+        )
+        .unwrap();
+        assert_eq!(s.len(), 4 * 125);
+        assert!((s.nominal_volume_fraction(&b) - phi).abs() < 1e-9);
+        assert_eq!(find_sphere_overlap(&s, &b), None);
+        let err = lattice(
+            Generator::FaceCentredCubic,
+            &RadiusDistribution::Fixed { radius_nm: r },
+            Target::VolumeFraction(0.75),
+            &b,
+            Path::new("t"),
+        );
+        assert!(err.unwrap_err().to_string().contains("impossible"));
+    }
+}

@@ -1,0 +1,8 @@
+//! End-to-end tests of `thicket tracks`: synthetic camera tracks, their
+//! files and ground truth, with outside checks in Python (numpy, scipy, h5py).
+
+mod bad_input;
+mod bleaching;
+mod files;
+mod focal;
+mod support;
