@@ -235,7 +235,12 @@ impl Crowd {
             self.stats.accepted += self.sweep_in_order(state, sim_box);
         } else {
             self.classify(state, sim_box);
-            let dependent: Vec<usize> = (0..n).filter(|&i| self.decision[i] == DEPENDENT).collect();
+            let decision = &self.decision;
+            let dependent: Vec<usize> = (0..n)
+                .into_par_iter()
+                .with_min_len(CHUNK)
+                .filter(|&i| decision[i] == DEPENDENT)
+                .collect();
             self.stats.dependent += dependent.len() as u64;
             self.resolve_in_order(state, sim_box, dependent);
             let (decision, proposals, proposal_images) =

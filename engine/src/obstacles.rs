@@ -742,12 +742,14 @@ fn lattice(
     let name = generator.name();
     let r = match *radii {
         RadiusDistribution::Fixed { radius_nm } => radius_nm,
-        _ => return Err(placement_error(
-            file,
-            format!(
+        _ => {
+            return Err(placement_error(
+                file,
+                format!(
                 "a {name} lattice takes one radius: set obstacles.radius_distribution = \"fixed\""
             ),
-        )),
+            ))
+        }
     };
     let (basis, max_fraction): (&[[f64; 3]], f64) = match generator {
         Generator::SimpleCubic => (&[[0.5, 0.5, 0.5]], SIMPLE_CUBIC_MAX_FRACTION),

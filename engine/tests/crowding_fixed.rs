@@ -94,6 +94,10 @@ fn check_maxwell(phi: f64, tracers: usize, duration_s: f64) -> (f64, f64) {
 // realisations (2 million obstacles), so that realisation noise (about
 // 2.5e-4) and sampling noise (about 1e-4) stay well inside 1e-3.
 #[test]
+#[cfg_attr(
+    debug_assertions,
+    ignore = "statistical and heavy: runs in `cargo test --release`"
+)]
 fn poisson_open_fraction_is_exponential() {
     let (a, b, edge, count) = (0.3, 1.0, 30.0, 1466);
     let text = |seed: u64| {
@@ -123,11 +127,19 @@ fn poisson_open_fraction_is_exponential() {
 
 // The point tracer among random non-overlapping spheres, at the finest Δt.
 #[test]
+#[cfg_attr(
+    debug_assertions,
+    ignore = "statistical and heavy: runs in `cargo test --release`"
+)]
 fn maxwell_point_tracer_phi_0_1() {
     check_maxwell(0.1, 1500, 10.0);
 }
 
 #[test]
+#[cfg_attr(
+    debug_assertions,
+    ignore = "statistical and heavy: runs in `cargo test --release`"
+)]
 fn maxwell_point_tracer_phi_0_2() {
     check_maxwell(0.2, 1500, 12.0);
 }
@@ -136,6 +148,10 @@ fn maxwell_point_tracer_phi_0_2() {
 // rejection shrinks like √Δt (REFERENCE.md "Numerics"), i.e. linearly in the
 // rms step σ = √(2 D0 Δt). Steps σ = 0.01, 0.04, 0.16 obstacle radii.
 #[test]
+#[cfg_attr(
+    debug_assertions,
+    ignore = "statistical and heavy: runs in `cargo test --release`"
+)]
 fn maxwell_point_tracer_phi_0_3_with_dt_series() {
     let (fine, fine_se) = check_maxwell(0.3, 1500, 30.0);
     let (mid, mid_se) = obstructed(0.3, 4.0 * SIGMA_FINE, 3000, 30.0);
@@ -185,6 +201,10 @@ fn fibres_text(phi: f64, orientation: &str, seed: u64) -> String {
 // (REFERENCE.md, from memory): an approximation reported, not an oracle. What
 // is asserted is the dilute trend (D → D0 as φ → 0) and a monotone decrease.
 #[test]
+#[cfg_attr(
+    debug_assertions,
+    ignore = "statistical and heavy: runs in `cargo test --release`"
+)]
 fn fibres_slow_tracers_monotonically_and_vanish_when_dilute() {
     let mut last: Option<(f64, f64)> = None;
     for phi in [0.005, 0.03, 0.1] {
@@ -218,6 +238,10 @@ fn fibres_slow_tracers_monotonically_and_vanish_when_dilute() {
 // along them: steric obstruction by parallel cylinders leaves D_zz = D0
 // exactly, while transverse motion is hindered. A guard against image bugs.
 #[test]
+#[cfg_attr(
+    debug_assertions,
+    ignore = "statistical and heavy: runs in `cargo test --release`"
+)]
 fn aligned_fibres_leave_axial_diffusion_free() {
     let text = fibres_text(0.1, "orientation = \"aligned\"\naxis = \"z\"", 31);
     let sc = scenario(&text);
@@ -328,6 +352,10 @@ fn obstructed_kernel_is_path_and_thread_independent() {
 // log-normal), Poisson hits the covered fraction in expectation, lattices
 // are exact, and the same seed gives the same obstacles.
 #[test]
+#[cfg_attr(
+    debug_assertions,
+    ignore = "statistical and heavy: runs in `cargo test --release`"
+)]
 fn placements_reach_their_targets() {
     let base = |obstacles: &str| {
         format!(
