@@ -2,17 +2,21 @@
 //! contacts, on one and two threads, and the obstacle query paths (uniform
 //! grid, kiddo k-d tree, brute force) against each other.
 //!
-//! Run with `cargo bench -p thicket-engine --bench crowding`. Each figure is
-//! the best of a few repeats in one process; shared machines are noisy, so
-//! ratios measured side by side mean more than absolute figures.
+//! Run with `cargo bench -p thicket-engine --bench crowding`. One and two
+//! threads are timed in turns, several rounds, and the best of each is
+//! kept, so that a noisy spell on a shared machine hurts both alike.
 
 use std::path::Path;
 use std::time::Instant;
+use thicket_engine::crowders::Sweep;
 use thicket_engine::integrate::{advance_obstructed, Dynamics, State};
 use thicket_engine::neighbors::{Blocker, BruteForce, ObstacleGrid, ObstacleKdTree};
 use thicket_engine::obstacles::FixedObstacles;
 use thicket_engine::rng::ParticleRng;
 use thicket_engine::Scenario;
+
+/// Rounds of interleaved timings.
+const ROUNDS: usize = 7;
 
 /// Point tracers (radius 0.001 nm) among fixed random spheres of radius 10 nm at φ = 0.3.
 fn fixed_scenario(tracers: usize) -> Scenario {
@@ -44,39 +48,22 @@ fn pool(threads: usize) -> rayon::ThreadPool {
         .expect("thread pool")
 }
 
-/// Best of `repeats` timings of `f`, in seconds.
-fn best(repeats: usize, mut f: impl FnMut()) -> f64 {
-    (0..repeats)
-        .map(|_| {
-            let t = Instant::now();
-            f();
-            t.elapsed().as_secs_f64()
-        })
-        .fold(f64::INFINITY, f64::min)
+/// Seconds taken by `f`.
+fn time(f: impl FnOnce()) -> f64 {
+    let t = Instant::now();
+    f();
+    t.elapsed().as_secs_f64()
 }
 
-fn obstructed_rate<B: Blocker>(
-    sc: &Scenario,
-    dynamics: &Dynamics,
-    blocker: &B,
-    threads: usize,
-    steps: u64,
-    repeats: usize,
-) -> f64 {
-    let mut state: State = dynamics.initial_state(sc).expect("tracers fit");
-    let p = pool(threads);
-    let secs = best(repeats, || {
-        p.install(|| {
-            advance_obstructed(
-                &mut state,
-                dynamics.kinetics(),
-                std::slice::from_ref(blocker),
-                &sc.sim_box,
-                steps,
-            )
-        })
-    });
-    state.len() as f64 * steps as f64 / secs
+/// Best (shortest) time of each variant, timing the variants in turns for `ROUNDS` rounds.
+fn best_in_turns(variants: usize, mut run: impl FnMut(usize) -> f64) -> Vec<f64> {
+    let mut best = vec![f64::INFINITY; variants];
+    for _ in 0..ROUNDS {
+        for (v, b) in best.iter_mut().enumerate() {
+            *b = b.min(run(v));
+        }
+    }
+    best
 }
 
 fn main() {
@@ -99,30 +86,78 @@ fn main() {
         grid.size().0,
         grid.size().1
     );
-    let g1 = obstructed_rate(&sc, &dynamics, &grid, 1, 250, 3);
-    let g2 = obstructed_rate(&sc, &dynamics, &grid, 2, 250, 3);
+    let start: State = dynamics.initial_state(&sc).expect("tracers fit");
+    let pools = [pool(1), pool(2)];
+    let n = start.len() as f64;
+
+    // Same kernel, three answers to "is this centre blocked?"; grid on 1 and 2 threads.
+    let steps = [200u64, 200, 20, 2];
+    let mut states = vec![start.clone(); 4];
+    let secs = best_in_turns(4, |v| {
+        let st = &mut states[v];
+        let kin = dynamics.kinetics();
+        match v {
+            0 => time(|| {
+                pools[0].install(|| {
+                    advance_obstructed(st, kin, std::slice::from_ref(&grid), &sc.sim_box, steps[0])
+                })
+            }),
+            1 => time(|| {
+                pools[1].install(|| {
+                    advance_obstructed(st, kin, std::slice::from_ref(&grid), &sc.sim_box, steps[1])
+                })
+            }),
+            2 => time(|| {
+                pools[0].install(|| {
+                    advance_obstructed(st, kin, std::slice::from_ref(&tree), &sc.sim_box, steps[2])
+                })
+            }),
+            _ => {
+                // Brute force on a tenth of the tracers (it is that slow).
+                let mut few = st.clone();
+                few.positions.truncate(4000);
+                few.images.truncate(4000);
+                few.rngs.truncate(4000);
+                let mut kin = kin.to_vec();
+                kin[0].range = 0..4000;
+                let t = time(|| {
+                    pools[0].install(|| {
+                        advance_obstructed(
+                            &mut few,
+                            &kin,
+                            std::slice::from_ref(&brute),
+                            &sc.sim_box,
+                            steps[3],
+                        )
+                    })
+                });
+                t * 10.0
+            }
+        }
+    });
+    let rate: Vec<f64> = secs
+        .iter()
+        .zip(steps)
+        .map(|(s, k)| n * k as f64 / s)
+        .collect();
     println!(
         "  grid kernel, 1 thread : {:8.1} M particle-steps/s",
-        g1 / 1e6
+        rate[0] / 1e6
     );
     println!(
         "  grid kernel, 2 threads: {:8.1} M particle-steps/s   speed-up {:.2}×",
-        g2 / 1e6,
-        g2 / g1
+        rate[1] / 1e6,
+        rate[1] / rate[0]
     );
-    let k1 = obstructed_rate(&sc, &dynamics, &tree, 1, 25, 3);
     println!(
-        "  k-d tree kernel, 1 thread: {:8.2} M particle-steps/s   (grid is {:.1}× faster)",
-        k1 / 1e6,
-        g1 / k1
+        "  k-d tree kernel, 1 thread   : {:8.2} M particle-steps/s   (grid is {:.1}× faster)",
+        rate[2] / 1e6,
+        rate[0] / rate[2]
     );
-    let small = fixed_scenario(2_000);
-    let small_dyn = Dynamics::new(&small, &obstacles);
-    let b1 = obstructed_rate(&small, &small_dyn, &brute, 1, 5, 2);
     println!(
         "  brute-force kernel, 1 thread: {:8.3} M particle-steps/s   (grid is {:.0}× faster)",
-        b1 / 1e6,
-        g1 / b1
+        rate[3] / 1e6,
+        rate[0] / rate[3]
     );
 
     // Bare queries at uniform random points, one thread.
@@ -130,60 +165,75 @@ fn main() {
     let points: Vec<[f64; 3]> = (0..200_000)
         .map(|_| [0, 1, 2].map(|k| rng.uniform() * sc.sim_box.edges_nm[k]))
         .collect();
-    let time_queries = |f: &dyn Fn(&[f64; 3]) -> bool, pts: &[[f64; 3]]| -> f64 {
-        let mut hits = 0usize;
-        let secs = best(3, || hits = pts.iter().filter(|p| f(p)).count());
-        std::hint::black_box(hits);
-        secs / pts.len() as f64 * 1e9
+    let queries = |f: &dyn Fn(&[f64; 3]) -> bool, pts: &[[f64; 3]]| -> f64 {
+        let best = best_in_turns(1, |_| {
+            time(|| {
+                std::hint::black_box(pts.iter().filter(|p| f(p)).count());
+            })
+        })[0];
+        best / pts.len() as f64 * 1e9
     };
-    let tg = time_queries(&|p| grid.blocked(p), &points);
-    let tk = time_queries(&|p| tree.blocked(p), &points);
-    let tb = time_queries(&|p| Blocker::blocked(&brute, p), &points[..5_000]);
+    let tg = queries(&|p| grid.blocked(p), &points);
+    let tk = queries(&|p| tree.blocked(p), &points);
+    let tb = queries(&|p| Blocker::blocked(&brute, p), &points[..5_000]);
     println!("  one query at a random point: grid {tg:.1} ns, k-d tree {tk:.1} ns, brute force {tb:.0} ns");
 
     println!("mobile hard spheres: radius 5 nm, φ = 0.3, rms step 1 % of the diameter");
     for count in [20_000usize, 100_000] {
         let sc = mobile_scenario(count);
-        let none = FixedObstacles::default();
-        let mut dynamics = Dynamics::new(&sc, &none);
+        let dynamics = Dynamics::new(&sc, &FixedObstacles::default());
         let start = dynamics.initial_state(&sc).expect("placement");
-        let mut rate = |threads: usize, sequential: bool, steps: u64| -> f64 {
-            if let Some(c) = dynamics.crowd_mut() {
-                c.set_sweep(if sequential {
-                    thicket_engine::crowders::Sweep::Sequential
+        // Variants: in-order sweep (1 thread), parallel sweep on 1 and on 2 threads.
+        let mut runs: Vec<(Dynamics, State)> = (0..3)
+            .map(|v| {
+                let mut d = dynamics.clone();
+                let c = d.crowd_mut().expect("a crowd");
+                c.set_sweep(if v == 0 {
+                    Sweep::Sequential
                 } else {
-                    thicket_engine::crowders::Sweep::Parallel
+                    Sweep::Parallel
                 });
-            }
-            let mut state = start.clone();
-            let p = pool(threads);
-            // One warm-up step builds the neighbour list.
-            p.install(|| dynamics.advance(&mut state, 1));
-            let secs = best(3, || p.install(|| dynamics.advance(&mut state, steps)));
-            count as f64 * steps as f64 / secs
-        };
+                // The parallel algorithm itself, also on one thread.
+                c.set_parallel_min(0);
+                let mut st = start.clone();
+                // One warm-up step builds the neighbour list.
+                d.advance(&mut st, 1);
+                (d, st)
+            })
+            .collect();
         let steps = (4_000_000 / count as u64).max(20);
-        let s1 = rate(1, true, steps);
-        let p1 = rate(1, false, steps);
-        let p2 = rate(2, false, steps);
+        let secs = best_in_turns(3, |v| {
+            let (d, st) = &mut runs[v];
+            let p = &pools[if v == 2 { 1 } else { 0 }];
+            time(|| p.install(|| d.advance(st, steps)))
+        });
+        let rate: Vec<f64> = secs
+            .iter()
+            .map(|s| count as f64 * steps as f64 / s)
+            .collect();
         println!(
-            "  {count} spheres: sequential sweep, 1 thread : {:8.2} M particle-steps/s",
-            s1 / 1e6
+            "  {count} spheres: in-order (sequential) sweep, 1 thread: {:8.2} M particle-steps/s",
+            rate[0] / 1e6
         );
         println!(
-            "  {count} spheres: parallel sweep, 1 thread   : {:8.2} M particle-steps/s",
-            p1 / 1e6
+            "  {count} spheres: parallel sweep, 1 thread            : {:8.2} M particle-steps/s",
+            rate[1] / 1e6
         );
-        println!("  {count} spheres: parallel sweep, 2 threads  : {:8.2} M particle-steps/s   speed-up {:.2}× over 1 thread", p2 / 1e6, p2 / p1);
-        if let Some(c) = dynamics.crowd() {
-            let st = c.stats;
-            println!(
-                "    acceptance {:.3}, dependent moves {:.2e} per move, list builds every {:.1} steps, {:.1} neighbours",
-                st.accepted as f64 / st.proposed as f64,
-                st.dependent as f64 / st.proposed as f64,
-                st.proposed as f64 / count as f64 / st.rebuilds.max(1) as f64,
-                c.mean_neighbours()
-            );
-        }
+        println!(
+            "  {count} spheres: parallel sweep, 2 threads           : {:8.2} M particle-steps/s   {:.2}× the parallel sweep on 1 thread, {:.2}× the in-order sweep",
+            rate[2] / 1e6,
+            rate[2] / rate[1],
+            rate[2] / rate[0]
+        );
+        let (d, _) = &runs[2];
+        let c = d.crowd().expect("a crowd");
+        let st = c.stats;
+        println!(
+            "    acceptance {:.3}, dependent moves {:.2e} per move, list builds every {:.1} steps, {:.1} neighbours",
+            st.accepted as f64 / st.proposed as f64,
+            st.dependent as f64 / st.proposed as f64,
+            st.proposed as f64 / count as f64 / st.rebuilds.max(1) as f64,
+            c.mean_neighbours()
+        );
     }
 }

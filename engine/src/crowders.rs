@@ -85,6 +85,7 @@ pub struct Crowd {
     proposals: Vec<[f64; 3]>,
     proposal_images: Vec<[i32; 3]>,
     blocked: Vec<bool>,
+    /// Verdict of each move, by slot of the Verlet list's cell order.
     decision: Vec<u8>,
     /// Move counters.
     pub stats: CrowdStats,
@@ -164,8 +165,8 @@ impl Crowd {
         self.sweep = sweep;
     }
 
-    /// Sets the particle count from which the parallel sweep uses threads
-    /// (default [`PARALLEL_MIN_PARTICLES`]; 0 forces the parallel path, for tests).
+    /// Sets the particle count from which the parallel sweep is used
+    /// (default [`PARALLEL_MIN_PARTICLES`]; 0 forces it, for tests).
     pub fn set_parallel_min(&mut self, particles: usize) {
         self.parallel_min = particles;
     }
@@ -234,15 +235,10 @@ impl Crowd {
         if sequential {
             self.stats.accepted += self.sweep_in_order(state, sim_box);
         } else {
-            self.classify(state, sim_box);
-            let decision = &self.decision;
-            let dependent: Vec<usize> = (0..n)
-                .into_par_iter()
-                .with_min_len(CHUNK)
-                .filter(|&i| decision[i] == DEPENDENT)
-                .collect();
+            let dependent = self.classify(state, sim_box);
             self.stats.dependent += dependent.len() as u64;
             self.resolve_in_order(state, sim_box, dependent);
+            let list = self.verlet.as_ref().expect("list built before the sweep");
             let (decision, proposals, proposal_images) =
                 (&self.decision, &self.proposals, &self.proposal_images);
             self.stats.accepted += state
@@ -254,7 +250,7 @@ impl Crowd {
                     let base = c * CHUNK;
                     let mut accepted = 0;
                     for (o, (p, im)) in p.iter_mut().zip(im.iter_mut()).enumerate() {
-                        if decision[base + o] == ACCEPTED {
+                        if decision[list.slot_of(base + o)] == ACCEPTED {
                             *p = proposals[base + o];
                             *im = proposal_images[base + o];
                             accepted += 1;
@@ -352,24 +348,31 @@ impl Crowd {
     }
 
     /// Parallel pass: accepted, rejected, or dependent on lower indices.
-    fn classify(&mut self, state: &State, sim_box: &SimBox) {
+    fn classify(&mut self, state: &State, sim_box: &SimBox) -> Vec<usize> {
         let wrap = MinImage::new(sim_box);
         let list = self.verlet.as_ref().expect("list built before classify");
         let (proposals, blocked, radius) = (&self.proposals, &self.blocked, &self.radius_nm);
         let old = &state.positions;
-        self.decision
+        self.decision.resize(state.len(), REJECTED);
+        // Visited in cell order, so that neighbouring particles' data stay in cache;
+        // verdicts are kept by cell slot.
+        let order = list.cell_order();
+        let chunks: Vec<Vec<usize>> = self
+            .decision
             .par_chunks_mut(CHUNK)
             .enumerate()
-            .for_each(|(c, out)| {
+            .map(|(c, out)| {
+                let mut dependent = Vec::new();
                 for (o, d) in out.iter_mut().enumerate() {
-                    let i = c * CHUNK + o;
+                    let slot = c * CHUNK + o;
+                    let i = order[slot] as usize;
                     if blocked[i] {
                         *d = REJECTED;
                         continue;
                     }
                     let y = &proposals[i];
                     let mut verdict = ACCEPTED;
-                    for &j in list.neighbours(i) {
+                    for &j in list.neighbours_at(slot) {
                         let j = j as usize;
                         let cut = radius[i] + radius[j];
                         let hits_old = wrap.distance2(y, &old[j]) < cut * cut;
@@ -396,9 +399,18 @@ impl Crowd {
                             }
                         }
                     }
+                    if verdict == DEPENDENT {
+                        dependent.push(i);
+                    }
                     *d = verdict;
                 }
-            });
+                dependent
+            })
+            .collect();
+        let mut dependent: Vec<usize> = chunks.into_iter().flatten().collect();
+        // Resolved in index order, the order of the sequential sweep.
+        dependent.sort_unstable();
+        dependent
     }
 
     /// Decides `order` (increasing indices) one by one against the current
@@ -412,14 +424,15 @@ impl Crowd {
         let wrap = MinImage::new(sim_box);
         let list = self.verlet.as_ref().expect("list built before resolve");
         for i in order {
+            let slot = list.slot_of(i);
             if self.blocked[i] {
-                self.decision[i] = REJECTED;
+                self.decision[slot] = REJECTED;
                 continue;
             }
             let y = &self.proposals[i];
-            let clash = list.neighbours(i).iter().any(|&j| {
+            let clash = list.neighbours_at(slot).iter().any(|&j| {
                 let j = j as usize;
-                let at = if j < i && self.decision[j] == ACCEPTED {
+                let at = if j < i && self.decision[list.slot_of(j)] == ACCEPTED {
                     &self.proposals[j]
                 } else {
                     &state.positions[j]
@@ -427,7 +440,7 @@ impl Crowd {
                 let cut = self.radius_nm[i] + self.radius_nm[j];
                 wrap.distance2(y, at) < cut * cut
             });
-            self.decision[i] = if clash { REJECTED } else { ACCEPTED };
+            self.decision[slot] = if clash { REJECTED } else { ACCEPTED };
         }
     }
 

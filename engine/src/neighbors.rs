@@ -793,6 +793,7 @@ pub struct VerletList {
     start: Vec<u32>,
     items: Vec<u32>,
     slot_of: Vec<u32>,
+    members: Vec<u32>,
     reference: Vec<[f64; 3]>,
     skin_nm: f64,
 }
@@ -892,6 +893,7 @@ impl VerletList {
             start,
             items,
             slot_of,
+            members,
             reference: positions.to_vec(),
             skin_nm,
         }
@@ -902,6 +904,24 @@ impl VerletList {
     pub fn neighbours(&self, i: usize) -> &[u32] {
         let slot = self.slot_of[i] as usize;
         &self.items[self.start[slot] as usize..self.start[slot + 1] as usize]
+    }
+
+    /// Particles in cell order at the build: visiting them in this order
+    /// keeps neighbouring particles' data in cache.
+    pub fn cell_order(&self) -> &[u32] {
+        &self.members
+    }
+
+    /// Neighbours of the particle at position `slot` of [`VerletList::cell_order`].
+    #[inline(always)]
+    pub fn neighbours_at(&self, slot: usize) -> &[u32] {
+        &self.items[self.start[slot] as usize..self.start[slot + 1] as usize]
+    }
+
+    /// Position of particle `i` in [`VerletList::cell_order`].
+    #[inline(always)]
+    pub fn slot_of(&self, i: usize) -> usize {
+        self.slot_of[i] as usize
     }
 
     /// Skin, nm.
