@@ -24,6 +24,7 @@
 
 use crate::config::{Scenario, SimBox};
 use crate::error::{EngineError, Result};
+use crate::geometry::Shape;
 use crate::integrate::{reflect, Kinetics, State};
 use crate::neighbors::{CellList, DynamicGrid, MinImage, ObstacleGrid, VerletList};
 use crate::rng::{standard_normal, ParticleRng};
@@ -77,6 +78,8 @@ pub struct Crowd {
     radius_nm: Vec<f64>,
     crowder: Vec<bool>,
     grids: Vec<Option<ObstacleGrid>>,
+    /// Confining walls beyond the box faces (a pore), if any.
+    region: Option<Shape>,
     sweep: Sweep,
     parallel_min: usize,
     skin_nm: f64,
@@ -147,6 +150,7 @@ impl Crowd {
             radius_nm,
             crowder,
             grids,
+            region: curved_region(scenario),
             sweep: scenario.sweep,
             parallel_min: PARALLEL_MIN_PARTICLES,
             skin_nm,
@@ -221,6 +225,7 @@ impl Crowd {
             kinetics,
             sim_box,
             &self.grids,
+            (self.region.as_ref(), &self.radius_nm),
             self.verlet.as_ref(),
             (
                 &mut self.proposals,
@@ -509,6 +514,7 @@ fn draw_proposals(
     kinetics: &[Kinetics],
     sim_box: &SimBox,
     grids: &[Option<ObstacleGrid>],
+    (region, radius): (Option<&Shape>, &[f64]),
     list: Option<&VerletList>,
     (proposals, proposal_images, blocked): (&mut [[f64; 3]], &mut [[i32; 3]], &mut [bool]),
     sequential: bool,
@@ -534,7 +540,8 @@ fn draw_proposals(
                 let (yy, mm) = propose(&pos[base + o], &img[base + o], &mut g[o], kin, sim_box);
                 y[o] = yy;
                 m[o] = mm;
-                b[o] = grid.is_some_and(|grid| grid.blocked(&yy));
+                b[o] = grid.is_some_and(|grid| grid.blocked(&yy))
+                    || region.is_some_and(|shape| !shape.allows(&yy, radius[start + base + o]));
                 if let (false, Some(list)) = (b[o], list) {
                     d2max = d2max.max(list.drift2(&wrap, start + base + o, &yy));
                 }
@@ -567,6 +574,16 @@ fn draw_proposals(
         max_drift2 = max_drift2.max(d2);
     }
     max_drift2
+}
+
+/// The walls a crowd must test itself: a cylindrical pore. Plane walls
+/// coincide with the box faces, which every proposal already respects.
+fn curved_region(scenario: &Scenario) -> Option<Shape> {
+    scenario
+        .geometry
+        .as_ref()
+        .map(|g| g.shape.clone())
+        .filter(|shape| matches!(shape, Shape::Cylinder { .. }))
 }
 
 /// Slow reference: the first overlapping interacting pair by testing all
@@ -621,11 +638,16 @@ pub fn place_crowd(
     }
     let r_max = radius.iter().cloned().fold(0.0, f64::max);
     let sim_box = &scenario.sim_box;
+    let region = curved_region(scenario);
     // Tracers need no grid of their own when they only meet crowders, but both go in one.
     let mut grid = DynamicGrid::new(sim_box, 2.0 * r_max);
     let budget = PLACEMENT_ATTEMPT_FLOOR + PLACEMENT_ATTEMPTS_PER_PARTICLE * n as u64;
     let mut attempts = 0u64;
-    let volume: f64 = sim_box.edges_nm.iter().product();
+    // The space open to the fluid: the box, or the pore within it.
+    let volume: f64 = sim_box.edges_nm.iter().product::<f64>()
+        * region
+            .as_ref()
+            .map_or(1.0, |shape| shape.open_fraction(0.0, &sim_box.edges_nm));
     let mut crowd_volume = 0.0;
     // Larger particles first (index order among equals): small ones fill the gaps
     // large ones leave. Each draws from its own stream, so the order costs no reproducibility.
@@ -647,7 +669,7 @@ pub fn place_crowd(
                         file: scenario.source.clone(),
                         reason: format!(
                             "placing mobile particles one by one (largest first) ran out of room at species '{}' ({} of {} placed) \
-                             after {attempts} attempts; the particles placed so far fill φ = {:.4} of the box. Random sequential \
+                             after {attempts} attempts; the particles placed so far fill φ = {:.4} of the open volume. Random sequential \
                              addition jams near φ ≈ {} for equal spheres (Zhang & Torquato 2013): lower the counts or enlarge the box",
                             sp.name,
                             placed[s],
@@ -661,7 +683,9 @@ pub fn place_crowd(
                 let g = &mut rngs[i];
                 let c = [0, 1, 2]
                     .map(|k| kin.lower_nm[k] + g.uniform() * (kin.upper_nm[k] - kin.lower_nm[k]));
-                if obstacle_grid.is_some_and(|og| og.blocked(&c)) {
+                if obstacle_grid.is_some_and(|og| og.blocked(&c))
+                    || region.as_ref().is_some_and(|shape| !shape.allows(&c, radius[i]))
+                {
                     continue;
                 }
                 let clash = grid.any_near(&c, |j| {
