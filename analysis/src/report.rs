@@ -3,7 +3,7 @@
 use crate::models;
 use std::collections::BTreeMap;
 use std::f64::consts::PI;
-use thicket_engine::obstacles::FixedObstacles;
+use thicket_engine::obstacles::{FixedObstacles, Region};
 use thicket_engine::Scenario;
 
 /// Predicted D_eff/D0 by model name for the species `species` of a scenario.
@@ -30,7 +30,10 @@ pub fn scenario_models(scenario: &Scenario, species: &str) -> BTreeMap<String, f
         if let Ok(fixed) = FixedObstacles::build(scenario) {
             let spheres = &fixed.spheres;
             if !spheres.is_empty() {
-                let phi = spheres.nominal_volume_fraction(&scenario.sim_box);
+                // Obstacles in a pore fill the pore: fractions are of its volume (bulk models, local φ).
+                let region = Region::of(scenario);
+                let volume = region.volume_nm3(&scenario.sim_box);
+                let phi = spheres.volume_fraction_in(&region, &scenario.sim_box);
                 let excluded: f64 = spheres
                     .radii_nm
                     .iter()

@@ -777,7 +777,6 @@ impl RawScenario {
         let geometry = match &self.geometry {
             None => None,
             Some(g) => {
-                let has_fixed = self.obstacles.is_some() || self.fibres.is_some();
                 let geometry = Geometry::from_raw(
                     g,
                     file,
@@ -785,7 +784,6 @@ impl RawScenario {
                     &edges_nm,
                     &species,
                     steps as f64 * dt_s,
-                    has_fixed,
                 )?;
                 periodic = geometry.periodic();
                 Some(geometry)

@@ -60,6 +60,8 @@ use crate::integrate::{reflect, State};
 use crate::mobility::{
     superpose_two_walls, superpose_two_walls_with_gradient, PerpendicularModel, WallMobilityTable,
 };
+use crate::neighbors::ObstacleGrid;
+use crate::obstacles::FixedObstacles;
 use crate::rng::{standard_normal, ParticleRng};
 use crate::trajectory::{write_attributes, AttrValue, ObservableSeries, TrajectoryWriter};
 use rayon::prelude::*;
@@ -213,6 +215,8 @@ pub struct Confinement {
     hydrodynamics: Option<PerpendicularModel>,
     ito_drift: bool,
     species: Vec<SpeciesMotion>,
+    /// Fixed obstacles as seen by each species' centre (empty without obstacles).
+    grids: Vec<ObstacleGrid>,
 }
 
 /// D∥/D0, D⊥/D0 and a·dD⊥/dz of one plane wall at centre distance `z_nm`,
@@ -289,7 +293,37 @@ impl Confinement {
             hydrodynamics: geometry.hydrodynamics,
             ito_drift: true,
             species,
+            grids: Vec::new(),
         }
+    }
+
+    /// The same kernels among fixed obstacles: a move whose end point lies
+    /// inside an obstacle (grown by the particle's radius) is rejected whole,
+    /// as in the unconfined obstructed kernel. Obstacles exert no
+    /// hydrodynamic effect; only walls do.
+    pub fn with_obstacles(mut self, scenario: &Scenario, obstacles: &FixedObstacles) -> Self {
+        self.grids = if obstacles.is_empty() {
+            Vec::new()
+        } else {
+            scenario
+                .species
+                .iter()
+                .map(|s| {
+                    ObstacleGrid::build(
+                        &obstacles.spheres,
+                        &obstacles.fibres,
+                        s.radius_nm,
+                        &scenario.sim_box,
+                    )
+                })
+                .collect()
+        };
+        self
+    }
+
+    /// Obstacle grid of species `s`, if there are obstacles.
+    fn grid(&self, s: usize) -> Option<&ObstacleGrid> {
+        self.grids.get(s)
     }
 
     /// The same kernels without the Itô drift term: only to show the
@@ -367,7 +401,10 @@ impl Confinement {
                     for _ in 0..PLACEMENT_ATTEMPTS {
                         let c = [0, 1, 2].map(|k| lo[k] + g.uniform() * (hi[k] - lo[k]));
                         let keep = g.uniform() < weight(c[2]);
-                        if keep && self.shape.allows(&c, sp.radius_nm) {
+                        if keep
+                            && self.shape.allows(&c, sp.radius_nm)
+                            && !self.grid(s).is_some_and(|grid| grid.blocked(&c))
+                        {
                             *p = c;
                             return false;
                         }
@@ -398,7 +435,9 @@ impl Confinement {
         let counts = self
             .species
             .iter()
-            .map(|sp| {
+            .enumerate()
+            .map(|(s, sp)| {
+                let grid = self.grid(s);
                 let r = sp.range.clone();
                 let pos = &mut state.positions[r.clone()];
                 let img = &mut state.images[r.clone()];
@@ -412,46 +451,78 @@ impl Confinement {
                         // square root, table), so LANES particles are interleaved (see `lanes`).
                         let (lo, hi) = (sp.radius_nm, self.edges_nm[2] - sp.radius_nm);
                         match (&self.shape, hydro) {
-                            (Shape::PlaneWall { .. }, false) => {
-                                lanes::<1>(p, im, g, steps, |x, n, g, _| {
+                            (Shape::PlaneWall { .. }, false) => lanes::<1>(
+                                p,
+                                im,
+                                g,
+                                steps,
+                                guarded(grid, |x, n, g, _| {
                                     self.planar_step::<false>(x, n, g, sp, lo, hi, false)
-                                })
-                            }
-                            (Shape::PlaneWall { .. }, true) => {
-                                lanes::<LANES>(p, im, g, steps, |x, n, g, _| {
+                                }),
+                            ),
+                            (Shape::PlaneWall { .. }, true) => lanes::<LANES>(
+                                p,
+                                im,
+                                g,
+                                steps,
+                                guarded(grid, |x, n, g, _| {
                                     self.planar_step::<true>(x, n, g, sp, lo, hi, false)
-                                })
-                            }
-                            (Shape::Slit { .. }, false) => {
-                                lanes::<1>(p, im, g, steps, |x, n, g, _| {
+                                }),
+                            ),
+                            (Shape::Slit { .. }, false) => lanes::<1>(
+                                p,
+                                im,
+                                g,
+                                steps,
+                                guarded(grid, |x, n, g, _| {
                                     self.planar_step::<false>(x, n, g, sp, lo, hi, true)
-                                })
-                            }
-                            (Shape::Slit { .. }, true) => {
-                                lanes::<LANES>(p, im, g, steps, |x, n, g, _| {
+                                }),
+                            ),
+                            (Shape::Slit { .. }, true) => lanes::<LANES>(
+                                p,
+                                im,
+                                g,
+                                steps,
+                                guarded(grid, |x, n, g, _| {
                                     self.planar_step::<true>(x, n, g, sp, lo, hi, true)
-                                })
-                            }
-                            (Shape::Cylinder { .. }, false) => {
-                                lanes::<1>(p, im, g, steps, |x, n, g, c| {
+                                }),
+                            ),
+                            (Shape::Cylinder { .. }, false) => lanes::<1>(
+                                p,
+                                im,
+                                g,
+                                steps,
+                                guarded(grid, |x, n, g, c| {
                                     self.cylinder_step::<false>(x, n, g, sp, c)
-                                })
-                            }
-                            (Shape::Cylinder { .. }, true) => {
-                                lanes::<LANES>(p, im, g, steps, |x, n, g, c| {
+                                }),
+                            ),
+                            (Shape::Cylinder { .. }, true) => lanes::<LANES>(
+                                p,
+                                im,
+                                g,
+                                steps,
+                                guarded(grid, |x, n, g, c| {
                                     self.cylinder_step::<true>(x, n, g, sp, c)
-                                })
-                            }
-                            (Shape::Membrane(m), false) => {
-                                lanes::<1>(p, im, g, steps, |x, n, g, c| {
+                                }),
+                            ),
+                            (Shape::Membrane(m), false) => lanes::<1>(
+                                p,
+                                im,
+                                g,
+                                steps,
+                                guarded(grid, |x, n, g, c| {
                                     self.membrane_step::<false>(m, x, n, g, sp, c)
-                                })
-                            }
-                            (Shape::Membrane(m), true) => {
-                                lanes::<LANES>(p, im, g, steps, |x, n, g, c| {
+                                }),
+                            ),
+                            (Shape::Membrane(m), true) => lanes::<LANES>(
+                                p,
+                                im,
+                                g,
+                                steps,
+                                guarded(grid, |x, n, g, c| {
                                     self.membrane_step::<true>(m, x, n, g, sp, c)
-                                })
-                            }
+                                }),
+                            ),
                         }
                     })
                     .reduce(Counts::default, |a, b| a + b)
@@ -750,6 +821,25 @@ fn lanes<const K: usize>(
     c
 }
 
+/// `step` with rejection at fixed obstacles: a move ending inside one is
+/// undone, with the events it counted.
+#[inline(always)]
+fn guarded<'a>(
+    grid: Option<&'a ObstacleGrid>,
+    mut step: impl FnMut(&mut [f64; 3], &mut [i32; 3], &mut ParticleRng, &mut Counts) + 'a,
+) -> impl FnMut(&mut [f64; 3], &mut [i32; 3], &mut ParticleRng, &mut Counts) + 'a {
+    move |x, n, g, c| match grid {
+        None => step(x, n, g, c),
+        Some(grid) => {
+            let (x0, n0, c0) = (*x, *n, *c);
+            step(x, n, g, c);
+            if grid.blocked(x) {
+                (*x, *n, *c) = (x0, n0, c0);
+            }
+        }
+    }
+}
+
 /// Periodic wrap of one coordinate into [0, l) with image counting.
 #[inline(always)]
 fn wrap(x: &mut f64, image: &mut i32, l: f64) {
@@ -1008,10 +1098,10 @@ pub fn sidecar_path(checkpoint: &Path) -> PathBuf {
 }
 
 impl ConfinedRun {
-    /// Prepares the kernels of a scenario with a geometry.
-    pub fn new(scenario: &Scenario, geometry: &Geometry) -> Self {
+    /// Prepares the kernels of a scenario with a geometry, among its fixed obstacles.
+    pub fn new(scenario: &Scenario, geometry: &Geometry, obstacles: &FixedObstacles) -> Self {
         Self {
-            confinement: Confinement::new(scenario, geometry),
+            confinement: Confinement::new(scenario, geometry).with_obstacles(scenario, obstacles),
             meter: MembraneMeter::new(scenario.species.len()),
             series: Vec::new(),
             flux_after_s: geometry.flux_after_s,

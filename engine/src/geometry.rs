@@ -672,13 +672,12 @@ impl Geometry {
     /// Validates the raw section.
     ///
     /// `periodic_given` is `box.periodic` as written (it must agree with the
-    /// shape when given); `has_fixed_obstacles` and crowder species are
-    /// refused, since the confined kernels do not test them.
+    /// shape when given). Crowder species are refused in membranes and
+    /// with wall hydrodynamics.
     ///
     /// # Errors
     /// [`EngineError::InvalidValue`] naming file, key, value and allowed
     /// range, or a CSV line for pores read from a file.
-    #[allow(clippy::too_many_arguments)]
     pub fn from_raw(
         raw: &RawGeometry,
         file: &Path,
@@ -686,7 +685,6 @@ impl Geometry {
         edges_nm: &[f64; 3],
         species: &[Species],
         duration_s: f64,
-        has_fixed_obstacles: bool,
     ) -> Result<Self> {
         let bad = |key: &str, value: String, allowed: String| EngineError::InvalidValue {
             file: file.to_path_buf(),
@@ -721,22 +719,25 @@ impl Geometry {
                 ));
             }
         }
-        if has_fixed_obstacles {
-            return Err(bad(
-                "kind",
-                format!("{kind:?}"),
-                "a geometry cannot yet be combined with [obstacles] or [fibres]; run the confinement and the obstacles as separate scenarios".into(),
-            ));
-        }
-        if let Some(s) = species.iter().find(|s| s.crowder) {
-            return Err(bad(
-                "kind",
-                format!("{kind:?}"),
-                format!("a geometry cannot yet be combined with crowders (species '{}' has role = \"crowder\")", s.name),
-            ));
-        }
-
         let hydro_on = raw.wall_hydrodynamics.unwrap_or(false);
+        if let Some(s) = species.iter().find(|s| s.crowder) {
+            // Hard contacts between mobile particles are resolved by the crowd kernel, which knows
+            // walls and pores but neither baths nor many-body hydrodynamics.
+            if kind == "membrane" {
+                return Err(bad(
+                    "kind",
+                    format!("{kind:?}"),
+                    format!("a membrane cannot be combined with crowders (species '{}' has role = \"crowder\"): its baths recycle independent particles; use a slit or a cylinder, or fixed [obstacles] in the pores", s.name),
+                ));
+            }
+            if hydro_on {
+                return Err(bad(
+                    "wall_hydrodynamics",
+                    "true".into(),
+                    format!("wall hydrodynamics cannot be combined with crowders (species '{}' has role = \"crowder\"): the hydrodynamic coupling of crowded particles near walls is not modelled; set it to false", s.name),
+                ));
+            }
+        }
         let hydrodynamics = match (hydro_on, raw.perpendicular_model.as_deref()) {
             (false, None) => None,
             (false, Some(_)) => return Err(bad("perpendicular_model", "(given)".into(), "it is only used with wall_hydrodynamics = true".into())),

@@ -17,11 +17,15 @@
 //!
 //! Radii may be fixed, uniform or log-normal; the target is a volume
 //! fraction or a count. On walled axes every obstacle lies wholly inside the
-//! box. All lengths are nm.
+//! box; in a cylindrical pore wholly inside the pore, and in a membrane
+//! wholly inside its pores (a gel-filled membrane: the reservoirs stay
+//! clear). A volume fraction is then relative to the space obstacles may
+//! fill (the [`Region`]). All lengths are nm.
 
 use crate::config::{Scenario, SimBox};
 use crate::error::{EngineError, Result};
 use crate::fibres::{self, Fibres};
+use crate::geometry::Shape;
 use crate::neighbors::{min_image_distance2, DynamicGrid, ObstacleGrid};
 use crate::rng::{standard_normal, ParticleRng};
 use std::f64::consts::PI;
@@ -265,6 +269,11 @@ impl Spheres {
             .sum();
         v / box_volume(sim_box)
     }
+
+    /// Sum of sphere volumes over the volume of `region`.
+    pub fn volume_fraction_in(&self, region: &Region, sim_box: &SimBox) -> f64 {
+        self.nominal_volume_fraction(sim_box) * box_volume(sim_box) / region.volume_nm3(sim_box)
+    }
 }
 
 /// Everything fixed in a scenario: spheres and fibres.
@@ -289,6 +298,65 @@ fn box_volume(sim_box: &SimBox) -> f64 {
     sim_box.edges_nm.iter().product()
 }
 
+/// Where obstacle spheres may lie beyond the box's own walls (plane walls
+/// and slits are box faces, which placement already respects).
+#[derive(Debug, Clone, Copy, Default)]
+pub struct Region<'a> {
+    shape: Option<&'a Shape>,
+}
+
+impl<'a> Region<'a> {
+    /// The region of a scenario: a cylindrical pore or a membrane's pores, or the box.
+    pub fn of(scenario: &'a Scenario) -> Self {
+        let shape = scenario
+            .geometry
+            .as_ref()
+            .map(|g| &g.shape)
+            .filter(|s| matches!(s, Shape::Cylinder { .. } | Shape::Membrane(_)));
+        Self { shape }
+    }
+
+    /// True when the box faces are the only bounds.
+    pub fn is_box(&self) -> bool {
+        self.shape.is_none()
+    }
+
+    /// Whether a sphere of radius `r` centred at `c` lies wholly inside the region
+    /// (the box's own walled axes are checked separately).
+    #[inline]
+    pub fn allows(&self, c: &[f64; 3], r: f64) -> bool {
+        match self.shape {
+            None => true,
+            Some(Shape::Membrane(m)) => {
+                c[2] - r >= m.z_lo_nm
+                    && c[2] + r <= m.z_hi_nm
+                    && m.pore_at(c[0], c[1]).is_some_and(|(axis, radius)| {
+                        (c[0] - axis[0]).hypot(c[1] - axis[1]) + r <= radius
+                    })
+            }
+            Some(shape) => shape.allows(c, r),
+        }
+    }
+
+    /// Volume obstacles may fill, nm³: the box, the pore, or the membrane's pores.
+    pub fn volume_nm3(&self, sim_box: &SimBox) -> f64 {
+        match self.shape {
+            None => box_volume(sim_box),
+            Some(Shape::Membrane(m)) => m.pore_volume_nm3(),
+            Some(shape) => shape.open_fraction(0.0, &sim_box.edges_nm) * box_volume(sim_box),
+        }
+    }
+
+    /// What the region is, for messages.
+    pub fn describe(&self) -> &'static str {
+        match self.shape {
+            None => "the box",
+            Some(Shape::Membrane(_)) => "the membrane's pores",
+            Some(_) => "the pore",
+        }
+    }
+}
+
 impl FixedObstacles {
     /// Places the spheres and fibres a scenario asks for (none if it asks for none).
     ///
@@ -298,7 +366,13 @@ impl FixedObstacles {
     pub fn build(scenario: &Scenario) -> Result<Self> {
         let spheres = match &scenario.obstacles {
             None => Spheres::default(),
-            Some(spec) => place_spheres(spec, &scenario.sim_box, scenario.seed, &scenario.source)?,
+            Some(spec) => place_spheres(
+                spec,
+                &scenario.sim_box,
+                &Region::of(scenario),
+                scenario.seed,
+                &scenario.source,
+            )?,
         };
         let fibres = match &scenario.fibres {
             None => Fibres::default(),
@@ -330,6 +404,52 @@ impl FixedObstacles {
             value: 1.0 - open.value,
             standard_error: open.standard_error,
         }
+    }
+
+    /// Fraction of `region` covered by obstacles: as
+    /// [`FixedObstacles::volume_fraction`] but over the space obstacles may
+    /// fill (the pore, or a membrane's pores), by Monte Carlo among the
+    /// sampled points that fall in it unless exact.
+    pub fn volume_fraction_in(
+        &self,
+        region: &Region,
+        sim_box: &SimBox,
+        samples: usize,
+        seed: u64,
+    ) -> Estimate {
+        if region.is_box() {
+            return self.volume_fraction(sim_box, samples, seed);
+        }
+        if self.fibres.is_empty() && !self.spheres.may_overlap {
+            return Estimate {
+                value: self.spheres.volume_fraction_in(region, sim_box),
+                standard_error: 0.0,
+            };
+        }
+        let grid = ObstacleGrid::build(&self.spheres, &self.fibres, 0.0, sim_box);
+        let share = region.volume_nm3(sim_box) / box_volume(sim_box);
+        let covered = sample_fraction(sim_box, samples, seed, |p| {
+            region.allows(p, 0.0) && grid.blocked(p)
+        });
+        Estimate {
+            value: covered.value / share,
+            standard_error: covered.standard_error / share,
+        }
+    }
+
+    /// Fraction of the box open to a centre of radius `tracer_radius_nm` that
+    /// `allowed` (walls, pores) lets through: outside every obstacle grown by
+    /// that radius. Monte Carlo as [`FixedObstacles::open_fraction`].
+    pub fn open_fraction_where(
+        &self,
+        sim_box: &SimBox,
+        tracer_radius_nm: f64,
+        samples: usize,
+        seed: u64,
+        allowed: impl Fn(&[f64; 3]) -> bool,
+    ) -> Estimate {
+        let grid = ObstacleGrid::build(&self.spheres, &self.fibres, tracer_radius_nm, sim_box);
+        sample_fraction(sim_box, samples, seed, |p| allowed(p) && !grid.blocked(p))
     }
 
     /// Fraction of the box open to the centre of a sphere of radius
@@ -403,6 +523,7 @@ fn centre_range(sim_box: &SimBox, k: usize, r: f64) -> (f64, f64) {
 pub fn place_spheres(
     spec: &ObstacleSpec,
     sim_box: &SimBox,
+    region: &Region,
     seed: u64,
     scenario_file: &Path,
 ) -> Result<Spheres> {
@@ -410,7 +531,7 @@ pub fn place_spheres(
         ObstacleSpec::File {
             path,
             allow_overlap,
-        } => read_csv(path, sim_box, *allow_overlap, scenario_file),
+        } => read_csv(path, sim_box, region, *allow_overlap, scenario_file),
         ObstacleSpec::Generated {
             generator,
             radii,
@@ -419,9 +540,21 @@ pub fn place_spheres(
             let mut rng = ParticleRng::for_particle(seed, OBSTACLE_STREAM);
             match generator {
                 Generator::RandomSequential => {
-                    random_sequential(radii, *target, sim_box, &mut rng, scenario_file)
+                    random_sequential(radii, *target, sim_box, region, &mut rng, scenario_file)
                 }
-                Generator::Poisson => poisson(radii, *target, sim_box, &mut rng, scenario_file),
+                Generator::Poisson => {
+                    poisson(radii, *target, sim_box, region, &mut rng, scenario_file)
+                }
+                Generator::SimpleCubic | Generator::FaceCentredCubic if !region.is_box() => {
+                    Err(placement_error(
+                        scenario_file,
+                        format!(
+                            "a {} lattice fills the box and cannot follow the curved wall of {}; use placement = \"random\", \"poisson\" or a file",
+                            generator.name(),
+                            region.describe()
+                        ),
+                    ))
+                }
                 Generator::SimpleCubic | Generator::FaceCentredCubic => {
                     lattice(*generator, radii, *target, sim_box, scenario_file)
                 }
@@ -436,6 +569,7 @@ fn draw_radii(
     radii: &RadiusDistribution,
     target: Target,
     sim_box: &SimBox,
+    volume_nm3: f64,
     rng: &mut ParticleRng,
     file: &Path,
 ) -> Result<Vec<f64>> {
@@ -472,7 +606,7 @@ fn draw_radii(
             }
         }
         Target::VolumeFraction(phi) => {
-            let goal = phi * box_volume(sim_box);
+            let goal = phi * volume_nm3;
             let mut sum = 0.0;
             loop {
                 let r = check_size(radii.sample(rng).ok_or_else(fail)?)?;
@@ -580,10 +714,12 @@ fn random_sequential(
     radii: &RadiusDistribution,
     target: Target,
     sim_box: &SimBox,
+    region: &Region,
     rng: &mut ParticleRng,
     file: &Path,
 ) -> Result<Spheres> {
-    let mut want = draw_radii(radii, target, sim_box, rng, file)?;
+    let volume = region.volume_nm3(sim_box);
+    let mut want = draw_radii(radii, target, sim_box, volume, rng, file)?;
     let asked = match target {
         Target::VolumeFraction(phi) => format!("φ = {phi} was asked for"),
         Target::Count(n) => format!(
@@ -593,7 +729,7 @@ fn random_sequential(
                 radii_nm: want.clone(),
                 may_overlap: false
             }
-            .nominal_volume_fraction(sim_box)
+            .volume_fraction_in(region, sim_box)
         ),
     };
     // Larger first: small spheres fill the gaps that large ones leave, so a polydisperse target is reachable.
@@ -612,7 +748,7 @@ fn random_sequential(
         }
         loop {
             if attempts >= budget || voxels.as_ref().is_some_and(|v| v.list.is_empty()) {
-                let reached = spheres.nominal_volume_fraction(sim_box);
+                let reached = spheres.volume_fraction_in(region, sim_box);
                 let why = if attempts >= budget {
                     format!("after {attempts} attempts without finding room for the next")
                 } else {
@@ -621,9 +757,10 @@ fn random_sequential(
                 return Err(placement_error(
                     file,
                     format!(
-                        "random sequential addition reached φ = {reached:.4} ({n} of {} obstacles) {why}; {asked}. \
+                        "random sequential addition reached φ = {reached:.4} of {} ({n} of {} obstacles) {why}; {asked}. \
                          It jams near φ ≈ {RSA_JAMMING_FRACTION} for equal spheres (Zhang & Torquato 2013); \
                          ask for less, use a lattice, or use placement = \"poisson\" for overlapping obstacles",
+                        region.describe(),
                         want.len()
                     ),
                 ));
@@ -644,7 +781,7 @@ fn random_sequential(
             let inside = (0..3).all(|k| {
                 let (lo, hi) = centre_range(sim_box, k, r);
                 c[k] >= lo && c[k] <= hi && c[k] < sim_box.edges_nm[k]
-            });
+            }) && region.allows(&c, r);
             let clash = !inside
                 || grid.any_near(&c, |j| {
                     let j = j as usize;
@@ -704,26 +841,44 @@ fn poisson(
     radii: &RadiusDistribution,
     target: Target,
     sim_box: &SimBox,
+    region: &Region,
     rng: &mut ParticleRng,
     file: &Path,
 ) -> Result<Spheres> {
+    let volume = region.volume_nm3(sim_box);
     let count = match target {
         Target::Count(n) => n,
-        Target::VolumeFraction(phi) => poisson_count(
-            -(1.0 - phi).ln() * box_volume(sim_box) / radii.mean_volume_nm3(),
-            rng,
-        ),
+        Target::VolumeFraction(phi) => {
+            poisson_count(-(1.0 - phi).ln() * volume / radii.mean_volume_nm3(), rng)
+        }
     };
-    let radii_nm = draw_radii(radii, Target::Count(count), sim_box, rng, file)?;
-    let centres_nm = radii_nm
-        .iter()
-        .map(|&r| {
-            [0, 1, 2].map(|k| {
+    let radii_nm = draw_radii(radii, Target::Count(count), sim_box, volume, rng, file)?;
+    let mut centres_nm = Vec::with_capacity(radii_nm.len());
+    for &r in &radii_nm {
+        // Uniform over the centres the region allows, by rejection from the box.
+        let mut tries = 0u64;
+        let c = loop {
+            let c = [0, 1, 2].map(|k| {
                 let (lo, hi) = centre_range(sim_box, k, r);
                 lo + rng.uniform() * (hi - lo)
-            })
-        })
-        .collect();
+            });
+            if region.allows(&c, r) {
+                break c;
+            }
+            tries += 1;
+            if tries >= RSA_ATTEMPT_FLOOR {
+                return Err(placement_error(
+                    file,
+                    format!(
+                        "no place was found for an obstacle of radius {r:.4} nm wholly inside {} in {tries} tries; \
+                         the obstacles must be smaller than the pores",
+                        region.describe()
+                    ),
+                ));
+            }
+        };
+        centres_nm.push(c);
+    }
     Ok(Spheres {
         centres_nm,
         radii_nm,
@@ -882,6 +1037,7 @@ fn lattice(
 pub fn read_csv(
     path: &Path,
     sim_box: &SimBox,
+    region: &Region,
     allow_overlap: bool,
     scenario_file: &Path,
 ) -> Result<Spheres> {
@@ -994,6 +1150,16 @@ pub fn read_csv(
                 ));
             }
         }
+        if !region.allows(&[v[0], v[1], v[2]], r) {
+            return Err(bad(
+                line,
+                row,
+                format!(
+                    "the obstacle (radius {r} nm) must lie wholly inside {}; it crosses or lies beyond its wall",
+                    region.describe()
+                ),
+            ));
+        }
         spheres.centres_nm.push([v[0], v[1], v[2]]);
         spheres.radii_nm.push(r);
         lines.push(line);
@@ -1065,6 +1231,7 @@ mod tests {
             &RadiusDistribution::Fixed { radius_nm: 3.0 },
             Target::VolumeFraction(0.3),
             &b,
+            &Region::default(),
             &mut rng,
             Path::new("t"),
         )
@@ -1081,6 +1248,7 @@ mod tests {
             &RadiusDistribution::Fixed { radius_nm: 2.0 },
             Target::VolumeFraction(0.45),
             &b,
+            &Region::default(),
             &mut rng,
             Path::new("t"),
         )

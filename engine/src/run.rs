@@ -66,7 +66,9 @@ pub fn run(
     let mut confined = scenario
         .geometry
         .as_ref()
-        .map(|g| ConfinedRun::new(scenario, g));
+        .map(|g| ConfinedRun::new(scenario, g, &obstacles));
+    // Crowders in a slit or pore step with the crowd kernel, which knows the walls itself.
+    let crowded = scenario.has_crowders();
     let (mut state, mut writer) = if options.resume {
         resume_state(scenario, out, &ckpt_path)?
     } else {
@@ -82,8 +84,8 @@ pub fn run(
         check_parent(out)?;
         let _ = std::fs::remove_file(&ckpt_path);
         let state = match &confined {
-            Some(c) => c.initial_state(scenario)?,
-            None => dynamics.initial_state(scenario)?,
+            Some(c) if !crowded => c.initial_state(scenario)?,
+            _ => dynamics.initial_state(scenario)?,
         };
         let mut writer = TrajectoryWriter::create(out, scenario)?;
         writer.write_obstacles(&obstacles, scenario)?;
@@ -131,8 +133,8 @@ pub fn run(
         let to_frame = record - state.step % record;
         let steps = block.min(to_frame);
         match confined.as_mut() {
-            Some(c) => c.advance(&mut state, steps),
-            None => dynamics.advance(&mut state, steps),
+            Some(c) if !crowded => c.advance(&mut state, steps),
+            _ => dynamics.advance(&mut state, steps),
         }
         if state.step % record == 0 {
             writer.write_frame(&state, state.step as f64 * scenario.dt_s)?;

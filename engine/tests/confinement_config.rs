@@ -385,14 +385,27 @@ fn geometry_conflicts_are_refused() {
         err.contains("box.periodic") && err.contains("[true, true, false]"),
         "{err}"
     );
-    let t = text("[50.0, 50.0, 20.0]", 2.0, "kind = \"slit\"")
-        + "[obstacles]\nplacement = \"random\"\nvolume_fraction = 0.1\nradius_nm = 3.0\n";
-    let err = Scenario::from_text(&t, Path::new("scenario.toml"), &[])
-        .unwrap_err()
-        .to_string();
+    // Crowders meet walls, but neither wall hydrodynamics nor membrane baths.
+    let crowded = |geometry: &str| {
+        text("[50.0, 50.0, 20.0]", 2.0, geometry).replace(
+            "radius_nm = 2",
+            "radius_nm = 2\nrole = \"crowder\"",
+        )
+    };
+    let err = Scenario::from_text(
+        &crowded("kind = \"slit\"\nwall_hydrodynamics = true"),
+        Path::new("scenario.toml"),
+        &[],
+    )
+    .unwrap_err()
+    .to_string();
     assert!(
-        err.contains("geometry.kind") && err.contains("[obstacles]"),
+        err.contains("geometry.wall_hydrodynamics") && err.contains("crowders"),
         "{err}"
+    );
+    assert!(
+        Scenario::from_text(&crowded("kind = \"slit\""), Path::new("scenario.toml"), &[]).is_ok(),
+        "crowders in a slit without hydrodynamics are allowed"
     );
     let t = text(
         "[50.0, 50.0, 20.0]",
