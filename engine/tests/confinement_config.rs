@@ -387,10 +387,8 @@ fn geometry_conflicts_are_refused() {
     );
     // Crowders meet walls, but neither wall hydrodynamics nor membrane baths.
     let crowded = |geometry: &str| {
-        text("[50.0, 50.0, 20.0]", 2.0, geometry).replace(
-            "radius_nm = 2",
-            "radius_nm = 2\nrole = \"crowder\"",
-        )
+        text("[50.0, 50.0, 20.0]", 2.0, geometry)
+            .replace("radius_nm = 2", "radius_nm = 2\nrole = \"crowder\"")
     };
     let err = Scenario::from_text(
         &crowded("kind = \"slit\"\nwall_hydrodynamics = true"),

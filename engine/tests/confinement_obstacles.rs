@@ -66,8 +66,15 @@ fn tracers_among_obstacles_in_a_slit_fill_the_open_space_uniformly() {
     let bin_of = |z: f64| (((z - a) / (w - 2.0 * a) * bins as f64) as usize).min(bins - 1);
     let mut histogram = vec![0u64; bins];
     for p in &state.positions {
-        assert!(!grid.blocked(p), "a tracer centre inside an obstacle at {p:?}");
-        assert!(p[2] >= a && p[2] <= w - a, "a centre left the slit: z = {}", p[2]);
+        assert!(
+            !grid.blocked(p),
+            "a tracer centre inside an obstacle at {p:?}"
+        );
+        assert!(
+            p[2] >= a && p[2] <= w - a,
+            "a centre left the slit: z = {}",
+            p[2]
+        );
         histogram[bin_of(p[2])] += 1;
     }
     // The open volume per height bin of this configuration: uniform points, from a stream no particle uses.
@@ -162,7 +169,10 @@ fn axial_diffusion_in_a_pore_of_aligned_fibres_is_free() {
         (ratio - 1.0).abs() < 0.02,
         "axial D/D0 = {ratio:.4} ± {ratio_se:.4}, not within 2 % of 1"
     );
-    assert!(ratio_se < 0.005, "too few samples to resolve 2 % ({ratio_se})");
+    assert!(
+        ratio_se < 0.005,
+        "too few samples to resolve 2 % ({ratio_se})"
+    );
     assert!(
         d_transverse + 4.0 * (se_transverse + se) < d_axial,
         "the fibres and wall should slow transverse motion: {d_transverse} ± {se_transverse} vs {d_axial} ± {se}"
@@ -299,7 +309,11 @@ fn crowders_stay_inside_a_cylindrical_pore_without_overlaps() {
     assert!(inside(&state) <= r - a, "placed outside the pore");
     dynamics.advance(&mut state, 3000);
     let widest = inside(&state);
-    assert!(widest <= r - a, "a centre {widest} nm off the axis, beyond r − a = {}", r - a);
+    assert!(
+        widest <= r - a,
+        "a centre {widest} nm off the axis, beyond r − a = {}",
+        r - a
+    );
     // The pore holds φ = 600·(4/3)π a³ / (π r² L) ≈ 0.31 of its volume: contacts are frequent.
     let crowd = dynamics.crowd().expect("a crowd");
     let overlap = thicket_engine::crowders::find_overlap_brute_force(
@@ -310,7 +324,10 @@ fn crowders_stay_inside_a_cylindrical_pore_without_overlaps() {
         1e-12,
     );
     assert_eq!(overlap, None, "overlapping spheres in the pore");
-    assert!(crowd.stats.accepted < crowd.stats.proposed, "no move was ever rejected");
+    assert!(
+        crowd.stats.accepted < crowd.stats.proposed,
+        "no move was ever rejected"
+    );
 }
 
 #[test]
@@ -340,7 +357,9 @@ fn obstacles_that_cannot_fit_the_pore_are_refused() {
         cylinder,
     ));
     assert!(
-        err.contains("beads.csv") && err.contains("line 3") && err.contains("wholly inside the pore"),
+        err.contains("beads.csv")
+            && err.contains("line 3")
+            && err.contains("wholly inside the pore"),
         "{err}"
     );
     // A lattice cannot follow a curved wall.
@@ -354,7 +373,10 @@ fn obstacles_that_cannot_fit_the_pore_are_refused() {
         "[obstacles]\nplacement = \"random\"\nvolume_fraction = 0.45\nradius_nm = 2.0",
         cylinder,
     ));
-    assert!(err.contains("reached φ =") && err.contains("of the pore"), "{err}");
+    assert!(
+        err.contains("reached φ =") && err.contains("of the pore"),
+        "{err}"
+    );
     // Overlapping obstacles larger than the pore find no place in it.
     let err = build(&base(
         "[obstacles]\nplacement = \"poisson\"\ncount = 3\nradius_nm = 9.9",
@@ -382,10 +404,17 @@ fn obstacles_fill_the_pore_at_the_fraction_asked_for() {
         .sum();
     // The count is rounded to the nearest whole sphere: within half a sphere's volume.
     let half_sphere = 0.5 * 4.0 / 3.0 * std::f64::consts::PI * 8.0 / pore;
-    assert!((v / pore - 0.25).abs() <= half_sphere, "φ of the pore = {}", v / pore);
+    assert!(
+        (v / pore - 0.25).abs() <= half_sphere,
+        "φ of the pore = {}",
+        v / pore
+    );
     for (c, b) in o.spheres.centres_nm.iter().zip(&o.spheres.radii_nm) {
         let off_axis = (c[0] - 20.0).hypot(c[1] - 20.0);
-        assert!(off_axis + b <= 20.0, "a sphere crosses the pore wall: {c:?}");
+        assert!(
+            off_axis + b <= 20.0,
+            "a sphere crosses the pore wall: {c:?}"
+        );
     }
     // Membranes: obstacles go in the pores only, so the reservoirs stay clear.
     let text = "seed = 5\n[medium]\ntemperature_K = 298.15\n[box]\nedges_nm = [40.0, 40.0, 120.0]\n\
