@@ -147,6 +147,7 @@ enum Command {
 }
 
 fn main() -> ExitCode {
+    restore_default_sigpipe();
     let cli = Cli::parse();
     let result = match cli.command {
         Command::Run {
@@ -227,5 +228,15 @@ fn main() -> ExitCode {
             eprintln!("thicket: error: {err:#}");
             ExitCode::from(2)
         }
+    }
+}
+
+/// Output piped into a reader that stops early (`thicket analyze --json | head`)
+/// ends the program quietly, as Unix tools do, instead of panicking on the write.
+fn restore_default_sigpipe() {
+    #[cfg(unix)]
+    // SAFETY: called first in main, before any thread exists; SIG_DFL is always a valid disposition.
+    unsafe {
+        libc::signal(libc::SIGPIPE, libc::SIG_DFL);
     }
 }

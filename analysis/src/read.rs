@@ -228,6 +228,36 @@ impl Trajectory {
         &self.path
     }
 
+    /// Numeric steady-state membrane results of a species (attributes of
+    /// `/observables/<species>/membrane`, written at the end of a membrane
+    /// run), by name; empty when there are none.
+    ///
+    /// # Errors
+    /// [`ErrorKind::Hdf5`] if the library fails on an existing group.
+    pub fn membrane_results(&self, species: &str) -> Result<Vec<(String, f64)>> {
+        let name = format!("observables/{species}/membrane");
+        if !self.file.link_exists("observables")
+            || !self.file.link_exists(&format!("observables/{species}"))
+            || !self.file.link_exists(&name)
+        {
+            return Ok(Vec::new());
+        }
+        let Ok(group) = self.file.group(&name) else {
+            return Ok(Vec::new());
+        };
+        let mut out = Vec::new();
+        let names: Vec<String> = group
+            .attr_names()
+            .map_err(|e| Error::hdf5(&self.path, &name, e))?;
+        for attr in names {
+            // Text attributes (the definitions) are skipped.
+            if let Ok(Some(v)) = attr_f64(&self.path, &group, &name, &attr) {
+                out.push((attr, v));
+            }
+        }
+        Ok(out)
+    }
+
     /// Names of the species of moving particles (groups of `/particles`
     /// other than `obstacles`), in the file's order.
     pub fn species_names(&self) -> &[String] {
