@@ -366,6 +366,10 @@ pub struct Scenario {
     pub resolved_toml: String,
 }
 
+/// Crowder volume fraction above which crowders start on a lattice
+/// instead of by random addition (which jams near φ ≈ 0.38 and slows well before).
+pub const LATTICE_START_FRACTION: f64 = 0.33;
+
 impl Scenario {
     /// Reads, overrides and validates a scenario file.
     ///
@@ -412,6 +416,24 @@ impl Scenario {
     /// True when some species has hard contacts with other particles.
     pub fn has_crowders(&self) -> bool {
         self.species.iter().any(|s| s.crowder)
+    }
+
+    /// Volume fraction of the fluid space filled by crowders (the box, or a
+    /// cylindrical pore within it).
+    pub fn crowder_volume_fraction(&self) -> f64 {
+        let filled: f64 = self
+            .species
+            .iter()
+            .filter(|s| s.crowder)
+            .map(|s| s.count as f64 * 4.0 / 3.0 * std::f64::consts::PI * s.radius_nm.powi(3))
+            .sum();
+        let fluid = match self.geometry.as_ref().map(|g| &g.shape) {
+            Some(shape @ crate::geometry::Shape::Cylinder { .. }) => {
+                shape.open_fraction(0.0, &self.sim_box.edges_nm)
+            }
+            _ => 1.0,
+        };
+        filled / (self.sim_box.edges_nm.iter().product::<f64>() * fluid)
     }
 
     /// Smallest length over which species `s` meets a contact: its radius at
@@ -497,6 +519,24 @@ impl Scenario {
         }
         if let Some(g) = &self.geometry {
             out.extend(g.warnings(&self.species, self.dt_s));
+        }
+        let phi_c = self.crowder_volume_fraction();
+        if phi_c > LATTICE_START_FRACTION {
+            // Structural relaxation of dense hard spheres takes several Brownian times a²/D0.
+            let tau = self
+                .species
+                .iter()
+                .filter(|s| s.crowder)
+                .map(|s| s.radius_nm.powi(2) / s.d0_nm2_per_s())
+                .fold(0.0, f64::max);
+            out.push(format!(
+                "crowders fill φ = {phi_c:.4}, above {LATTICE_START_FRACTION}: they start on a face-centred lattice \
+                 (random addition jams near φ ≈ 0.38), which must melt before measurements; the first 20 a²/D0 = {:.3e} s \
+                 of the run ({:.0} steps) are a transient to leave out of fits (common practice: check that the MSD no \
+                 longer depends on the start). Hard spheres freeze above φ ≈ 0.494, where the lattice stays a crystal",
+                20.0 * tau,
+                20.0 * tau / self.dt_s
+            ));
         }
         let total = self.particle_count() as f64 * self.frames() as f64 * 3.0;
         let bytes = total

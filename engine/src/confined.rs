@@ -305,18 +305,7 @@ impl Confinement {
         self.grids = if obstacles.is_empty() {
             Vec::new()
         } else {
-            scenario
-                .species
-                .iter()
-                .map(|s| {
-                    ObstacleGrid::build(
-                        &obstacles.spheres,
-                        &obstacles.fibres,
-                        s.radius_nm,
-                        &scenario.sim_box,
-                    )
-                })
-                .collect()
+            obstacles.grids_for(scenario)
         };
         self
     }

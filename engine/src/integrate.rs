@@ -300,20 +300,7 @@ impl Dynamics {
     /// (a [`Crowd`]) when some species is a crowder.
     pub fn new(scenario: &Scenario, obstacles: &FixedObstacles) -> Self {
         let kinetics = kinetics(scenario);
-        let grids = || -> Vec<ObstacleGrid> {
-            scenario
-                .species
-                .iter()
-                .map(|s| {
-                    ObstacleGrid::build(
-                        &obstacles.spheres,
-                        &obstacles.fibres,
-                        s.radius_nm,
-                        &scenario.sim_box,
-                    )
-                })
-                .collect()
-        };
+        let grids = || obstacles.grids_for(scenario);
         let kernel = if scenario.has_crowders() {
             let g = if obstacles.is_empty() {
                 vec![None; scenario.species.len()]

@@ -386,6 +386,18 @@ impl FixedObstacles {
         self.spheres.is_empty() && self.fibres.is_empty()
     }
 
+    /// The obstacles as seen by each species' centre: one grid per species,
+    /// the obstacles grown by its radius.
+    pub fn grids_for(&self, scenario: &Scenario) -> Vec<ObstacleGrid> {
+        scenario
+            .species
+            .iter()
+            .map(|s| {
+                ObstacleGrid::build(&self.spheres, &self.fibres, s.radius_nm, &scenario.sim_box)
+            })
+            .collect()
+    }
+
     /// Fraction of the box covered by obstacles (their union).
     ///
     /// Exact (standard error 0) for non-overlapping spheres without fibres,
@@ -1023,6 +1035,102 @@ fn lattice(
     Ok(spheres)
 }
 
+/// Sites of a face-centred lattice holding at least `count` spheres of
+/// radius `radius_nm`, as evenly spread over the box as whole cells allow:
+/// each axis gets its own cell edge (whole cells along a periodic edge;
+/// on a walled axis the sites stay a radius from the faces). A start for
+/// mobile hard spheres denser than random addition reaches. Returns the
+/// sites, or the closest approach the densest fitting lattice would need.
+///
+/// # Errors
+/// A message saying the spheres do not fit on any such lattice.
+pub fn fcc_sites_for(
+    sim_box: &SimBox,
+    radius_nm: f64,
+    count: usize,
+) -> std::result::Result<Vec<[f64; 3]>, String> {
+    const BASIS: [[f64; 3]; 4] = [
+        [0.25, 0.25, 0.25],
+        [0.75, 0.75, 0.25],
+        [0.75, 0.25, 0.75],
+        [0.25, 0.75, 0.75],
+    ];
+    let span = [0, 1, 2].map(|k| {
+        let (lo, hi) = centre_range(sim_box, k, radius_nm);
+        (lo, (hi - lo).max(0.0))
+    });
+    // On a walled axis a site layer sits at (i + ¼)c and (i + ¾)c of the span, with the
+    // outer layers c/4 inside it; the span then holds n cells of edge c = span/(n − ½).
+    let edge = |k: usize, n: usize| {
+        if sim_box.periodic[k] {
+            span[k].1 / n as f64
+        } else {
+            span[k].1 / (n as f64 - 0.5).max(0.5)
+        }
+    };
+    let nearest = |n: [usize; 3]| {
+        let c = [0, 1, 2].map(|k| edge(k, n[k]));
+        let mut d = f64::INFINITY;
+        for k in 0..3 {
+            // A repeat along a periodic axis with one cell meets its own image.
+            if n[k] > 1 || sim_box.periodic[k] {
+                d = d.min(c[k]);
+            }
+            let j = (k + 1) % 3;
+            d = d.min(0.5 * c[k].hypot(c[j]));
+        }
+        d
+    };
+    let volume: f64 = span.iter().map(|s| s.1.max(1e-300)).product();
+    let c0 = (4.0 * volume / count.max(1) as f64).cbrt();
+    let mut n = [0, 1, 2].map(|k| ((span[k].1 / c0).floor() as usize).max(1));
+    // Add cells where the cell edge is longest until the sites suffice.
+    while 4 * n[0] * n[1] * n[2] < count {
+        let k = (0..3)
+            .max_by(|&a, &b| edge(a, n[a]).total_cmp(&edge(b, n[b])))
+            .expect("three axes");
+        n[k] += 1;
+    }
+    let d = nearest(n);
+    if d < 2.0 * radius_nm {
+        return Err(format!(
+            "{count} spheres of radius {radius_nm} nm do not fit on a face-centred lattice in this box: \
+             {} × {} × {} cells put neighbouring sites {d:.4} nm apart, less than the diameter {}",
+            n[0],
+            n[1],
+            n[2],
+            2.0 * radius_nm
+        ));
+    }
+    let c = [0, 1, 2].map(|k| edge(k, n[k]));
+    let mut sites = Vec::with_capacity(4 * n[0] * n[1] * n[2]);
+    for i in 0..n[0] {
+        for j in 0..n[1] {
+            for l in 0..n[2] {
+                for b in &BASIS {
+                    let ijk = [i, j, l];
+                    let site = [0, 1, 2].map(|k| {
+                        let shift = if sim_box.periodic[k] { 0.0 } else { -0.25 };
+                        span[k].0 + (ijk[k] as f64 + b[k] + shift) * c[k]
+                    });
+                    sites.push(site);
+                }
+            }
+        }
+    }
+    // A walled axis with n cells holds 2n layers: the last half cell is cut off.
+    sites.retain(|p| {
+        (0..3).all(|k| p[k] >= span[k].0 - 1e-9 && p[k] <= span[k].0 + span[k].1 + 1e-9)
+    });
+    if sites.len() < count {
+        return Err(format!(
+            "{count} spheres of radius {radius_nm} nm need more sites than a face-centred lattice in this box holds ({})",
+            sites.len()
+        ));
+    }
+    Ok(sites)
+}
+
 /// Reads obstacles from a CSV file with columns `x_nm, y_nm, z_nm, radius_nm`.
 ///
 /// Blank lines and lines starting with `#` are skipped; the first other line
@@ -1293,6 +1401,37 @@ mod tests {
             (var - 7.5).abs() < 5.0 * 7.5 * (2.0f64 / n as f64).sqrt(),
             "var {var}"
         );
+    }
+
+    #[test]
+    fn fcc_sites_hold_dense_spheres_without_overlap() {
+        // φ = 0.5 of 2048 spheres of radius 1 nm in a periodic cube: 8³ cells, neighbours c/√2 apart.
+        let count = 2048usize;
+        let l = (count as f64 * 4.0 / 3.0 * PI / 0.5).cbrt();
+        let b = cube(l);
+        let sites = fcc_sites_for(&b, 1.0, count).unwrap();
+        assert_eq!(sites.len(), count);
+        let spheres = Spheres {
+            centres_nm: sites,
+            radii_nm: vec![1.0; count],
+            may_overlap: false,
+        };
+        assert_eq!(find_sphere_overlap(&spheres, &b), None);
+        // Walls on z: sites keep a radius from the faces; a denser fill than fcc allows is refused.
+        let walled = SimBox {
+            edges_nm: [l, l, l],
+            periodic: [true, true, false],
+        };
+        let sites = fcc_sites_for(&walled, 1.0, 1500).unwrap();
+        assert!(sites.iter().all(|p| p[2] >= 1.0 && p[2] <= l - 1.0));
+        let spheres = Spheres {
+            radii_nm: vec![1.0; sites.len()],
+            centres_nm: sites,
+            may_overlap: false,
+        };
+        assert_eq!(find_sphere_overlap(&spheres, &walled), None);
+        let too_many = (0.75 * l.powi(3) / (4.0 / 3.0 * PI)) as usize;
+        assert!(fcc_sites_for(&b, 1.0, too_many).is_err());
     }
 
     #[test]
