@@ -85,13 +85,77 @@ pub struct Crowd {
     skin_nm: f64,
     cells: Option<CellList>,
     verlet: Option<VerletList>,
-    proposals: Vec<[f64; 3]>,
-    proposal_images: Vec<[i32; 3]>,
-    blocked: Vec<bool>,
-    /// Verdict of each move, by slot of the Verlet list's cell order.
-    decision: Vec<u8>,
+    /// Working copy of the particles in the Verlet list's cell order.
+    slots: Slots,
     /// Move counters.
     pub stats: CrowdStats,
+}
+
+/// The particles during [`Crowd::advance`], held by slot (position in the
+/// Verlet list's cell order) rather than by index: neighbours in space are
+/// then neighbours in memory, and a thread's chunk of slots is a compact
+/// region of the box whose data stay in that core's cache from pass to pass.
+#[derive(Debug, Clone, Default)]
+struct Slots {
+    /// Particle index of each slot.
+    id: Vec<u32>,
+    /// Species of each slot.
+    species: Vec<u32>,
+    radius: Vec<f64>,
+    /// Current centres (before the pending moves, if any); the image counts
+    /// apart, since the hot passes read centres only.
+    pos: Vec<[f64; 3]>,
+    img: Vec<[i32; 3]>,
+    rng: Vec<ParticleRng>,
+    /// This step's proposals: centres and image counts.
+    y: Vec<[f64; 3]>,
+    ym: Vec<[i32; 3]>,
+    /// Proposal rejected for good (an obstacle or a wall).
+    blocked: Vec<bool>,
+    /// Verdict of each proposal (parallel sweep).
+    decision: Vec<u8>,
+    /// Accepted proposals not yet copied into `pos`: the copy is made by the
+    /// next draw pass, which saves a pass over memory per step.
+    pending: bool,
+}
+
+/// One chunk of slots as the draw pass changes it.
+struct DrawChunk<'a> {
+    pos: &'a mut [[f64; 3]],
+    img: &'a mut [[i32; 3]],
+    rng: &'a mut [ParticleRng],
+    y: &'a mut [[f64; 3]],
+    ym: &'a mut [[i32; 3]],
+    blocked: &'a mut [bool],
+}
+
+impl Slots {
+    /// Where the particle at `s` is once the pending moves are made.
+    fn current(&self, s: usize) -> (&[f64; 3], &[i32; 3]) {
+        if self.pending && self.decision[s] == ACCEPTED {
+            (&self.y[s], &self.ym[s])
+        } else {
+            (&self.pos[s], &self.img[s])
+        }
+    }
+
+    /// Reorders every per-slot array: new slot s takes what old slot `from[s]` held.
+    fn permute(&mut self, from: &[u32]) {
+        fn gather<T: Clone + Send + Sync>(v: &mut Vec<T>, from: &[u32]) {
+            *v = from.par_iter().map(|&o| v[o as usize].clone()).collect();
+        }
+        debug_assert!(!self.pending, "pending moves are made before a rebuild");
+        gather(&mut self.id, from);
+        gather(&mut self.species, from);
+        gather(&mut self.radius, from);
+        gather(&mut self.pos, from);
+        gather(&mut self.img, from);
+        gather(&mut self.rng, from);
+        gather(&mut self.y, from);
+        gather(&mut self.ym, from);
+        gather(&mut self.blocked, from);
+        self.decision.resize(from.len(), REJECTED);
+    }
 }
 
 /// One Gaussian proposal from `g`, wrapped (periodic) or reflected (walls).
@@ -156,10 +220,7 @@ impl Crowd {
             skin_nm,
             cells: None,
             verlet: None,
-            proposals: vec![[0.0; 3]; n],
-            proposal_images: vec![[0; 3]; n],
-            blocked: vec![false; n],
-            decision: vec![REJECTED; n],
+            slots: Slots::default(),
             stats: CrowdStats::default(),
         }
     }
@@ -208,142 +269,224 @@ impl Crowd {
         sim_box: &SimBox,
         steps: u64,
     ) {
+        // Into cell order once per call, not once per step.
+        self.load(state, kinetics, sim_box);
         for _ in 0..steps {
             self.step(state, kinetics, sim_box);
             debug_assert!(
-                self.find_overlap(state, kinetics, sim_box).is_none(),
+                self.overlap_in_slots(sim_box).is_none(),
                 "overlap after step {}",
                 state.step
             );
         }
+        self.store(state);
+    }
+
+    /// Copies the state into the slots of the Verlet list, building one
+    /// first if there is none for this many particles.
+    fn load(&mut self, state: &State, kinetics: &[Kinetics], sim_box: &SimBox) {
+        if self.verlet.as_ref().is_some_and(|l| l.len() != state.len()) {
+            self.verlet = None;
+        }
+        if self.verlet.is_none() {
+            let list = self.build_list(&state.positions, sim_box, self.skin_nm);
+            self.verlet = Some(list);
+        }
+        let ids = self.verlet.as_ref().expect("built above").cell_order();
+        let mut species = vec![0u32; state.len()];
+        for (s, kin) in kinetics.iter().enumerate() {
+            species[kin.range.clone()].fill(s as u32);
+        }
+        let n = state.len();
+        let slots = &mut self.slots;
+        slots.id = ids.to_vec();
+        ids.par_iter()
+            .map(|&i| species[i as usize])
+            .collect_into_vec(&mut slots.species);
+        ids.par_iter()
+            .map(|&i| self.radius_nm[i as usize])
+            .collect_into_vec(&mut slots.radius);
+        ids.par_iter()
+            .map(|&i| state.positions[i as usize])
+            .collect_into_vec(&mut slots.pos);
+        ids.par_iter()
+            .map(|&i| state.images[i as usize])
+            .collect_into_vec(&mut slots.img);
+        ids.par_iter()
+            .map(|&i| state.rngs[i as usize].clone())
+            .collect_into_vec(&mut slots.rng);
+        slots.y.resize(n, [0.0; 3]);
+        slots.ym.resize(n, [0; 3]);
+        slots.blocked.resize(n, false);
+        slots.decision.resize(n, REJECTED);
+        slots.pending = false;
+    }
+
+    /// Writes the slots back to the state by particle index, pending moves made.
+    fn store(&self, state: &mut State) {
+        let list = self.verlet.as_ref().expect("list built by load");
+        let slots = &self.slots;
+        state
+            .positions
+            .par_chunks_mut(CHUNK)
+            .zip(state.images.par_chunks_mut(CHUNK))
+            .zip(state.rngs.par_chunks_mut(CHUNK))
+            .enumerate()
+            .for_each(|(c, ((p, m), g))| {
+                for o in 0..p.len() {
+                    let s = list.slot_of(c * CHUNK + o);
+                    let (at, image) = slots.current(s);
+                    p[o] = *at;
+                    m[o] = *image;
+                    g[o] = slots.rng[s].clone();
+                }
+            });
+    }
+
+    /// A Verlet list of the given skin for `positions` (by particle index).
+    fn build_list(&mut self, positions: &[[f64; 3]], sim_box: &SimBox, skin: f64) -> VerletList {
+        let reach = 2.0 * self.radius_nm.iter().cloned().fold(0.0, f64::max) + self.skin_nm;
+        let cells = self
+            .cells
+            .get_or_insert_with(|| CellList::new(sim_box, reach));
+        self.stats.rebuilds += 1;
+        VerletList::build(
+            cells,
+            positions,
+            &self.radius_nm,
+            &self.crowder,
+            sim_box,
+            skin,
+        )
     }
 
     fn step(&mut self, state: &mut State, kinetics: &[Kinetics], sim_box: &SimBox) {
         let sequential = self.sweep == Sweep::Sequential || state.len() < self.parallel_min;
-        let drift2 = draw_proposals(
-            state,
-            kinetics,
-            sim_box,
-            &self.grids,
-            (self.region.as_ref(), &self.radius_nm),
-            self.verlet.as_ref(),
-            (
-                &mut self.proposals,
-                &mut self.proposal_images,
-                &mut self.blocked,
-            ),
-            sequential,
-        );
-        self.ensure_list(state, sim_box, drift2, sequential);
-        let n = state.len();
-        self.stats.proposed += n as u64;
+        let drift2 = self.draw_proposals(kinetics, sim_box, sequential);
+        self.ensure_list(state, sim_box, drift2);
+        self.stats.proposed += state.len() as u64;
         if sequential {
-            self.stats.accepted += self.sweep_in_order(state, sim_box);
+            self.stats.accepted += self.sweep_in_order(sim_box);
         } else {
-            let dependent = self.classify(state, sim_box);
+            let (dependent, accepted) = self.classify(sim_box);
             self.stats.dependent += dependent.len() as u64;
-            self.resolve_in_order(state, sim_box, dependent);
-            let list = self.verlet.as_ref().expect("list built before the sweep");
-            let (decision, proposals, proposal_images) =
-                (&self.decision, &self.proposals, &self.proposal_images);
-            self.stats.accepted += state
-                .positions
-                .par_chunks_mut(CHUNK)
-                .zip(state.images.par_chunks_mut(CHUNK))
-                .enumerate()
-                .map(|(c, (p, im))| {
-                    let base = c * CHUNK;
-                    let mut accepted = 0;
-                    for (o, (p, im)) in p.iter_mut().zip(im.iter_mut()).enumerate() {
-                        if decision[list.slot_of(base + o)] == ACCEPTED {
-                            *p = proposals[base + o];
-                            *im = proposal_images[base + o];
-                            accepted += 1;
-                        }
-                    }
-                    accepted
-                })
-                .sum::<u64>();
+            self.stats.accepted += accepted + self.resolve_in_order(sim_box, &dependent);
+            // The accepted moves are made by the next draw pass (or by `store`).
+            self.slots.pending = true;
         }
         state.step += 1;
     }
 
-    /// The sequential sweep: each particle in index order is tested against
-    /// the positions as they stand (lower indices already moved) and moved at
-    /// once if nothing blocks it. Returns the number of accepted moves.
-    fn sweep_in_order(&mut self, state: &mut State, sim_box: &SimBox) -> u64 {
+    /// Makes the pending moves, then every particle draws its proposal from
+    /// its own stream; obstacle and wall hits are final rejections. Returns
+    /// the largest squared drift of an unblocked proposal from the Verlet
+    /// list's reference.
+    fn draw_proposals(&mut self, kinetics: &[Kinetics], sim_box: &SimBox, sequential: bool) -> f64 {
         let wrap = MinImage::new(sim_box);
-        let list = self.verlet.as_ref().expect("list built before the sweep");
-        let mut accepted = 0;
-        for i in 0..state.len() {
-            if self.blocked[i] {
-                continue;
+        let list = self.verlet.as_ref().expect("list built by load");
+        let (grids, region) = (&self.grids, self.region.as_ref());
+        let slots = &mut self.slots;
+        let pending = std::mem::replace(&mut slots.pending, false);
+        let (species, radius, decision) = (&slots.species, &slots.radius, &slots.decision);
+        // One chunk of slots: moves, proposals, obstacle and wall tests, largest drift.
+        let chunk = |(c, part): (usize, DrawChunk)| -> f64 {
+            let base = c * CHUNK;
+            let mut d2max: f64 = 0.0;
+            for o in 0..part.pos.len() {
+                let s = base + o;
+                if pending && decision[s] == ACCEPTED {
+                    part.pos[o] = part.y[o];
+                    part.img[o] = part.ym[o];
+                }
+                let sp = species[s] as usize;
+                let (p, m) = propose(
+                    &part.pos[o],
+                    &part.img[o],
+                    &mut part.rng[o],
+                    &kinetics[sp],
+                    sim_box,
+                );
+                part.y[o] = p;
+                part.ym[o] = m;
+                let blocked = grids
+                    .get(sp)
+                    .and_then(|g| g.as_ref())
+                    .is_some_and(|grid| grid.blocked(&p))
+                    || region.is_some_and(|shape| !shape.allows(&p, radius[s]));
+                part.blocked[o] = blocked;
+                if !blocked {
+                    d2max = d2max.max(list.drift2_at(&wrap, s, &p));
+                }
             }
-            let y = self.proposals[i];
-            let ri = self.radius_nm[i];
-            let positions = &state.positions;
-            let clash = list.neighbours(i).iter().any(|&j| {
-                let cut = ri + self.radius_nm[j as usize];
-                wrap.distance2(&y, &positions[j as usize]) < cut * cut
-            });
-            if !clash {
-                state.positions[i] = y;
-                state.images[i] = self.proposal_images[i];
-                accepted += 1;
-            }
+            d2max
+        };
+        let parts: Vec<DrawChunk> = slots
+            .pos
+            .chunks_mut(CHUNK)
+            .zip(slots.img.chunks_mut(CHUNK))
+            .zip(slots.rng.chunks_mut(CHUNK))
+            .zip(slots.y.chunks_mut(CHUNK))
+            .zip(slots.ym.chunks_mut(CHUNK))
+            .zip(slots.blocked.chunks_mut(CHUNK))
+            .map(|(((((pos, img), rng), y), ym), blocked)| DrawChunk {
+                pos,
+                img,
+                rng,
+                y,
+                ym,
+                blocked,
+            })
+            .collect();
+        if sequential {
+            parts.into_iter().enumerate().map(chunk).fold(0.0, f64::max)
+        } else {
+            parts
+                .into_par_iter()
+                .enumerate()
+                .map(chunk)
+                .reduce(|| 0.0, f64::max)
         }
-        accepted
     }
 
     /// Rebuilds the Verlet list when a proposal has drifted more than half
     /// the skin (`drift2` is the largest squared drift) from where its
-    /// particle was at the last build.
-    fn ensure_list(&mut self, state: &State, sim_box: &SimBox, drift2: f64, sequential: bool) {
+    /// particle was at the last build, and puts the slots in its new order.
+    fn ensure_list(&mut self, state: &mut State, sim_box: &SimBox, drift2: f64) {
         let wrap = MinImage::new(sim_box);
-        if let Some(list) = &self.verlet {
-            if drift2 <= list.max_drift2() {
-                return;
-            }
+        let list = self.verlet.as_ref().expect("list built by load");
+        if drift2 <= list.max_drift2() {
+            return;
         }
+        // The build reads positions by index; the state's array is scratch until `store`.
+        let pos = &self.slots.pos;
+        state
+            .positions
+            .par_iter_mut()
+            .enumerate()
+            .for_each(|(i, p)| *p = pos[list.slot_of(i)]);
         let mut skin = self.skin_nm;
-        let reach = 2.0 * self.radius_nm.iter().cloned().fold(0.0, f64::max) + skin;
-        let cells = self
-            .cells
-            .get_or_insert_with(|| CellList::new(sim_box, reach));
         loop {
-            let list = VerletList::build(
-                cells,
-                &state.positions,
-                &self.radius_nm,
-                &self.crowder,
-                sim_box,
-                skin,
-            );
-            self.stats.rebuilds += 1;
-            let drift = |(i, (y, b)): (usize, (&[f64; 3], &bool))| {
-                if *b {
-                    0.0
-                } else {
-                    list.drift2(&wrap, i, y)
-                }
-            };
-            let d2 = if sequential {
-                self.proposals
-                    .iter()
-                    .zip(&self.blocked)
-                    .enumerate()
-                    .map(drift)
-                    .fold(0.0, f64::max)
-            } else {
-                self.proposals
-                    .par_iter()
-                    .zip(self.blocked.par_iter())
-                    .enumerate()
-                    .map(drift)
-                    .reduce(|| 0.0, f64::max)
-            };
+            let fresh = self.build_list(&state.positions, sim_box, skin);
+            let old = self.verlet.as_ref().expect("list built by load");
+            let from: Vec<u32> = fresh
+                .cell_order()
+                .par_iter()
+                .map(|&i| old.slot_of(i as usize) as u32)
+                .collect();
+            self.slots.permute(&from);
+            let list = &*self.verlet.insert(fresh);
+            let slots = &self.slots;
+            let d2 = (0..slots.id.len())
+                .into_par_iter()
+                .map(|s| {
+                    if slots.blocked[s] {
+                        0.0
+                    } else {
+                        list.drift2_at(&wrap, s, &slots.y[s])
+                    }
+                })
+                .reduce(|| 0.0, f64::max);
             if d2 <= list.max_drift2() {
-                self.verlet = Some(list);
                 return;
             }
             // A proposal longer than half the skin (a far Gaussian tail): a wider
@@ -352,50 +495,77 @@ impl Crowd {
         }
     }
 
+    /// The sequential sweep: each particle in index order is tested against
+    /// the positions as they stand (lower indices already moved) and moved at
+    /// once if nothing blocks it. Returns the number of accepted moves.
+    fn sweep_in_order(&mut self, sim_box: &SimBox) -> u64 {
+        let wrap = MinImage::new(sim_box);
+        let list = self.verlet.as_ref().expect("list built before the sweep");
+        let slots = &mut self.slots;
+        let mut accepted = 0;
+        for i in 0..slots.id.len() {
+            let s = list.slot_of(i);
+            if slots.blocked[s] {
+                continue;
+            }
+            let (y, ri) = (slots.y[s], slots.radius[s]);
+            let clash = list.neighbour_slots_at(s).iter().any(|&t| {
+                let t = t as usize;
+                let cut = ri + slots.radius[t];
+                wrap.distance2(&y, &slots.pos[t]) < cut * cut
+            });
+            if !clash {
+                slots.pos[s] = y;
+                slots.img[s] = slots.ym[s];
+                accepted += 1;
+            }
+        }
+        accepted
+    }
+
     /// Parallel pass: accepted, rejected, or dependent on lower indices.
-    fn classify(&mut self, state: &State, sim_box: &SimBox) -> Vec<usize> {
+    /// Returns the dependent moves as (index, slot) in index order, and the
+    /// number accepted.
+    fn classify(&mut self, sim_box: &SimBox) -> (Vec<(u32, u32)>, u64) {
         let wrap = MinImage::new(sim_box);
         let list = self.verlet.as_ref().expect("list built before classify");
-        let (proposals, blocked, radius) = (&self.proposals, &self.blocked, &self.radius_nm);
-        let old = &state.positions;
-        self.decision.resize(state.len(), REJECTED);
-        // Visited in cell order, so that neighbouring particles' data stay in cache;
-        // verdicts are kept by cell slot.
-        let order = list.cell_order();
-        let chunks: Vec<Vec<usize>> = self
+        let slots = &mut self.slots;
+        let (id, radius, pos, y, blocked) = (
+            &slots.id,
+            &slots.radius,
+            &slots.pos,
+            &slots.y,
+            &slots.blocked,
+        );
+        let chunks: Vec<(Vec<(u32, u32)>, u64)> = slots
             .decision
             .par_chunks_mut(CHUNK)
             .enumerate()
             .map(|(c, out)| {
                 let mut dependent = Vec::new();
+                let mut accepted = 0;
                 for (o, d) in out.iter_mut().enumerate() {
-                    let slot = c * CHUNK + o;
-                    let i = order[slot] as usize;
-                    if blocked[i] {
+                    let s = c * CHUNK + o;
+                    if blocked[s] {
                         *d = REJECTED;
                         continue;
                     }
-                    let y = &proposals[i];
+                    let (i, ys, ri) = (id[s], &y[s], radius[s]);
                     let mut verdict = ACCEPTED;
-                    for &j in list.neighbours_at(slot) {
-                        let j = j as usize;
-                        let cut = radius[i] + radius[j];
-                        let hits_old = wrap.distance2(y, &old[j]) < cut * cut;
-                        if j > i {
-                            if hits_old {
-                                verdict = REJECTED;
-                                break;
-                            }
-                        } else if blocked[j] {
-                            // j certainly stays at its old position.
+                    for &t in list.neighbour_slots_at(s) {
+                        let t = t as usize;
+                        let cut = ri + radius[t];
+                        let hits_old = wrap.distance2(ys, &pos[t]) < cut * cut;
+                        if id[t] > i || blocked[t] {
+                            // t is still (higher index) or for good (blocked) at its old position.
                             if hits_old {
                                 verdict = REJECTED;
                                 break;
                             }
                         } else {
-                            let hits_new = wrap.distance2(y, &proposals[j]) < cut * cut;
+                            let hits_new = wrap.distance2(ys, &y[t]) < cut * cut;
                             if hits_old && hits_new {
-                                // Blocked whether j moves or not.
+                                // Blocked whether t moves or not.
                                 verdict = REJECTED;
                                 break;
                             }
@@ -404,49 +574,76 @@ impl Crowd {
                             }
                         }
                     }
-                    if verdict == DEPENDENT {
-                        dependent.push(i);
+                    match verdict {
+                        ACCEPTED => accepted += 1,
+                        DEPENDENT => dependent.push((i, s as u32)),
+                        _ => {}
                     }
                     *d = verdict;
                 }
-                dependent
+                (dependent, accepted)
             })
             .collect();
-        let mut dependent: Vec<usize> = chunks.into_iter().flatten().collect();
+        let accepted = chunks.iter().map(|c| c.1).sum();
+        let mut dependent: Vec<(u32, u32)> = chunks.into_iter().flat_map(|c| c.0).collect();
         // Resolved in index order, the order of the sequential sweep.
         dependent.sort_unstable();
-        dependent
+        (dependent, accepted)
     }
 
-    /// Decides `order` (increasing indices) one by one against the current
-    /// positions: lower indices as already decided, higher ones old.
-    fn resolve_in_order(
-        &mut self,
-        state: &State,
-        sim_box: &SimBox,
-        order: impl IntoIterator<Item = usize>,
-    ) {
+    /// Decides the dependent moves `order` ((index, slot) by increasing
+    /// index) one by one against the current positions: lower indices as
+    /// already decided, higher ones old. Returns the number accepted.
+    fn resolve_in_order(&mut self, sim_box: &SimBox, order: &[(u32, u32)]) -> u64 {
         let wrap = MinImage::new(sim_box);
         let list = self.verlet.as_ref().expect("list built before resolve");
-        for i in order {
-            let slot = list.slot_of(i);
-            if self.blocked[i] {
-                self.decision[slot] = REJECTED;
-                continue;
-            }
-            let y = &self.proposals[i];
-            let clash = list.neighbours_at(slot).iter().any(|&j| {
-                let j = j as usize;
-                let at = if j < i && self.decision[list.slot_of(j)] == ACCEPTED {
-                    &self.proposals[j]
+        let slots = &mut self.slots;
+        let mut accepted = 0;
+        for &(i, s) in order {
+            let s = s as usize;
+            debug_assert!(!slots.blocked[s], "blocked moves are never dependent");
+            let (y, ri) = (&slots.y[s], slots.radius[s]);
+            let clash = list.neighbour_slots_at(s).iter().any(|&t| {
+                let t = t as usize;
+                let at = if slots.id[t] < i && slots.decision[t] == ACCEPTED {
+                    &slots.y[t]
                 } else {
-                    &state.positions[j]
+                    &slots.pos[t]
                 };
-                let cut = self.radius_nm[i] + self.radius_nm[j];
+                let cut = ri + slots.radius[t];
                 wrap.distance2(y, at) < cut * cut
             });
-            self.decision[slot] = if clash { REJECTED } else { ACCEPTED };
+            slots.decision[s] = if clash { REJECTED } else { ACCEPTED };
+            accepted += u64::from(!clash);
         }
+        accepted
+    }
+
+    /// The first overlapping interacting pair, or a particle inside an
+    /// obstacle (reported as (i, i)), in the slots with the pending moves
+    /// made (the debug check after every step).
+    fn overlap_in_slots(&self, sim_box: &SimBox) -> Option<(usize, usize)> {
+        let wrap = MinImage::new(sim_box);
+        let list = self.verlet.as_ref()?;
+        let slots = &self.slots;
+        (0..slots.id.len()).find_map(|s| {
+            let (a, i) = (slots.current(s).0, slots.id[s] as usize);
+            let grid = self.grids.get(slots.species[s] as usize);
+            if grid.and_then(|g| g.as_ref()).is_some_and(|g| g.blocked(a)) {
+                return Some((i, i));
+            }
+            list.neighbour_slots_at(s)
+                .iter()
+                .map(|&t| t as usize)
+                .find(|&t| {
+                    let cut = slots.radius[s] + slots.radius[t];
+                    wrap.distance2(a, slots.current(t).0) < cut * cut
+                })
+                .map(|t| {
+                    let j = slots.id[t] as usize;
+                    (i.min(j), i.max(j))
+                })
+        })
     }
 
     /// The first overlapping interacting pair, or a particle inside an
@@ -504,76 +701,6 @@ fn choose_skin_nm(contact_nm: f64, step_rms_nm: f64, n: usize) -> f64 {
         }
     }
     best.1
-}
-
-/// Every particle draws its proposal from its own stream; obstacle hits are
-/// final rejections. Returns the largest squared drift of an unblocked
-/// proposal from the Verlet list's reference (0 without a list).
-fn draw_proposals(
-    state: &mut State,
-    kinetics: &[Kinetics],
-    sim_box: &SimBox,
-    grids: &[Option<ObstacleGrid>],
-    (region, radius): (Option<&Shape>, &[f64]),
-    list: Option<&VerletList>,
-    (proposals, proposal_images, blocked): (&mut [[f64; 3]], &mut [[i32; 3]], &mut [bool]),
-    sequential: bool,
-) -> f64 {
-    let mut max_drift2: f64 = 0.0;
-    let wrap = MinImage::new(sim_box);
-    for (s, kin) in kinetics.iter().enumerate() {
-        let r = kin.range.clone();
-        let start = r.start;
-        let grid = grids.get(s).and_then(|g| g.as_ref());
-        let pos = &state.positions[r.clone()];
-        let img = &state.images[r.clone()];
-        // One chunk: proposals, obstacle test, largest drift.
-        let chunk = |c: usize,
-                     g: &mut [ParticleRng],
-                     y: &mut [[f64; 3]],
-                     m: &mut [[i32; 3]],
-                     b: &mut [bool]|
-         -> f64 {
-            let base = c * CHUNK;
-            let mut d2max: f64 = 0.0;
-            for o in 0..g.len() {
-                let (yy, mm) = propose(&pos[base + o], &img[base + o], &mut g[o], kin, sim_box);
-                y[o] = yy;
-                m[o] = mm;
-                b[o] = grid.is_some_and(|grid| grid.blocked(&yy))
-                    || region.is_some_and(|shape| !shape.allows(&yy, radius[start + base + o]));
-                if let (false, Some(list)) = (b[o], list) {
-                    d2max = d2max.max(list.drift2(&wrap, start + base + o, &yy));
-                }
-            }
-            d2max
-        };
-        let rng = &mut state.rngs[r.clone()];
-        let (y, m, b) = (
-            &mut proposals[r.clone()],
-            &mut proposal_images[r.clone()],
-            &mut blocked[r],
-        );
-        let d2 = if sequential {
-            rng.chunks_mut(CHUNK)
-                .zip(y.chunks_mut(CHUNK))
-                .zip(m.chunks_mut(CHUNK))
-                .zip(b.chunks_mut(CHUNK))
-                .enumerate()
-                .map(|(c, (((g, y), m), b))| chunk(c, g, y, m, b))
-                .fold(0.0, f64::max)
-        } else {
-            rng.par_chunks_mut(CHUNK)
-                .zip(y.par_chunks_mut(CHUNK))
-                .zip(m.par_chunks_mut(CHUNK))
-                .zip(b.par_chunks_mut(CHUNK))
-                .enumerate()
-                .map(|(c, (((g, y), m), b))| chunk(c, g, y, m, b))
-                .reduce(|| 0.0, f64::max)
-        };
-        max_drift2 = max_drift2.max(d2);
-    }
-    max_drift2
 }
 
 /// The walls a crowd must test itself: a cylindrical pore. Plane walls
@@ -684,7 +811,9 @@ pub fn place_crowd(
                 let c = [0, 1, 2]
                     .map(|k| kin.lower_nm[k] + g.uniform() * (kin.upper_nm[k] - kin.lower_nm[k]));
                 if obstacle_grid.is_some_and(|og| og.blocked(&c))
-                    || region.as_ref().is_some_and(|shape| !shape.allows(&c, radius[i]))
+                    || region
+                        .as_ref()
+                        .is_some_and(|shape| !shape.allows(&c, radius[i]))
                 {
                     continue;
                 }

@@ -792,8 +792,11 @@ impl CellList {
 pub struct VerletList {
     start: Vec<u32>,
     items: Vec<u32>,
+    /// The same neighbours as `items`, given by slot (position in cell order).
+    slot_items: Vec<u32>,
     slot_of: Vec<u32>,
     members: Vec<u32>,
+    /// Positions at the build, in cell order.
     reference: Vec<[f64; 3]>,
     skin_nm: f64,
 }
@@ -842,48 +845,61 @@ impl VerletList {
         }
         // Copies in cell order, so the candidate scan reads memory in sequence,
         // and particles visited in cell order, so neighbouring scans share the cache.
-        let sorted: Vec<[f64; 3]> = members.iter().map(|&j| positions[j as usize]).collect();
-        let sorted_reach: Vec<f64> = members.iter().map(|&j| radius_nm[j as usize]).collect();
-        let sorted_crowder: Vec<bool> = members.iter().map(|&j| crowder[j as usize]).collect();
+        let sorted: Vec<[f64; 3]> = members.par_iter().map(|&j| positions[j as usize]).collect();
+        let sorted_reach: Vec<f64> = members.par_iter().map(|&j| radius_nm[j as usize]).collect();
+        let sorted_crowder: Vec<bool> = members.par_iter().map(|&j| crowder[j as usize]).collect();
         let wrap = MinImage::new(sim_box);
-
-        let chunks: Vec<(Vec<u32>, Vec<u32>)> = members
+        let chunks: Vec<(Vec<u32>, Vec<u32>, Vec<u32>)> = members
             .par_chunks(VERLET_CHUNK)
             .enumerate()
             .map(|(chunk, ids)| {
                 let mut counts = Vec::with_capacity(ids.len());
-                let mut items = Vec::with_capacity(ids.len() * 8);
+                let mut slots = Vec::with_capacity(ids.len() * 8);
+                let mut len = 0;
                 for (o, &i) in ids.iter().enumerate() {
                     let slot = chunk * VERLET_CHUNK + o;
                     let p = sorted[slot];
-                    let before = items.len();
+                    let before = len;
                     let (ri, ci) = (sorted_reach[slot] + skin_nm, sorted_crowder[slot]);
                     for run in table.rows_of(cell_of[i as usize] as usize) {
-                        for t in cell_start[run[0] as usize] as usize
-                            ..cell_start[run[1] as usize + 1] as usize
-                        {
+                        let (a, b) = (
+                            cell_start[run[0] as usize] as usize,
+                            cell_start[run[1] as usize + 1] as usize,
+                        );
+                        if slots.len() < len + (b - a) {
+                            slots.resize(len + (b - a) + 64, 0);
+                        }
+                        // Every candidate is written and only hits are kept: no
+                        // unpredictable branch per candidate.
+                        for t in a..b {
                             let d2 = wrap.distance2(&p, &sorted[t]);
                             let cut = ri + sorted_reach[t];
-                            if d2 < cut * cut && (ci || sorted_crowder[t]) && t != slot {
-                                items.push(members[t]);
-                            }
+                            slots[len] = t as u32;
+                            len += usize::from(
+                                (d2 < cut * cut) & (ci | sorted_crowder[t]) & (t != slot),
+                            );
                         }
                     }
-                    counts.push((items.len() - before) as u32);
+                    counts.push((len - before) as u32);
                 }
-                (counts, items)
+                slots.truncate(len);
+                let items = slots.iter().map(|&t| members[t as usize]).collect();
+                (counts, items, slots)
             })
             .collect();
         // Lists come out in cell order; `start` is indexed through `slot_of`.
         let mut start = Vec::with_capacity(positions.len() + 1);
         start.push(0u32);
-        let mut items = Vec::new();
-        for (counts, chunk_items) in chunks {
+        let total: usize = chunks.iter().map(|c| c.1.len()).sum();
+        let mut items = Vec::with_capacity(total);
+        let mut slot_items = Vec::with_capacity(total);
+        for (counts, chunk_items, chunk_slots) in chunks {
             for c in counts {
                 let last = *start.last().expect("start is never empty");
                 start.push(last + c);
             }
             items.extend(chunk_items);
+            slot_items.extend(chunk_slots);
         }
         let mut slot_of = vec![0u32; positions.len()];
         for (slot, &i) in members.iter().enumerate() {
@@ -892,9 +908,10 @@ impl VerletList {
         Self {
             start,
             items,
+            slot_items,
             slot_of,
             members,
-            reference: positions.to_vec(),
+            reference: sorted,
             skin_nm,
         }
     }
@@ -918,6 +935,14 @@ impl VerletList {
         &self.items[self.start[slot] as usize..self.start[slot + 1] as usize]
     }
 
+    /// Neighbours of the particle at position `slot` of
+    /// [`VerletList::cell_order`], given by their slots: callers that keep
+    /// particle data in cell order read nearby memory.
+    #[inline(always)]
+    pub fn neighbour_slots_at(&self, slot: usize) -> &[u32] {
+        &self.slot_items[self.start[slot] as usize..self.start[slot + 1] as usize]
+    }
+
     /// Position of particle `i` in [`VerletList::cell_order`].
     #[inline(always)]
     pub fn slot_of(&self, i: usize) -> usize {
@@ -932,7 +957,14 @@ impl VerletList {
     /// Squared minimum-image distance of `p` from particle i's position at the build.
     #[inline(always)]
     pub fn drift2(&self, wrap: &MinImage, i: usize, p: &[f64; 3]) -> f64 {
-        wrap.distance2(&self.reference[i], p)
+        self.drift2_at(wrap, self.slot_of(i), p)
+    }
+
+    /// Squared minimum-image distance of `p` from the position at the build
+    /// of the particle at `slot` of [`VerletList::cell_order`].
+    #[inline(always)]
+    pub fn drift2_at(&self, wrap: &MinImage, slot: usize, p: &[f64; 3]) -> f64 {
+        wrap.distance2(&self.reference[slot], p)
     }
 
     /// True while every point with drift below skin/2 is safe: the largest
