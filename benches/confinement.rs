@@ -52,16 +52,26 @@ fn cpu_ns() -> u64 {
     ticks * 10_000_000
 }
 
-/// Best of `repeats` timings of `STEPS` steps on `threads` threads, in
-/// particle-steps/s, [without, with] corrections; the two are timed in
-/// turn so that load from elsewhere falls on both alike.
-/// Returns [[wall, cpu] without, [wall, cpu] with], each the best over repeats.
-fn throughput((edges, geometry): (&str, &str), threads: usize, repeats: usize) -> [[f64; 2]; 2] {
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(threads)
-        .build()
-        .expect("thread pool");
-    let runs: Vec<_> = [false, true]
+/// Best of `repeats` timings of `STEPS` steps, in particle-steps/s, for
+/// every thread count of `threads` × [without, with] corrections; all
+/// variants are timed in turn, round after round, so that load from
+/// elsewhere falls on each alike. Returns, per thread count,
+/// [[wall, cpu] without, [wall, cpu] with].
+fn throughput(
+    (edges, geometry): (&str, &str),
+    threads: &[usize],
+    repeats: usize,
+) -> Vec<[[f64; 2]; 2]> {
+    let pools: Vec<rayon::ThreadPool> = threads
+        .iter()
+        .map(|&n| {
+            rayon::ThreadPoolBuilder::new()
+                .num_threads(n)
+                .build()
+                .expect("thread pool")
+        })
+        .collect();
+    let mut runs: Vec<_> = [false, true]
         .iter()
         .map(|&hydro| {
             let s = scenario(edges, geometry, hydro);
@@ -70,26 +80,27 @@ fn throughput((edges, geometry): (&str, &str), threads: usize, repeats: usize) -
             (c, state)
         })
         .collect();
-    let mut runs = runs;
-    let mut best = [[f64::INFINITY; 2]; 2];
+    let mut best = vec![[[f64::INFINITY; 2]; 2]; threads.len()];
     for _ in 0..repeats {
-        for (k, (c, state)) in runs.iter_mut().enumerate() {
-            let (t, cpu) = (Instant::now(), cpu_ns());
-            pool.install(|| c.advance(state, STEPS));
-            best[k][0] = best[k][0].min(t.elapsed().as_secs_f64());
-            best[k][1] = best[k][1].min((cpu_ns() - cpu) as f64 * 1e-9);
+        for (p, pool) in pools.iter().enumerate() {
+            for (k, (c, state)) in runs.iter_mut().enumerate() {
+                let (t, cpu) = (Instant::now(), cpu_ns());
+                pool.install(|| c.advance(state, STEPS));
+                best[p][k][0] = best[p][k][0].min(t.elapsed().as_secs_f64());
+                best[p][k][1] = best[p][k][1].min((cpu_ns() - cpu) as f64 * 1e-9);
+            }
         }
     }
     std::hint::black_box(&runs);
-    best.map(|b| b.map(|t| COUNT as f64 * STEPS as f64 / t))
+    best.iter()
+        .map(|b| b.map(|v| v.map(|t| COUNT as f64 * STEPS as f64 / t)))
+        .collect()
 }
 
 fn main() {
     println!("slit, gap 20 nm, radius 2 nm, {COUNT} particles × {STEPS} steps (best of 5)");
-    let mut rows = Vec::new();
-    for threads in [1, 2] {
-        let [plain, hydro] = throughput(SLIT, threads, 5);
-        rows.push((plain, hydro));
+    let rows = throughput(SLIT, &[1, 2], 5);
+    for (threads, [plain, hydro]) in [1, 2].into_iter().zip(rows.iter().copied()) {
         println!(
             "  {threads} thread{}: without corrections {:6.1} M particle-steps/s ({:6.1} M per CPU-s), with {:6.1} M/s ({:6.1} M per CPU-s) \
              → corrections cost {:.2}× wall, {:.2}× CPU (target ≤ 2×)",
@@ -102,7 +113,7 @@ fn main() {
             plain[1] / hydro[1]
         );
     }
-    let ((p1, h1), (p2, h2)) = (rows[0], rows[1]);
+    let ([p1, h1], [p2, h2]) = (rows[0], rows[1]);
     println!(
         "  speed-up on two threads (wall clock): {:.2}× without, {:.2}× with corrections",
         p2[0] / p1[0],
@@ -113,7 +124,7 @@ fn main() {
         ("cylindrical pore r = 10 nm", PORE),
         ("membrane, 2 × 2 pores r = 10 nm", MEMBRANE),
     ] {
-        let [plain, hydro] = throughput(g, 2, 3);
+        let [plain, hydro] = throughput(g, &[2], 3)[0];
         println!(
             "  {name}, 2 threads: {:6.1} M/s without, {:6.1} M/s with corrections ({:.2}× wall, {:.2}× CPU)",
             plain[0] / 1e6,
