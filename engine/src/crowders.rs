@@ -22,7 +22,7 @@
 //! an overlap, and since every draw comes from a per-particle stream the
 //! result does not depend on the number of threads.
 
-use crate::config::{Scenario, SimBox};
+use crate::config::{Scenario, SimBox, LATTICE_START_FRACTION};
 use crate::error::{EngineError, Result};
 use crate::geometry::Shape;
 use crate::integrate::{reflect, Kinetics, State};
@@ -45,6 +45,9 @@ pub const PARALLEL_MIN_PARTICLES: usize = 4096;
 pub const PLACEMENT_ATTEMPTS_PER_PARTICLE: u64 = 1000;
 /// Placement attempts any placement may use.
 pub const PLACEMENT_ATTEMPT_FLOOR: u64 = 2_000_000;
+
+/// Stream index (with the run seed) that picks the lattice sites of a dense start.
+pub const CROWD_LATTICE_STREAM: u64 = u64::MAX - 3;
 
 const REJECTED: u8 = 0;
 const ACCEPTED: u8 = 1;
@@ -741,7 +744,9 @@ pub fn find_overlap_brute_force(
 /// Places interacting particles one by one, largest radius first and in
 /// index order among equals (random sequential addition), each drawing
 /// uniform trial centres from its own stream until it overlaps no obstacle
-/// and no earlier particle it interacts with.
+/// and no earlier particle it interacts with. Crowds denser than
+/// [`LATTICE_START_FRACTION`] put their crowders on randomly chosen sites of
+/// a face-centred lattice instead (the others are then added at random).
 ///
 /// # Errors
 /// [`EngineError::Placement`] when the attempt budget runs out, saying which
@@ -785,7 +790,60 @@ pub fn place_crowd(
         .collect();
     order.sort_by(|a, b| radius[b.1].total_cmp(&radius[a.1]).then(a.1.cmp(&b.1)));
     let mut placed = vec![0usize; kinetics.len()];
+    // Dense crowds start on a lattice, which the dynamics melt: random addition jams near φ ≈ 0.38.
+    let on_lattice = scenario.crowder_volume_fraction() > LATTICE_START_FRACTION;
+    if on_lattice {
+        let members: Vec<(usize, usize)> =
+            order.iter().copied().filter(|&(_, i)| crowder[i]).collect();
+        let r_c = members.iter().map(|&(_, i)| radius[i]).fold(0.0, f64::max);
+        // A pore keeps part of the box's sites: ask for enough that the pore holds them all.
+        let share = region
+            .as_ref()
+            .map_or(1.0, |shape| shape.open_fraction(r_c, &sim_box.edges_nm));
+        let wanted = (members.len() as f64 / share.max(1e-9)).ceil() as usize;
+        let fail = |reason: String| {
+            EngineError::Placement {
+            file: scenario.source.clone(),
+            reason: format!(
+                "crowders fill φ = {:.4}, above {LATTICE_START_FRACTION}, so they start on a face-centred lattice, but {reason}; \
+                 lower the counts or enlarge the box",
+                scenario.crowder_volume_fraction()
+            ),
+        }
+        };
+        let mut sites = crate::obstacles::fcc_sites_for(sim_box, r_c, wanted).map_err(fail)?;
+        sites.retain(|p| {
+            region.as_ref().is_none_or(|shape| shape.allows(p, r_c))
+                && members.iter().all(|&(s, _)| {
+                    grids
+                        .get(s)
+                        .and_then(|g| g.as_ref())
+                        .is_none_or(|g| !g.blocked(p))
+                })
+        });
+        if sites.len() < members.len() {
+            return Err(fail(format!(
+                "only {} lattice sites are open to them ({} needed)",
+                sites.len(),
+                members.len()
+            )));
+        }
+        // Which sites are taken: a partial shuffle from a stream no particle uses.
+        let mut g = ParticleRng::for_particle(scenario.seed, CROWD_LATTICE_STREAM);
+        for (k, &(s, i)) in members.iter().enumerate() {
+            let left = sites.len() - k;
+            let pick = k + ((g.uniform() * left as f64) as usize).min(left - 1);
+            sites.swap(k, pick);
+            positions[i] = sites[k];
+            grid.insert(i as u32, &sites[k]);
+            crowd_volume += 4.0 / 3.0 * std::f64::consts::PI * radius[i].powi(3);
+            placed[s] += 1;
+        }
+    }
     for (s, i) in order {
+        if on_lattice && crowder[i] {
+            continue;
+        }
         let kin = &kinetics[s];
         let obstacle_grid = grids.get(s).and_then(|g| g.as_ref());
         {
