@@ -370,7 +370,8 @@ impl Shape {
             } => {
                 let (dx, dy) = (p[0] - axis_nm[0], p[1] - axis_nm[1]);
                 let open = r - radius_nm;
-                dx * dx + dy * dy <= open * open
+                // A sphere wider than the pore fits nowhere (the square alone would hide that).
+                open >= 0.0 && dx * dx + dy * dy <= open * open
             }
             Shape::Membrane(m) => m.nearest_wall(p).distance_nm >= radius_nm,
         }

@@ -349,7 +349,7 @@ fn obstacles_that_cannot_fit_the_pore_are_refused() {
     // A CSV sphere crossing the pore wall: the file, the line and the pore are named.
     std::fs::write(
         dir.path().join("beads.csv"),
-        "x_nm,y_nm,z_nm,radius_nm\n10.0,10.0,5.0,2.0\n18.0,10.0,20.0,2.0\n",
+        "x_nm,y_nm,z_nm,radius_nm\n10.0,10.0,5.0,2.0\n16.0,16.0,20.0,2.0\n",
     )
     .unwrap();
     let err = build(&base(
