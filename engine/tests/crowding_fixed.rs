@@ -490,8 +490,8 @@ fn bad_obstacle_input_gives_clear_errors() {
             with("[[species]]\nname = \"huge\"\nradius_nm = 0.8\ncount = 10", "[obstacles]\nplacement = \"fcc\"\ncount = 4000\nradius_nm = 1.0").replace("periodic = [true, true, false]", "periodic = [true, true, true]"),
             vec!["huge", "no open starting point"],
         ),
-        // Crowders above what sequential placement can reach.
-        (with("[[species]]\nname = \"c\"\nrole = \"crowder\"\nradius_nm = 1.0\ncount = 5500", ""), vec!["species 'c'", "ran out of room", "φ = 0.3"]),
+        // Crowders denser than even a lattice start holds (φ = 0.85 > 0.74).
+        (with("[[species]]\nname = \"c\"\nrole = \"crowder\"\nradius_nm = 1.0\ncount = 5500", ""), vec!["bad.toml", "φ = 0.8533", "face-centred lattice", "do not fit"]),
         (with("[[species]]\nname = \"c\"\nrole = \"bouncer\"\nradius_nm = 1.0\ncount = 5", ""), vec!["species[0].role", "bouncer", "crowder"]),
     ];
     for (text, needles) in &cases {
