@@ -213,7 +213,11 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
                 .map(|f| format!("steric partition Φ = {f:.4}, "))
                 .unwrap_or_default();
             // With obstacles the species table above gives the open fraction of walls and obstacles together.
-            let walls = if obstacles.is_empty() { "" } else { " (walls alone)" };
+            let walls = if obstacles.is_empty() {
+                ""
+            } else {
+                " (walls alone)"
+            };
             println!(
                 "  species '{}': {lambda}{phi}open to the centre {:.4} of the box{walls}",
                 p.species, p.open_fraction
