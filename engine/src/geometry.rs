@@ -1019,95 +1019,26 @@ pub fn read_pores_csv(
     lateral_nm: [f64; 2],
     species: &[Species],
 ) -> Result<Vec<Pore>> {
-    let text = std::fs::read_to_string(path).map_err(|e| EngineError::InvalidValue {
-        file: scenario_file.to_path_buf(),
-        key: "geometry.pores_file".into(),
-        value: format!("{:?}", path.display().to_string()),
-        allowed: format!("the file cannot be read ({e}); give a readable CSV of x_nm,y_nm,radius_nm (relative paths start at the scenario's folder)"),
-    })?;
-    let bad = |line: usize, row: &str, allowed: String| EngineError::InvalidValue {
-        file: path.to_path_buf(),
-        key: format!("line {line}"),
-        value: format!("{:?}", row.chars().take(80).collect::<String>()),
-        allowed,
-    };
     let names = ["x_nm", "y_nm", "radius_nm"];
+    let rows =
+        crate::config::read_numeric_csv(path, scenario_file, "geometry.pores_file", "pore", names)?;
     let a_max = species.iter().map(|s| s.radius_nm).fold(0.0, f64::max);
     let mut pores = Vec::new();
-    let mut lines = Vec::new();
-    let mut seen_data = false;
-    for (idx, raw) in text.lines().enumerate() {
-        let line = idx + 1;
-        let row = raw.trim();
-        if row.is_empty() || row.starts_with('#') {
-            continue;
-        }
-        let fields: Vec<&str> = row.split(',').map(str::trim).collect();
-        let first_is_number = fields.first().is_some_and(|f| f.parse::<f64>().is_ok());
-        if !seen_data && !first_is_number {
-            seen_data = true;
-            let lower: Vec<String> = fields.iter().map(|f| f.to_ascii_lowercase()).collect();
-            if lower != names {
-                return Err(bad(
-                    line,
-                    row,
-                    format!("a header must read `{}`", names.join(",")),
-                ));
-            }
-            continue;
-        }
-        seen_data = true;
-        if fields.len() != 3 {
-            return Err(bad(
-                line,
-                row,
-                format!(
-                    "each row needs 3 comma-separated numbers ({}), found {}",
-                    names.join(", "),
-                    fields.len()
-                ),
-            ));
-        }
-        let mut v = [0.0; 3];
-        for (c, f) in fields.iter().enumerate() {
-            v[c] = match f.parse::<f64>() {
-                Ok(x) if x.is_finite() => x,
-                _ => {
-                    return Err(bad(
-                        line,
-                        row,
-                        format!(
-                            "column {} ({}) must be a finite number, not {f:?}",
-                            c + 1,
-                            names[c]
-                        ),
-                    ))
-                }
-            };
-        }
-        let [x, y, r] = v;
-        if r <= 0.0 {
-            return Err(bad(
-                line,
-                row,
-                format!("radius_nm must be greater than 0, not {r}"),
-            ));
-        }
+    for row in &rows {
+        let bad = |allowed: String| row.error(path, allowed);
+        let [x, y, r] = row.values;
         if r <= a_max {
             let s = species
                 .iter()
                 .find(|s| s.radius_nm >= r)
                 .map(|s| s.name.as_str())
                 .unwrap_or("?");
-            return Err(bad(line, row, format!("the pore (radius {r} nm) is not wider than species '{s}' (radius {a_max} nm): the tracer is larger than the pore")));
+            return Err(bad(format!("the pore (radius {r} nm) is not wider than species '{s}' (radius {a_max} nm): the tracer is larger than the pore")));
         }
         for (k, axis) in ["x", "y"].iter().enumerate() {
-            let c = v[k];
+            let c = row.values[k];
             if c - r < 0.0 || c + r > lateral_nm[k] {
-                return Err(bad(
-                    line,
-                    row,
-                    format!(
+                return Err(bad(format!(
                         "the pore leaves the slab: along {axis} it spans {} … {} nm but the membrane (box cross-section) is 0 … {} nm",
                         c - r,
                         c + r,
@@ -1117,24 +1048,13 @@ pub fn read_pores_csv(
             }
         }
         if pores.len() >= MAX_PORES {
-            return Err(bad(
-                line,
-                row,
-                format!("a membrane may have at most {MAX_PORES} pores"),
-            ));
+            return Err(bad(format!(
+                "a membrane may have at most {MAX_PORES} pores"
+            )));
         }
         pores.push(Pore {
             centre_nm: [x, y],
             radius_nm: r,
-        });
-        lines.push(line);
-    }
-    if pores.is_empty() {
-        return Err(EngineError::InvalidValue {
-            file: scenario_file.to_path_buf(),
-            key: "geometry.pores_file".into(),
-            value: format!("{:?}", path.display().to_string()),
-            allowed: "the file holds no pore rows; each row is x_nm,y_nm,radius_nm".into(),
         });
     }
     let grid = PoreGrid::build(&pores, lateral_nm);
@@ -1146,12 +1066,12 @@ pub fn read_pores_csv(
             }
             let d = (p.centre_nm[0] - item.centre[0]).hypot(p.centre_nm[1] - item.centre[1]);
             if d < p.radius_nm + item.radius {
-                return Err(bad(
-                    lines[j],
-                    &format!("{},{},{}", p.centre_nm[0], p.centre_nm[1], p.radius_nm),
+                // Every row became a pore, so pore j is row j.
+                return Err(rows[j].error(
+                    path,
                     format!(
                         "this pore overlaps the one on line {} (axes {d:.4} nm apart, radii {} and {} nm): pores must not overlap each other",
-                        lines[i], item.radius, p.radius_nm
+                        rows[i].line, item.radius, p.radius_nm
                     ),
                 ));
             }

@@ -1149,120 +1149,40 @@ pub fn read_csv(
     allow_overlap: bool,
     scenario_file: &Path,
 ) -> Result<Spheres> {
-    let text = std::fs::read_to_string(path).map_err(|e| EngineError::InvalidValue {
-        file: scenario_file.to_path_buf(),
-        key: "obstacles.file".into(),
-        value: format!("{:?}", path.display().to_string()),
-        allowed: format!("the file cannot be read ({e}); give a readable CSV of x_nm,y_nm,z_nm,radius_nm (relative paths start at the scenario's folder)"),
-    })?;
-    let bad = |line: usize, row: &str, allowed: String| EngineError::InvalidValue {
-        file: path.to_path_buf(),
-        key: format!("line {line}"),
-        value: format!("{:?}", row.chars().take(80).collect::<String>()),
-        allowed,
-    };
     let names = ["x_nm", "y_nm", "z_nm", "radius_nm"];
+    let rows =
+        crate::config::read_numeric_csv(path, scenario_file, "obstacles.file", "obstacle", names)?;
     let mut spheres = Spheres {
         may_overlap: allow_overlap,
         ..Spheres::default()
     };
-    let mut lines = Vec::new();
-    let mut seen_data = false;
-    for (idx, raw) in text.lines().enumerate() {
-        let line = idx + 1;
-        let row = raw.trim();
-        if row.is_empty() || row.starts_with('#') {
-            continue;
-        }
-        let fields: Vec<&str> = row.split(',').map(str::trim).collect();
-        let first_is_number = fields.first().is_some_and(|f| f.parse::<f64>().is_ok());
-        if !seen_data && !first_is_number {
-            // A header: it must name the four columns.
-            seen_data = true;
-            let lower: Vec<String> = fields.iter().map(|f| f.to_ascii_lowercase()).collect();
-            if lower != names {
-                return Err(bad(
-                    line,
-                    row,
-                    format!("a header must read `{}`", names.join(",")),
-                ));
-            }
-            continue;
-        }
-        seen_data = true;
-        if fields.len() != 4 {
-            return Err(bad(
-                line,
-                row,
-                format!(
-                    "each row needs 4 comma-separated numbers ({}), found {}",
-                    names.join(", "),
-                    fields.len()
-                ),
-            ));
-        }
-        let mut v = [0.0; 4];
-        for (c, f) in fields.iter().enumerate() {
-            v[c] = match f.parse::<f64>() {
-                Ok(x) if x.is_finite() => x,
-                _ => {
-                    return Err(bad(
-                        line,
-                        row,
-                        format!(
-                            "column {} ({}) must be a finite number, not {f:?}",
-                            c + 1,
-                            names[c]
-                        ),
-                    ))
-                }
-            };
-        }
+    for row in &rows {
+        let bad = |allowed: String| row.error(path, allowed);
+        let v = row.values;
         let r = v[3];
-        if r <= 0.0 {
-            return Err(bad(
-                line,
-                row,
-                format!("radius_nm must be greater than 0, not {r}"),
-            ));
-        }
         for k in 0..3 {
             let l = sim_box.edges_nm[k];
             if sim_box.periodic[k] {
                 if 2.0 * r >= l {
-                    return Err(bad(
-                        line,
-                        row,
-                        format!(
-                            "the obstacle (diameter {}) is larger than the box along {} ({l} nm)",
-                            2.0 * r,
-                            names[k]
-                        ),
-                    ));
+                    return Err(bad(format!(
+                        "the obstacle (diameter {}) is larger than the box along {} ({l} nm)",
+                        2.0 * r,
+                        names[k]
+                    )));
                 }
                 if !(0.0..l).contains(&v[k]) {
-                    return Err(bad(
-                        line,
-                        row,
-                        format!(
-                            "{} = {} lies outside the periodic box [0, {l}) nm",
-                            names[k], v[k]
-                        ),
-                    ));
+                    return Err(bad(format!(
+                        "{} = {} lies outside the periodic box [0, {l}) nm",
+                        names[k], v[k]
+                    )));
                 }
             } else if v[k] - r < 0.0 || v[k] + r > l {
-                return Err(bad(
-                    line,
-                    row,
-                    format!("the obstacle overlaps the wall: along {} it spans {} … {} nm but the box is 0 … {l} nm", names[k], v[k] - r, v[k] + r),
+                return Err(bad(format!("the obstacle overlaps the wall: along {} it spans {} … {} nm but the box is 0 … {l} nm", names[k], v[k] - r, v[k] + r),
                 ));
             }
         }
         if !region.allows(&[v[0], v[1], v[2]], r) {
-            return Err(bad(
-                line,
-                row,
-                format!(
+            return Err(bad(format!(
                     "the obstacle (radius {r} nm) must lie wholly inside {}; it crosses or lies beyond its wall",
                     region.describe()
                 ),
@@ -1270,15 +1190,6 @@ pub fn read_csv(
         }
         spheres.centres_nm.push([v[0], v[1], v[2]]);
         spheres.radii_nm.push(r);
-        lines.push(line);
-    }
-    if spheres.is_empty() {
-        return Err(EngineError::InvalidValue {
-            file: scenario_file.to_path_buf(),
-            key: "obstacles.file".into(),
-            value: format!("{:?}", path.display().to_string()),
-            allowed: "the file holds no obstacle rows; each row is x_nm,y_nm,z_nm,radius_nm".into(),
-        });
     }
     if !allow_overlap {
         if let Some((i, j)) = find_sphere_overlap(&spheres, sim_box) {
@@ -1289,7 +1200,8 @@ pub fn read_csv(
                 format!(
                     "the obstacle on line {} overlaps the one on line {} (centres {d:.4} nm apart, radii {} and {} nm); \
                      set obstacles.allow_overlap = true if the microstructure has overlapping obstacles",
-                    lines[j], lines[i], spheres.radii_nm[j], spheres.radii_nm[i]
+                    // Every row became a sphere, so sphere i is row i.
+                    rows[j].line, rows[i].line, spheres.radii_nm[j], spheres.radii_nm[i]
                 ),
             ));
         }
