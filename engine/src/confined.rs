@@ -56,7 +56,7 @@
 use crate::config::Scenario;
 use crate::error::{EngineError, Result};
 use crate::geometry::{per_nm3_to_mol_per_m3, Geometry, Membrane, Shape};
-use crate::integrate::{reflect, State};
+use crate::integrate::{draw_starts, reflect, State};
 use crate::mobility::{
     superpose_two_walls, superpose_two_walls_with_gradient, PerpendicularModel, WallMobilityTable,
 };
@@ -383,25 +383,20 @@ impl Confinement {
         };
         for (s, sp) in self.species.iter().enumerate() {
             let r = sp.range.clone();
-            let failed = positions[r.clone()]
-                .par_iter_mut()
-                .zip(rngs[r].par_iter_mut())
-                .map(|(p, g)| {
-                    for _ in 0..PLACEMENT_ATTEMPTS {
-                        let c = [0, 1, 2].map(|k| lo[k] + g.uniform() * (hi[k] - lo[k]));
-                        let keep = g.uniform() < weight(c[2]);
-                        if keep
-                            && self.shape.allows(&c, sp.radius_nm)
-                            && !self.grid(s).is_some_and(|grid| grid.blocked(&c))
-                        {
-                            *p = c;
-                            return false;
-                        }
-                    }
-                    true
-                })
-                .reduce(|| false, |a, b| a || b);
-            if failed {
+            let placed = draw_starts(
+                &mut positions[r.clone()],
+                &mut rngs[r],
+                PLACEMENT_ATTEMPTS,
+                |g| {
+                    let c = [0, 1, 2].map(|k| lo[k] + g.uniform() * (hi[k] - lo[k]));
+                    let keep = g.uniform() < weight(c[2]);
+                    (keep
+                        && self.shape.allows(&c, sp.radius_nm)
+                        && !self.grid(s).is_some_and(|grid| grid.blocked(&c)))
+                    .then_some(c)
+                },
+            );
+            if !placed {
                 let sp = &scenario.species[s];
                 return Err(EngineError::Placement {
                     file: scenario.source.clone(),

@@ -382,24 +382,18 @@ impl Dynamics {
                 let mut positions = vec![[0.0; 3]; n];
                 for (s, (kin, grid)) in self.kinetics.iter().zip(grids).enumerate() {
                     let r = kin.range.clone();
-                    let failed = positions[r.clone()]
-                        .par_iter_mut()
-                        .zip(rngs[r].par_iter_mut())
-                        .map(|(p, g)| {
-                            for _ in 0..OPEN_START_ATTEMPTS {
-                                let c = [0, 1, 2].map(|k| {
-                                    kin.lower_nm[k]
-                                        + g.uniform() * (kin.upper_nm[k] - kin.lower_nm[k])
-                                });
-                                if !grid.blocked(&c) {
-                                    *p = c;
-                                    return false;
-                                }
-                            }
-                            true
-                        })
-                        .reduce(|| false, |a, b| a || b);
-                    if failed {
+                    let placed = draw_starts(
+                        &mut positions[r.clone()],
+                        &mut rngs[r],
+                        OPEN_START_ATTEMPTS,
+                        |g| {
+                            let c = [0, 1, 2].map(|k| {
+                                kin.lower_nm[k] + g.uniform() * (kin.upper_nm[k] - kin.lower_nm[k])
+                            });
+                            (!grid.blocked(&c)).then_some(c)
+                        },
+                    );
+                    if !placed {
                         let sp = &scenario.species[s];
                         return Err(EngineError::Placement {
                             file: scenario.source.clone(),
@@ -432,6 +426,26 @@ impl Dynamics {
             Kernel::Crowded(c) => c.advance(state, &self.kinetics, &self.sim_box, steps),
         }
     }
+}
+
+/// Draws every particle's start from its own stream (in parallel, so
+/// thread-independent): `trial` proposes a centre, or `None` to try again,
+/// up to `attempts` times. Returns false if some particle found none.
+pub fn draw_starts(
+    positions: &mut [[f64; 3]],
+    rngs: &mut [ParticleRng],
+    attempts: u64,
+    trial: impl Fn(&mut ParticleRng) -> Option<[f64; 3]> + Sync,
+) -> bool {
+    positions
+        .par_iter_mut()
+        .zip(rngs.par_iter_mut())
+        .all(|(p, g)| {
+            (0..attempts)
+                .find_map(|_| trial(g))
+                .map(|c| *p = c)
+                .is_some()
+        })
 }
 
 /// Specular reflection of a coordinate into [lo, hi].

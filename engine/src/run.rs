@@ -61,14 +61,15 @@ pub fn run(
     // Obstacles come from the seed, so a resumed run rebuilds the same medium;
     // placed before any file is touched, so a failed placement leaves files alone.
     let obstacles = FixedObstacles::build(scenario)?;
-    let mut dynamics = Dynamics::new(scenario, &obstacles);
     // Walls, pores and membranes have their own kernels and measurements (confined.rs).
     let mut confined = scenario
         .geometry
         .as_ref()
         .map(|g| ConfinedRun::new(scenario, g, &obstacles));
-    // Crowders in a slit or pore step with the crowd kernel, which knows the walls itself.
-    let crowded = scenario.has_crowders();
+    // Crowders in a slit or pore step with the crowd kernel, which knows the walls itself;
+    // otherwise one of the two kernels steps, and only it is built.
+    let mut dynamics = (confined.is_none() || scenario.has_crowders())
+        .then(|| Dynamics::new(scenario, &obstacles));
     let (mut state, mut writer) = if options.resume {
         resume_state(scenario, out, &ckpt_path)?
     } else {
@@ -83,9 +84,10 @@ pub fn run(
         }
         check_parent(out)?;
         let _ = std::fs::remove_file(&ckpt_path);
-        let state = match &confined {
-            Some(c) if !crowded => c.initial_state(scenario)?,
-            _ => dynamics.initial_state(scenario)?,
+        let state = match (&dynamics, &confined) {
+            (Some(d), _) => d.initial_state(scenario)?,
+            (None, Some(c)) => c.initial_state(scenario)?,
+            (None, None) => unreachable!("a run has a kernel"),
         };
         let mut writer = TrajectoryWriter::create(out, scenario)?;
         writer.write_obstacles(&obstacles, scenario)?;
@@ -106,7 +108,9 @@ pub fn run(
 
     let record = scenario.output.record_every_steps;
     let n = scenario.particle_count() as u64;
-    let block = (BLOCK_PARTICLE_STEPS / dynamics.relative_cost() / n.max(1)).clamp(1, record);
+    // Confined kernels cost about what obstructed ones do.
+    let cost = dynamics.as_ref().map_or(2, Dynamics::relative_cost);
+    let block = (BLOCK_PARTICLE_STEPS / cost / n.max(1)).clamp(1, record);
     let mut last_checkpoint = Instant::now();
     let save = |state: &State, writer: &TrajectoryWriter| -> Result<()> {
         writer.flush()?;
@@ -132,9 +136,10 @@ pub fn run(
         // Never step past the next frame, so frames land exactly on multiples of `record`.
         let to_frame = record - state.step % record;
         let steps = block.min(to_frame);
-        match confined.as_mut() {
-            Some(c) if !crowded => c.advance(&mut state, steps),
-            _ => dynamics.advance(&mut state, steps),
+        match (dynamics.as_mut(), confined.as_mut()) {
+            (Some(d), _) => d.advance(&mut state, steps),
+            (None, Some(c)) => c.advance(&mut state, steps),
+            (None, None) => unreachable!("a run has a kernel"),
         }
         if state.step % record == 0 {
             writer.write_frame(&state, state.step as f64 * scenario.dt_s)?;

@@ -558,58 +558,13 @@ fn bad_obstacle_input_gives_clear_errors() {
 // the same file as an uninterrupted one: obstacles come from the seed.
 #[test]
 fn obstacles_are_written_and_resume_is_exact() {
-    use std::sync::atomic::{AtomicBool, Ordering};
-    use thicket_engine::run::{run, RunOptions, RunOutcome};
     let dir = tempfile::tempdir().unwrap();
     let text = "seed = 4\n[medium]\ntemperature_K = 298.15\n[box]\nedges_nm = [20.0, 20.0, 20.0]\n\
                 [[species]]\nname = \"t\"\nradius_nm = 0.2\ncount = 50\ndiffusivity_m2_per_s = 1e-18\n\
                 [obstacles]\nplacement = \"random\"\ncount = 40\nradius_nm = 1.5\n[fibres]\nradius_nm = 0.3\ncount = 5\n\
                 [integrator]\ndt_s = 1e-4\nsteps = 400\n[output]\nrecord_every_steps = 20\ncheckpoint_interval_s = 1000\n";
     let sc = scenario(text);
-    let whole = dir.path().join("whole.h5");
-    let never = AtomicBool::new(false);
-    let out = run(
-        &sc,
-        &RunOptions {
-            out: whole.clone(),
-            force: false,
-            resume: false,
-        },
-        &never,
-        &mut |_, _| {},
-    )
-    .unwrap();
-    assert_eq!(out, RunOutcome::Completed { frames: 21 });
-    let split = dir.path().join("split.h5");
-    let stop = AtomicBool::new(false);
-    let out = run(
-        &sc,
-        &RunOptions {
-            out: split.clone(),
-            force: false,
-            resume: false,
-        },
-        &stop,
-        &mut |step, _| {
-            if step >= 200 {
-                stop.store(true, Ordering::Relaxed);
-            }
-        },
-    )
-    .unwrap();
-    assert!(matches!(out, RunOutcome::Interrupted { .. }), "{out:?}");
-    let out = run(
-        &sc,
-        &RunOptions {
-            out: split.clone(),
-            force: false,
-            resume: true,
-        },
-        &never,
-        &mut |_, _| {},
-    )
-    .unwrap();
-    assert_eq!(out, RunOutcome::Completed { frames: 21 });
+    let (whole, split) = whole_and_resumed(&sc, dir.path(), 200, 21);
 
     let a = hdf5::File::open(&whole).unwrap();
     let b = hdf5::File::open(&split).unwrap();

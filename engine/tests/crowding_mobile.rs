@@ -403,62 +403,13 @@ fn dilute_self_diffusion_and_dt_series() {
 // depends only on the particles' streams.
 #[test]
 fn crowded_resume_is_exact() {
-    use std::sync::atomic::{AtomicBool, Ordering};
-    use thicket_engine::run::{run, RunOptions, RunOutcome};
     let dir = tempfile::tempdir().unwrap();
     let text = mixed_text(0.05, 12).replace(
         "steps = 1\n",
         "steps = 300\n[output]\nrecord_every_steps = 30\ncheckpoint_interval_s = 1000\n",
     );
     let sc = scenario(&text);
-    let never = AtomicBool::new(false);
-    let whole = dir.path().join("whole.h5");
-    assert_eq!(
-        run(
-            &sc,
-            &RunOptions {
-                out: whole.clone(),
-                force: false,
-                resume: false
-            },
-            &never,
-            &mut |_, _| {}
-        )
-        .unwrap(),
-        RunOutcome::Completed { frames: 11 }
-    );
-    let split = dir.path().join("split.h5");
-    let stop = AtomicBool::new(false);
-    let out = run(
-        &sc,
-        &RunOptions {
-            out: split.clone(),
-            force: false,
-            resume: false,
-        },
-        &stop,
-        &mut |step, _| {
-            if step >= 120 {
-                stop.store(true, Ordering::Relaxed);
-            }
-        },
-    )
-    .unwrap();
-    assert!(matches!(out, RunOutcome::Interrupted { .. }), "{out:?}");
-    assert_eq!(
-        run(
-            &sc,
-            &RunOptions {
-                out: split.clone(),
-                force: false,
-                resume: true
-            },
-            &never,
-            &mut |_, _| {}
-        )
-        .unwrap(),
-        RunOutcome::Completed { frames: 11 }
-    );
+    let (whole, split) = whole_and_resumed(&sc, dir.path(), 120, 11);
     for name in ["small", "large", "probe"] {
         let read = |f: &std::path::Path| {
             hdf5::File::open(f)

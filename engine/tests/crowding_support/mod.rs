@@ -5,7 +5,7 @@
 #![allow(dead_code)]
 
 use std::ops::Range;
-use std::path::Path;
+use std::path::{Path, PathBuf};
 use thicket_engine::integrate::{Dynamics, State};
 use thicket_engine::obstacles::FixedObstacles;
 use thicket_engine::Scenario;
@@ -150,4 +150,38 @@ pub fn long_time_diffusivity(
         }
     }
     mean_se(&per)
+}
+
+/// Runs `sc` into `dir` twice: once whole (`whole.h5`), and once stopped at
+/// step `stop_at` and resumed (`split.h5`); asserts both complete with
+/// `frames` frames and returns the two paths.
+pub fn whole_and_resumed(
+    sc: &Scenario,
+    dir: &Path,
+    stop_at: u64,
+    frames: u64,
+) -> (PathBuf, PathBuf) {
+    use std::sync::atomic::{AtomicBool, Ordering};
+    use thicket_engine::run::{run, RunOptions, RunOutcome};
+    let options = |out: &PathBuf, resume: bool| RunOptions {
+        out: out.clone(),
+        force: false,
+        resume,
+    };
+    let never = AtomicBool::new(false);
+    let whole = dir.join("whole.h5");
+    let out = run(sc, &options(&whole, false), &never, &mut |_, _| {}).unwrap();
+    assert_eq!(out, RunOutcome::Completed { frames });
+    let split = dir.join("split.h5");
+    let stop = AtomicBool::new(false);
+    let out = run(sc, &options(&split, false), &stop, &mut |step, _| {
+        if step >= stop_at {
+            stop.store(true, Ordering::Relaxed);
+        }
+    })
+    .unwrap();
+    assert!(matches!(out, RunOutcome::Interrupted { .. }), "{out:?}");
+    let out = run(sc, &options(&split, true), &never, &mut |_, _| {}).unwrap();
+    assert_eq!(out, RunOutcome::Completed { frames });
+    (whole, split)
 }
