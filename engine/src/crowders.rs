@@ -806,7 +806,7 @@ pub fn place_crowd(
             file: scenario.source.clone(),
             reason: format!(
                 "crowders fill φ = {:.4}, above {LATTICE_START_FRACTION}, so they start on a face-centred lattice, but {reason}; \
-                 lower the counts or enlarge the box",
+                 lower species[].count of the crowders or enlarge box.edges_nm",
                 scenario.crowder_volume_fraction()
             ),
         }
@@ -855,7 +855,7 @@ pub fn place_crowd(
                         reason: format!(
                             "placing mobile particles one by one (largest first) ran out of room at species '{}' ({} of {} placed) \
                              after {attempts} attempts; the particles placed so far fill φ = {:.4} of the open volume. Random sequential \
-                             addition jams near φ ≈ {} for equal spheres (Zhang & Torquato 2013): lower the counts or enlarge the box",
+                             addition jams near φ ≈ {} for equal spheres (Zhang & Torquato 2013): lower species[].count or enlarge box.edges_nm",
                             sp.name,
                             placed[s],
                             sp.count,

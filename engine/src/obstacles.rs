@@ -883,7 +883,7 @@ fn poisson(
                     file,
                     format!(
                         "no place was found for an obstacle of radius {r:.4} nm wholly inside {} in {tries} tries; \
-                         the obstacles must be smaller than the pores",
+                         obstacles.radius_nm must be smaller than the pore radius",
                         region.describe()
                     ),
                 ));
