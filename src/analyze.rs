@@ -4,13 +4,13 @@ use anyhow::{Context, Result};
 use std::path::Path;
 use std::process::ExitCode;
 use thicket_analysis::estimators::{analyze, AnalyzeOptions};
-use thicket_analysis::report::{scenario_models, stored_scenario};
 
 /// Analyses a trajectory and prints a table or JSON; optional plots.
 pub fn analyze_trajectory(
     file: &Path,
     species: Option<&str>,
     window: Option<&str>,
+    axes: Option<&str>,
     d0: Option<f64>,
     plot: Option<&Path>,
     as_json: bool,
@@ -27,10 +27,14 @@ pub fn analyze_trajectory(
         );
         options.fit.window_s = Some([parts[0], parts[1]]);
     }
-    let mut analysis = analyze(file, species, &options)?;
-    if let Some(scenario) = stored_scenario(file) {
-        analysis.report.models = scenario_models(&scenario, &analysis.report.species);
+    if let Some(text) = axes {
+        // Three axes is the most a trajectory has; the reader refuses axes beyond its dimension.
+        options.axes = Some(
+            thicket_analysis::directions::parse_axes(text, 3)
+                .map_err(|e| anyhow::anyhow!("--axes {e}"))?,
+        );
     }
+    let analysis = analyze(file, species, &options)?;
     let report = &analysis.report;
     if as_json {
         println!("{}", serde_json::to_string_pretty(report)?);

@@ -4,7 +4,9 @@ use anyhow::Result;
 use serde_json::json;
 use std::path::Path;
 use std::process::ExitCode;
-use thicket_engine::geometry::{PoreLayout, Shape};
+use thicket_analysis::model_table::{scenario_model_table, ModelTable};
+use thicket_analysis::run_length::{long_time_regime, RegimeEstimate};
+use thicket_engine::geometry::Shape;
 use thicket_engine::obstacles::{Estimate, FixedObstacles, ObstacleSpec, Region};
 use thicket_engine::Scenario;
 
@@ -14,7 +16,24 @@ const CHECK_SAMPLES: usize = 1_000_000;
 /// Validates a scenario and prints what it implies.
 pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> {
     let scenario = Scenario::load(config, sets)?;
-    let warnings = scenario.warnings();
+    let mut warnings = scenario.warnings();
+    let regimes: Vec<RegimeEstimate> = scenario
+        .species
+        .iter()
+        .filter_map(|s| long_time_regime(&scenario, &s.name))
+        .collect();
+    for r in regimes.iter().filter(|r| r.too_short()) {
+        warnings.push(format!(
+            "species '{}': the run lasts {:.2e} s, shorter than the {:.2e} s the long-time regime needs (τ_c ≈ {:.2e} s from {} ℓ = {:.1} nm; rule of thumb): D_eff would be an apparent value; raise integrator.steps to at least {}",
+            r.species,
+            r.duration_s,
+            r.recommended_duration_s,
+            r.crossover_s,
+            r.basis,
+            r.length_scale_nm,
+            (r.recommended_duration_s / scenario.dt_s).ceil() as u64
+        ));
+    }
     let volume: f64 = scenario.sim_box.edges_nm.iter().product();
     // Placed exactly as `run` will place them (same seed, same streams).
     let obstacles = FixedObstacles::build(&scenario)?;
@@ -55,12 +74,20 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             .collect(),
         None => open,
     };
+    let tables: Vec<ModelTable> = scenario
+        .species
+        .iter()
+        .map(|s| scenario_model_table(&scenario, &s.name))
+        .collect();
     let species: Vec<_> = scenario
         .species
         .iter()
         .zip(&open)
-        .map(|(s, open)| {
+        .zip(&tables)
+        .map(|((s, open), table)| {
             json!({
+                "models": table.values(),
+                "model_table": table.entries,
                 "name": s.name,
                 "role": if s.crowder { "crowder" } else { "tracer" },
                 "open_fraction": open.value,
@@ -93,6 +120,10 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             "steps": scenario.steps,
             "duration_s": scenario.steps as f64 * scenario.dt_s,
             "frames": scenario.frames(),
+            "camera_frames": scenario.camera.as_ref().map(|c| c.frames),
+            "long_time_regime": regimes,
+            "models": tables[0].values(),
+            "model_table": tables[0].entries,
             "warnings": warnings,
         });
         if let Some(c) = &confinement {
@@ -101,13 +132,6 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             out["geometry"] = c.geometry.clone();
             out["lambda"] = json!(first.lambda);
             out["partition_coefficient_steric"] = json!(first.partition);
-            out["models"] = serde_json::Value::Object(
-                first
-                    .models
-                    .iter()
-                    .map(|m| (m.0.clone(), json!(m.1)))
-                    .collect(),
-            );
             out["confinement"] = json!(c
                 .per_species
                 .iter()
@@ -116,7 +140,6 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
                     "lambda": p.lambda,
                     "partition_coefficient_steric": p.partition,
                     "open_fraction": p.open_fraction,
-                    "models": p.models.iter().map(|m| json!({"name": m.0, "value": m.1, "source": m.2})).collect::<Vec<_>>(),
                 }))
                 .collect::<Vec<_>>());
         }
@@ -139,13 +162,26 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
         "  box        {} × {} × {} nm, periodic {:?}",
         b.edges_nm[0], b.edges_nm[1], b.edges_nm[2], b.periodic
     );
+    let camera = scenario
+        .camera
+        .as_ref()
+        .map(|c| {
+            format!(
+                "; the camera keeps {} frames of {:e} s",
+                c.frames, c.frame_interval_s
+            )
+        })
+        .unwrap_or_default();
     println!(
-        "  time       Δt = {:e} s × {} steps = {:e} s, {} frames",
+        "  time       Δt = {:e} s × {} steps = {:e} s, {} recorded positions per particle{camera}",
         scenario.dt_s,
         scenario.steps,
         scenario.steps as f64 * scenario.dt_s,
         scenario.frames()
     );
+    for r in &regimes {
+        println!("  regime     {}", r.describe());
+    }
     if !obstacles.spheres.is_empty() {
         let how = match &scenario.obstacles {
             Some(ObstacleSpec::Generated { generator, .. }) => generator.name().to_string(),
@@ -222,9 +258,15 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
                 "  species '{}': {lambda}{phi}open to the centre {:.4} of the box{walls}",
                 p.species, p.open_fraction
             );
-            for (name, value, source) in &p.models {
-                println!("    {name:<58} {value:>12.5e}   ({source})");
-            }
+        }
+    }
+    for (s, table) in scenario.species.iter().zip(&tables) {
+        if table.entries.is_empty() {
+            continue;
+        }
+        println!("  models for species '{}':", s.name);
+        for line in table.lines() {
+            println!("    {line}");
         }
     }
     for w in &warnings {
@@ -234,7 +276,7 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
 }
 
 /// What `check` says about a geometry: text lines, its JSON description and,
-/// per species, λ, the steric partition coefficient and the models.
+/// per species, λ and the steric partition coefficient.
 struct ConfinementReport {
     lines: Vec<String>,
     geometry: serde_json::Value,
@@ -246,14 +288,11 @@ struct SpeciesConfinement {
     lambda: Option<f64>,
     partition: Option<f64>,
     open_fraction: f64,
-    /// (name, value, source).
-    models: Vec<(String, f64, String)>,
 }
 
-/// λ, partition coefficients and model predictions for a scenario with a geometry.
+/// λ and the steric partition coefficient for a scenario with a geometry.
 fn confinement_report(scenario: &Scenario) -> Result<Option<ConfinementReport>> {
     use thicket_analysis::models;
-    use thicket_engine::confined::mean_parallel_mobility;
     let Some(g) = &scenario.geometry else {
         return Ok(None);
     };
@@ -269,67 +308,14 @@ fn confinement_report(scenario: &Scenario) -> Result<Option<ConfinementReport>> 
     let mut per_species = Vec::new();
     for s in &scenario.species {
         let a = s.radius_nm;
-        let mut out = Vec::new();
-        let mut model = |name: &str, value: f64, source: &str| {
-            out.push((name.to_string(), value, source.to_string()))
-        };
-        let engine_source = "this engine's wall model: Faxén D∥ at the nearest wall (two walls superposed in a slit), averaged over the open space";
         let (lambda, partition) = match &g.shape {
-            Shape::PlaneWall { .. } => {
-                if let Some(d) =
-                    mean_parallel_mobility(&g.shape, a, s.drag_radius_nm).filter(|_| hydro)
-                {
-                    model(
-                        "lateral D_eff/D0 of this run (box-averaged Faxén D∥)",
-                        d,
-                        engine_source,
-                    );
-                }
-                (None, None)
-            }
+            Shape::PlaneWall { .. } => (None, None),
             Shape::Slit { width_nm } => {
                 let h = 0.5 * width_nm;
-                let phi = models::partition_slit(a, h)?;
-                model(
-                    "steric partition Phi = 1 - a/h",
-                    phi,
-                    "steric exclusion (exact)",
-                );
-                let d = if hydro {
-                    mean_parallel_mobility(&g.shape, a, s.drag_radius_nm).unwrap_or(f64::NAN)
-                } else {
-                    1.0
-                };
-                model(
-                    "lateral D_eff/D0 of this run",
-                    d,
-                    if hydro {
-                        engine_source
-                    } else {
-                        "no wall hydrodynamics: D0"
-                    },
-                );
-                (Some(a / h), Some(phi))
+                (Some(a / h), Some(models::partition_slit(a, h)?))
             }
             Shape::Cylinder { radius_nm, .. } => {
                 let lambda = a / radius_nm;
-                for p in models::pore_predictions(lambda)? {
-                    model(p.name, p.value, p.source);
-                }
-                let d = if hydro {
-                    mean_parallel_mobility(&g.shape, a, s.drag_radius_nm).unwrap_or(f64::NAN)
-                } else {
-                    1.0
-                };
-                model(
-                    "axial D_eff/D0 of this run",
-                    d,
-                    if hydro {
-                        engine_source
-                    } else {
-                        "steric confinement alone leaves axial diffusion free"
-                    },
-                );
                 (Some(lambda), Some(models::partition_cylinder(lambda)?))
             }
             Shape::Membrane(m) => {
@@ -338,68 +324,7 @@ fn confinement_report(scenario: &Scenario) -> Result<Option<ConfinementReport>> 
                     .iter()
                     .map(|p| p.radius_nm)
                     .fold(f64::INFINITY, f64::min);
-                let lambda = a / r_min;
-                for p in models::pore_predictions(lambda)? {
-                    model(p.name, p.value, p.source);
-                }
-                let phi = m.steric_partition(a);
-                let eps = m.porosity();
-                let d0 = s.d0_m2_per_s;
-                let thickness_m = m.thickness_nm() * 1e-9;
-                model(
-                    "steric permeability eps Phi D0 / L (m/s)",
-                    eps * phi * d0 / thickness_m,
-                    "steric prediction, no end correction",
-                );
-                // A square arrangement has a known end correction; other layouts get the isolated-mouth one.
-                let spacing = match m.layout {
-                    PoreLayout::Arranged { pores_x, pores_y }
-                        if (m.lateral_nm[0] / pores_x as f64
-                            - m.lateral_nm[1] / pores_y as f64)
-                            .abs()
-                            < 1e-9 =>
-                    {
-                        Some(m.lateral_nm[0] / pores_x as f64)
-                    }
-                    _ => None,
-                };
-                let open = r_min - a;
-                let equal_pores = m.pores.iter().all(|p| p.radius_nm == r_min);
-                let array_ok = spacing.is_none_or(|sp| open / sp <= 0.3);
-                if array_ok && equal_pores {
-                    let p = models::membrane_steric_permeability_over_d0(
-                        eps,
-                        m.thickness_nm(),
-                        a,
-                        r_min,
-                        spacing,
-                    )?;
-                    model(
-                        "steric permeability with end correction (m/s)",
-                        p * 1e9 * d0,
-                        if spacing.is_some() {
-                            "slab L + 2a for centres, flanged-pipe end correction 0.8216 (r - a), square-array factor"
-                        } else {
-                            "slab L + 2a for centres, flanged-pipe end correction 0.8216 (r - a), isolated mouths"
-                        },
-                    );
-                }
-                for (name, h) in [
-                    ("Renkin", models::renkin_hindrance(lambda).ok()),
-                    (
-                        "Dechadilok-Deen",
-                        models::dechadilok_deen_hindrance(lambda).ok(),
-                    ),
-                ] {
-                    if let Some(h) = h {
-                        model(
-                            &format!("{name} permeability eps H D0 / L (m/s)"),
-                            eps * h * d0 / thickness_m,
-                            "hindered-transport model, no end correction",
-                        );
-                    }
-                }
-                (Some(lambda), Some(phi))
+                (Some(a / r_min), Some(m.steric_partition(a)))
             }
         };
         per_species.push(SpeciesConfinement {
@@ -407,7 +332,6 @@ fn confinement_report(scenario: &Scenario) -> Result<Option<ConfinementReport>> 
             lambda,
             partition,
             open_fraction: g.shape.open_fraction(a, &edges),
-            models: out,
         });
     }
     if let Shape::Membrane(m) = &g.shape {

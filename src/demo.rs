@@ -81,6 +81,30 @@ pub fn demo(out: &Path, force: bool) -> Result<ExitCode> {
     let _ = writeln!(report, "spread between particles and gels. Models are evaluated for the same scenarios: Maxwell's tracer form at the");
     let _ = writeln!(report, "fraction the beads exclude from the protein's centre, φ_excl = φ·((a+b)/b)³, and Mackie–Meares at φ.\n");
     let _ = writeln!(report, "```\n{table}```\n");
+    let _ = writeln!(report, "Each D_eff is the slope of the time-averaged MSD over its fit window (the `fit window` column, the shortest");
+    let _ = writeln!(report, "start and longest end over the gels), chosen automatically where the local exponent α(τ) is 1 within its");
+    let _ = writeln!(report, "error; α is the mean slope of ln MSD against ln τ there. A point marked APPARENT never reached the diffusive");
+    let _ = writeln!(
+        report,
+        "regime: its value is biased and the table says by how much to lengthen its runs.\n"
+    );
+    if summary.too_short.is_empty() {
+        let _ = writeln!(
+            report,
+            "Fit quality: every point reached the diffusive regime.\n"
+        );
+    } else {
+        let _ = writeln!(
+            report,
+            "Fit quality: **{} of {} points are apparent values.**\n",
+            summary.too_short.len(),
+            summary.points.len()
+        );
+        for line in &summary.too_short {
+            let _ = writeln!(report, "- {line}");
+        }
+        let _ = writeln!(report);
+    }
     let _ = writeln!(report, "Simulated in {elapsed:.1} s. Files: `summary.csv`, `summary.json`, `sweep.svg`/`sweep.png` (D_eff/D0 against φ),");
     let _ = writeln!(report, "`example_msd.*` and `example_alpha.*` (one gel at φ = 0.2), the trajectories in `runs/`, the inputs");
     let _ = writeln!(report, "`hydrogel.toml` and `hydrogel-sweep.toml` (rerun with `thicket sweep hydrogel-sweep.toml`).\n");

@@ -111,6 +111,9 @@ enum Command {
         /// D0 in m²/s, for files that do not carry it.
         #[arg(long, value_name = "M2_PER_S")]
         d0: Option<f64>,
+        /// Axes of the headline D_eff, e.g. xy or z (default: what the geometry defines: lateral in a slit, axial in a pore, all axes in an open box).
+        #[arg(long, value_name = "AXES")]
+        axes: Option<String>,
     },
     /// Run a grid of scenarios × seeds and summarise D_eff/D0 beside the models.
     Sweep {
@@ -172,6 +175,7 @@ fn main() -> ExitCode {
             species,
             window,
             d0,
+            axes,
         } if file
             .extension()
             .is_some_and(|e| e.eq_ignore_ascii_case("csv")) =>
@@ -179,7 +183,11 @@ fn main() -> ExitCode {
             tracks::analyze_tracks_csv(
                 &file,
                 json,
-                plot.is_some() || species.is_some() || window.is_some() || d0.is_some(),
+                plot.is_some()
+                    || species.is_some()
+                    || window.is_some()
+                    || d0.is_some()
+                    || axes.is_some(),
             )
         }
         Command::Analyze {
@@ -189,10 +197,12 @@ fn main() -> ExitCode {
             species,
             window,
             d0,
+            axes,
         } => analyze::analyze_trajectory(
             &file,
             species.as_deref(),
             window.as_deref(),
+            axes.as_deref(),
             d0,
             plot.as_deref(),
             json,

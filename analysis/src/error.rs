@@ -155,6 +155,16 @@ pub enum ErrorKind {
         needed_lags: usize,
     },
 
+    /// The geometry defines no MSD-based diffusivity (a membrane, whose
+    /// particles are recycled between baths, or no free axis).
+    #[error("'{}': {reason}", path.display())]
+    NoDiffusivity {
+        /// The trajectory.
+        path: PathBuf,
+        /// Why, and what to use instead.
+        reason: String,
+    },
+
     /// Writing a plot or report file failed.
     #[error("cannot write '{}': {message}", path.display())]
     Output {

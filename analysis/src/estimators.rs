@@ -60,6 +60,9 @@ pub struct FitOptions {
     pub min_lags: usize,
     /// Interval construction. By default, [`CiMethod::StudentT`].
     pub ci: CiMethod,
+    /// Axes whose summed MSD defines D_eff, α and the window (e.g. `[0, 1]`
+    /// for the lateral diffusivity in a slit). By default, `None`: all axes.
+    pub axes: Option<Vec<usize>>,
 }
 
 impl Default for FitOptions {
@@ -70,6 +73,7 @@ impl Default for FitOptions {
             z_alpha: None,
             min_lags: 4,
             ci: CiMethod::StudentT,
+            axes: None,
         }
     }
 }
@@ -84,6 +88,33 @@ pub struct AnalyzeOptions {
     /// D0 in m²/s, overriding the file's value. By default, `None` (use the
     /// file's `/parameters/thicket/species/<name>` attribute `d0_m2_per_s`).
     pub d0_m2_per_s: Option<f64>,
+    /// Axes of the headline D_eff, overriding the geometry's choice (see
+    /// [`crate::directions::directions`]). By default, `None`.
+    pub axes: Option<Vec<usize>>,
+}
+
+/// A diffusivity along one set of axes beside the headline one (e.g. along
+/// aligned fibres), with its own fit window.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct DirectionalEstimate {
+    /// What it is, e.g. "along the fibres (z)".
+    pub label: String,
+    /// Axis indices.
+    pub axes: Vec<usize>,
+    /// D, m²/s.
+    pub d_m2_per_s: f64,
+    /// Its 95 % interval, m²/s.
+    pub ci95_m2_per_s: [f64; 2],
+    /// D/D0, when D0 is known.
+    pub d_over_d0: Option<f64>,
+    /// Its 95 % interval.
+    pub d_over_d0_ci95: Option<[f64; 2]>,
+    /// Slope of ln MSD against ln τ in the window.
+    pub alpha_long: f64,
+    /// Fit window [t0, t1], s.
+    pub fit_window_s: [f64; 2],
+    /// `true` when D is an apparent value (see [`DiffusionFit::apparent`]).
+    pub apparent: bool,
 }
 
 /// Where the fit window came from.
@@ -136,6 +167,12 @@ pub struct DiffusionFit {
     pub lags_in_window: usize,
     /// Groups whose spread gives the interval.
     pub groups: usize,
+    /// Axes whose summed MSD gave `d_m2_per_s`.
+    pub axes: Vec<usize>,
+    /// `true` when the MSD did not reach the diffusive regime in the window
+    /// (automatic fallback, or α_long off 1 by more than 0.1): D is an
+    /// apparent value.
+    pub apparent: bool,
     /// Notes on the fit for the report.
     pub warnings: Vec<String>,
 }
@@ -161,7 +198,17 @@ pub struct Report {
     pub d0_m2_per_s: Option<f64>,
     /// Where D0 came from: "file", "caller" or "unknown".
     pub d0_source: String,
-    /// D_eff from the total MSD, m²/s.
+    /// Which diffusivity D_eff is, e.g. "isotropic (x, y, z)", "lateral
+    /// (x, y)" or "axial (z)": the geometry decides (or the caller's axes).
+    pub direction: String,
+    /// Axes of D_eff.
+    pub direction_axes: Vec<usize>,
+    /// Why these axes.
+    pub direction_reason: String,
+    /// Per axis: `true` where walls bound the motion, so that axis's D is
+    /// not a long-time diffusivity.
+    pub bounded_axes: Vec<bool>,
+    /// D_eff along `direction`, m²/s.
     pub d_eff_m2_per_s: f64,
     /// 95 % interval of D_eff, [low, high], m²/s.
     pub d_eff_ci95_m2_per_s: [f64; 2],
@@ -185,15 +232,23 @@ pub struct Report {
     pub fit_lags: usize,
     /// Crossover time, s (see [`FitWindow::crossover_time_s`]).
     pub crossover_time_s: Option<f64>,
+    /// `true` when D_eff is an apparent value: the MSD did not reach the
+    /// diffusive regime in the fit window (see [`DiffusionFit::apparent`]).
+    pub apparent: bool,
+    /// Diffusivities along further directions (e.g. along aligned fibres).
+    pub other_directions: Vec<DirectionalEstimate>,
     /// How the interval was formed.
     pub ci_method: String,
     /// Groups of particles whose spread gives the interval.
     pub ci_groups: usize,
     /// How the MSD was evaluated.
     pub msd_method: MsdMethod,
-    /// Model predictions of D_eff / D0 by name; left empty here for the
-    /// caller to fill from `crate::models`.
+    /// Model predictions of this D_eff / D0 by name (the applicable entries
+    /// of `model_table` that predict it), for the scenario stored in the file.
     pub models: BTreeMap<String, f64>,
+    /// Every model entry for the scenario, with the variable it is evaluated
+    /// at and, where a model does not apply, the reason.
+    pub model_table: Vec<crate::model_table::ModelValue>,
     /// Everything the reader should know before trusting the numbers.
     pub warnings: Vec<String>,
 }
@@ -280,6 +335,39 @@ pub fn analyze(
             meta.frames
         ));
     }
+    let scenario = crate::report::scenario_of(&trajectory, path);
+    let found = crate::directions::directions(scenario.as_ref(), meta.dims);
+    let (headline, others) = match (&options.axes, found.headline) {
+        (Some(axes), _) => (
+            crate::directions::Direction {
+                label: format!("chosen axes ({})", crate::directions::axes_text(axes)),
+                axes: axes.clone(),
+                reason: "given by the caller".into(),
+            },
+            Vec::new(),
+        ),
+        (None, Some(h)) => (h, found.others),
+        (None, None) => {
+            return Err(ErrorKind::NoDiffusivity {
+                path: path.to_path_buf(),
+                reason: if found.bounded.iter().all(|b| *b) {
+                    "walls bound every axis, so there is no long-time diffusivity; choose axes explicitly to fit one anyway".into()
+                } else {
+                    "a membrane's particles are recycled between the baths, so no diffusivity follows from their MSD; its flux, permeability and partition are the results (or choose axes explicitly)".into()
+                },
+            }
+            .into())
+        }
+    };
+    let bounded_axes = found.bounded.clone();
+    for (a, b) in bounded_axes.iter().enumerate() {
+        if *b && headline.axes.contains(&a) {
+            warnings.push(format!(
+                "axis {} is bounded by walls: its MSD levels off, so a D_eff that includes it describes no long-time transport",
+                crate::directions::axes_text(&[a])
+            ));
+        }
+    }
     let msd = compute_msd(&reader, &options.msd)?;
     if msd.suspicious_jumps > 0 {
         warnings.push(format!(
@@ -287,7 +375,11 @@ pub fn analyze(
             msd.suspicious_jumps
         ));
     }
-    let fit = fit_diffusion(&msd, &options.fit).map_err(|e| match e.into_kind() {
+    let fit_options = FitOptions {
+        axes: Some(headline.axes.clone()),
+        ..options.fit.clone()
+    };
+    let fit = fit_diffusion(&msd, &fit_options).map_err(|e| match e.into_kind() {
         ErrorKind::TooLittleData {
             what,
             found,
@@ -321,7 +413,38 @@ pub fn analyze(
             )
         }
     };
-    let exponent = msd.local_exponent();
+    let exponent = msd.local_exponent_of(&fit.axes);
+    let mut other_directions = Vec::new();
+    for o in &others {
+        let other = FitOptions {
+            axes: Some(o.axes.clone()),
+            ..options.fit.clone()
+        };
+        // A direction that cannot be fitted is left out; the headline stands.
+        if let Ok(f) = fit_diffusion(&msd, &other) {
+            if f.apparent {
+                warnings.push(format!(
+                    "D {} is an apparent value: the MSD did not reach the diffusive regime there",
+                    o.label
+                ));
+            }
+            other_directions.push(DirectionalEstimate {
+                label: o.label.clone(),
+                axes: o.axes.clone(),
+                d_m2_per_s: f.d_m2_per_s,
+                ci95_m2_per_s: f.ci95_m2_per_s,
+                d_over_d0: d0.map(|d| f.d_m2_per_s / d),
+                d_over_d0_ci95: d0.map(|d| [f.ci95_m2_per_s[0] / d, f.ci95_m2_per_s[1] / d]),
+                alpha_long: f.alpha_long,
+                fit_window_s: f.window.window_s,
+                apparent: f.apparent,
+            });
+        }
+    }
+    let table = scenario
+        .as_ref()
+        .map(|s| crate::model_table::scenario_model_table(s, &meta.name))
+        .unwrap_or_default();
     let report = Report {
         file: path.display().to_string(),
         species: meta.name.clone(),
@@ -332,6 +455,10 @@ pub fn analyze(
         frame_interval_s: meta.frame_interval_s,
         d0_m2_per_s: d0,
         d0_source: d0_source.into(),
+        direction: headline.label.clone(),
+        direction_axes: headline.axes.clone(),
+        direction_reason: headline.reason.clone(),
+        bounded_axes,
         d_eff_m2_per_s: fit.d_m2_per_s,
         d_eff_ci95_m2_per_s: fit.ci95_m2_per_s,
         d_eff_over_d0: d0.map(|d| fit.d_m2_per_s / d),
@@ -344,10 +471,13 @@ pub fn analyze(
         fit_window_source: fit.window.source,
         fit_lags: fit.lags_in_window,
         crossover_time_s: fit.window.crossover_time_s,
+        apparent: fit.apparent,
+        other_directions,
         ci_method,
         ci_groups: fit.groups,
         msd_method: msd.method,
-        models: BTreeMap::new(),
+        models: table.d_eff_over_d0(),
+        model_table: table.entries,
         warnings,
     };
     Ok(Analysis {
@@ -574,23 +704,34 @@ pub fn fit_diffusion(msd: &Msd, options: &FitOptions) -> Result<DiffusionFit> {
             ));
         }
     }
-    let exponent = msd.local_exponent();
+    let selected: Vec<usize> = options
+        .axes
+        .clone()
+        .unwrap_or_else(|| (0..msd.dims).collect());
+    if selected.is_empty() || selected.iter().any(|&a| a >= msd.dims) {
+        return Err(Error::invalid_option(
+            "axes",
+            format!("{selected:?}"),
+            format!("distinct axes below the dimension {}", msd.dims),
+        ));
+    }
+    let exponent = msd.local_exponent_of(&selected);
     let window = choose_fit_window(msd, &exponent, options)?;
     let [i0, i1] = window.lag_index;
     let t: Vec<f64> = msd.lag_times_s[i0..=i1].to_vec();
-    let d = msd.dims as f64;
+    let d = selected.len() as f64;
     let slope_d = |curve: &[f64], dims: f64| {
         linear_fit(&t, &curve[i0..=i1]).0 / (2.0 * dims) * NM2_PER_S_IN_M2_PER_S
     };
     let weights: Vec<usize> = msd.groups.iter().map(|g| g.particles).collect();
-    let total = msd.total_nm2();
+    let total = msd.axes_sum_nm2(&selected);
     let d_total = slope_d(&total, d);
     let group_total: Vec<f64> = msd
         .groups
         .iter()
         .map(|g| {
             let curve: Vec<f64> = (0..total.len())
-                .map(|i| g.axes_nm2.iter().map(|a| a[i]).sum())
+                .map(|i| selected.iter().map(|&a| g.axes_nm2[a][i]).sum())
                 .collect();
             slope_d(&curve, d)
         })
@@ -613,12 +754,19 @@ pub fn fit_diffusion(msd: &Msd, options: &FitOptions) -> Result<DiffusionFit> {
     let alpha_long = linear_fit(&ln_t, &ln_m).0;
 
     let mut warnings = Vec::new();
+    let apparent = window.source == WindowSource::AutoFallback || (alpha_long - 1.0).abs() > 0.1;
     if window.source == WindowSource::AutoFallback {
         let last = exponent.alpha[i1];
-        warnings.push(format!(
-            "α(τ) is not within {:.2} standard errors of 1 over the longest admissible lags (α = {last:.3} ± {:.3} at τ = {:.3e} s): the MSD has not reached the diffusive regime, and D_eff from the last {} lags is an apparent value",
-            window.z_alpha, exponent.se[i1], msd.lag_times_s[i1], i1 + 1 - i0
-        ));
+        match window.crossover_time_s {
+            Some(tc) => warnings.push(format!(
+                "α(τ) comes within {:.2} standard errors of 1 only from τ = {tc:.3e} s, leaving fewer than {} admissible lags (α = {last:.3} ± {:.3} at τ = {:.3e} s): the run is too short for a diffusive fit window, and D_eff from the last {} lags is an apparent value",
+                window.z_alpha, options.min_lags, exponent.se[i1], msd.lag_times_s[i1], i1 + 1 - i0
+            )),
+            None => warnings.push(format!(
+                "α(τ) is not within {:.2} standard errors of 1 over the longest admissible lags (α = {last:.3} ± {:.3} at τ = {:.3e} s): the MSD has not reached the diffusive regime, and D_eff from the last {} lags is an apparent value",
+                window.z_alpha, exponent.se[i1], msd.lag_times_s[i1], i1 + 1 - i0
+            )),
+        }
     } else if (alpha_long - 1.0).abs() > 0.1 {
         warnings.push(format!(
             "alpha_long = {alpha_long:.3} in the fit window: the MSD is not linear there, so D_eff is an apparent value"
@@ -648,6 +796,8 @@ pub fn fit_diffusion(msd: &Msd, options: &FitOptions) -> Result<DiffusionFit> {
         lags_in_window: i1 + 1 - i0,
         groups: msd.groups.len(),
         window,
+        axes: selected,
+        apparent,
         warnings,
     })
 }
@@ -852,9 +1002,14 @@ impl Report {
             },
         );
         row(
+            "D_eff is",
+            format!("{}: {}", self.direction, self.direction_reason),
+        );
+        let flag = if self.apparent { "  APPARENT" } else { "" };
+        row(
             "D_eff (95 % CI)",
             format!(
-                "{} m²/s  {}",
+                "{} m²/s  {}{flag}",
                 e(self.d_eff_m2_per_s),
                 pair(self.d_eff_ci95_m2_per_s)
             ),
@@ -875,9 +1030,31 @@ impl Report {
             .zip(&self.d_eff_axes_ci95_m2_per_s)
             .enumerate()
         {
+            let bounded = if self.bounded_axes.get(a).copied().unwrap_or(false) {
+                "  (bounded by walls: not a long-time diffusivity)"
+            } else {
+                ""
+            };
             row(
                 &format!("D_{}", names.get(a).unwrap_or(&"?")),
-                format!("{} m²/s  {}", e(*d), pair(*ci)),
+                format!("{} m²/s  {}{bounded}", e(*d), pair(*ci)),
+            );
+        }
+        for o in &self.other_directions {
+            let ratio = match (o.d_over_d0, o.d_over_d0_ci95) {
+                (Some(r), Some(ci)) => format!(", D/D0 = {r:.4} [{:.4}, {:.4}]", ci[0], ci[1]),
+                _ => String::new(),
+            };
+            let flag = if o.apparent { "  APPARENT" } else { "" };
+            row(
+                &format!("D {}", o.label),
+                format!(
+                    "{} m²/s  {}{ratio}, α = {:.3}, window {} s{flag}",
+                    e(o.d_m2_per_s),
+                    pair(o.ci95_m2_per_s),
+                    o.alpha_long,
+                    pair(o.fit_window_s)
+                ),
             );
         }
         row("alpha_long", format!("{:.4}", self.alpha_long));
@@ -899,10 +1076,26 @@ impl Report {
             self.crossover_time_s
                 .map_or_else(|| "not reached".into(), |t| format!("{} s", e(t))),
         );
+        row(
+            "fit quality",
+            if self.apparent {
+                format!("APPARENT value: the MSD is not diffusive over the window (α = {:.3}); lengthen the run", self.alpha_long)
+            } else {
+                format!(
+                    "diffusive: α within its error of 1 over the window (α = {:.3})",
+                    self.alpha_long
+                )
+            },
+        );
         row("interval", self.ci_method.clone());
-        if !self.models.is_empty() {
-            for (name, v) in &self.models {
-                row(&format!("model {name}"), format!("D_eff/D0 = {v:.4}"));
+        if !self.model_table.is_empty() {
+            let _ = writeln!(s, "models for this scenario (* = predicts this D_eff/D0):");
+            let table = crate::model_table::ModelTable {
+                entries: self.model_table.clone(),
+            };
+            for (line, entry) in table.lines().iter().zip(&self.model_table) {
+                let mark = if entry.compares_with_d_eff { '*' } else { ' ' };
+                let _ = writeln!(s, "  {mark} {line}");
             }
         }
         if !self.warnings.is_empty() {

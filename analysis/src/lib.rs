@@ -1,11 +1,14 @@
 pub mod camera;
+pub mod directions;
 pub mod error;
 pub mod estimators;
+pub mod model_table;
 pub mod models;
 pub mod msd;
 pub mod plot;
 pub mod read;
 pub mod report;
+pub mod run_length;
 pub mod sweep;
 pub mod sweep_plot;
 pub mod tracks;

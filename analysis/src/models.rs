@@ -1139,3 +1139,43 @@ mod membrane_tests {
         assert!(square_array_access_factor(9.0, 20.0).is_err());
     }
 }
+
+/// Dechadilok & Deen (2006) diffusive hindrance factor H = Φ · ⟨K_d⟩ for a
+/// slit of half-width h, λ = a/h (REFERENCES.md, from memory):
+/// H = 1 + (9/16)λ ln λ − 1.19358λ + 0.4285λ³ − 0.3192λ⁴ + 0.08428λ⁵,
+/// with Φ = 1 − λ; H/Φ is the lateral D_eff/D0 averaged over the gap.
+///
+/// # Errors
+/// λ outside [0, 0.95], the range of their fit.
+pub fn dechadilok_deen_slit_hindrance(lambda: f64) -> ModelResult<f64> {
+    if !(0.0..=DECHADILOK_DEEN_MAX_LAMBDA).contains(&lambda) {
+        return Err(ModelError::OutOfRange {
+            name: "size ratio lambda = a/h",
+            value: lambda,
+            allowed: "[0, 0.95] (Dechadilok-Deen fit range)",
+        });
+    }
+    let l = lambda;
+    // λ ln λ → 0 as λ → 0.
+    let log_term = if l == 0.0 {
+        0.0
+    } else {
+        9.0 / 16.0 * l * l.ln()
+    };
+    Ok(1.0 + log_term + l * (-1.19358 + l * l * (0.4285 + l * (-0.3192 + 0.08428 * l))))
+}
+
+#[cfg(test)]
+mod slit_tests {
+    use super::*;
+
+    #[test]
+    fn slit_hindrance_matches_reference_check_value() {
+        // REFERENCE.md (Dechadilok & Deen 2006, slit, from memory): λ = 0.2 → H/Φ = 0.7290.
+        let h = dechadilok_deen_slit_hindrance(0.2).unwrap();
+        assert!((h / (1.0 - 0.2) - 0.7290).abs() < 5e-4, "{h}");
+        // Exact limit: no hindrance for a point particle.
+        assert_eq!(dechadilok_deen_slit_hindrance(0.0).unwrap(), 1.0);
+        assert!(dechadilok_deen_slit_hindrance(0.96).is_err());
+    }
+}

@@ -211,14 +211,30 @@ impl Msd {
         sum_axes(&self.origin_axes_nm2)
     }
 
+    /// Time-averaged MSD summed over `axes` at each lag, nm².
+    pub fn axes_sum_nm2(&self, axes: &[usize]) -> Vec<f64> {
+        sum_selected(&self.time_averaged_axes_nm2, axes)
+    }
+
+    /// MSD from frame 0 summed over `axes` at each lag, nm².
+    pub fn origin_axes_sum_nm2(&self, axes: &[usize]) -> Vec<f64> {
+        sum_selected(&self.origin_axes_nm2, axes)
+    }
+
     /// Local exponent of the total time-averaged MSD, with its standard error
     /// from the spread between groups.
     pub fn local_exponent(&self) -> LocalExponent {
-        let alpha = log_derivative(&self.lag_times_s, &self.total_nm2());
+        self.local_exponent_of(&(0..self.dims).collect::<Vec<_>>())
+    }
+
+    /// Local exponent of the MSD summed over `axes` (e.g. the lateral axes
+    /// of a slit), with its standard error from the spread between groups.
+    pub fn local_exponent_of(&self, axes: &[usize]) -> LocalExponent {
+        let alpha = log_derivative(&self.lag_times_s, &self.axes_sum_nm2(axes));
         let per_group: Vec<Vec<f64>> = self
             .groups
             .iter()
-            .map(|g| log_derivative(&self.lag_times_s, &sum_axes(&g.axes_nm2)))
+            .map(|g| log_derivative(&self.lag_times_s, &sum_selected(&g.axes_nm2, axes)))
             .collect();
         let weights: Vec<usize> = self.groups.iter().map(|g| g.particles).collect();
         let se = (0..alpha.len())
@@ -233,6 +249,13 @@ impl Msd {
             se,
         }
     }
+}
+
+fn sum_selected(curves: &[Vec<f64>], axes: &[usize]) -> Vec<f64> {
+    let n = curves.first().map_or(0, Vec::len);
+    (0..n)
+        .map(|i| axes.iter().map(|&a| curves[a][i]).sum())
+        .collect()
 }
 
 fn sum_axes(axes: &[Vec<f64>]) -> Vec<f64> {

@@ -93,6 +93,8 @@ pub struct Curve {
     pub dashed: bool,
     /// Mark each point.
     pub markers: bool,
+    /// Join the points with a line (off for points that only mark).
+    pub line: bool,
 }
 
 /// A shaded band between a lower and an upper curve.
@@ -195,6 +197,31 @@ pub fn png_font_available() -> bool {
     })
 }
 
+/// The axes of the report's D_eff that the MSD has (all axes for reports
+/// that name none).
+fn report_axes(msd: &Msd, report: &Report) -> Vec<usize> {
+    let axes: Vec<usize> = report
+        .direction_axes
+        .iter()
+        .copied()
+        .filter(|&a| a < msd.dims)
+        .collect();
+    if axes.is_empty() {
+        (0..msd.dims).collect()
+    } else {
+        axes
+    }
+}
+
+/// The apparent-value caveat for a figure's title.
+fn apparent_note(report: &Report) -> &'static str {
+    if report.apparent {
+        " — APPARENT: not diffusive in the fit window"
+    } else {
+        ""
+    }
+}
+
 /// Power of ten that brings `max` into [1, 10), for axis scaling.
 fn decade(max: f64) -> i32 {
     if max > 0.0 && max.is_finite() {
@@ -223,18 +250,19 @@ fn log_x_range(t: &[f64]) -> [f64; 2] {
 /// MSD/τ against τ: time-averaged and from-origin curves, 2d·D0 and
 /// 2d·D_eff (with its interval), the fit window shaded.
 pub fn msd_figure(msd: &Msd, report: &Report) -> Figure {
-    let d2 = 2.0 * msd.dims as f64;
+    let axes = report_axes(msd, report);
+    let d2 = 2.0 * axes.len() as f64;
     let to_si = |msd_nm2: f64, t: f64| msd_nm2 * NM2_PER_S_IN_M2_PER_S / t;
     let ta: Vec<(f64, f64)> = msd
         .lag_times_s
         .iter()
-        .zip(msd.total_nm2())
+        .zip(msd.axes_sum_nm2(&axes))
         .map(|(&t, m)| (t, to_si(m, t)))
         .collect();
     let origin: Vec<(f64, f64)> = msd
         .lag_times_s
         .iter()
-        .zip(msd.origin_total_nm2())
+        .zip(msd.origin_axes_sum_nm2(&axes))
         .map(|(&t, m)| (t, to_si(m, t)))
         .collect();
     let mut ymax = ta
@@ -255,11 +283,15 @@ pub fn msd_figure(msd: &Msd, report: &Report) -> Figure {
             .collect::<Vec<_>>()
     };
     let x_range = log_x_range(&msd.lag_times_s);
-    let dims = msd.dims;
+    let dims = axes.len();
     let mut fig = Figure {
         title: format!(
-            "MSD/τ of '{}' ({} particles, {} frames)",
-            report.species, report.particles, report.frames
+            "MSD/τ of '{}', {} ({} particles, {} frames){}",
+            report.species,
+            report.direction,
+            report.particles,
+            report.frames,
+            apparent_note(report)
         ),
         x_label: "lag τ (s)".into(),
         y_label: format!("MSD/τ (1e{e} m²/s)"),
@@ -295,6 +327,7 @@ pub fn msd_figure(msd: &Msd, report: &Report) -> Figure {
                 label: "time-averaged".into(),
                 dashed: false,
                 markers: true,
+                line: true,
             },
             Curve {
                 points: sc(origin),
@@ -302,6 +335,7 @@ pub fn msd_figure(msd: &Msd, report: &Report) -> Figure {
                 label: "from frame 0".into(),
                 dashed: true,
                 markers: false,
+                line: true,
             },
         ],
     };
@@ -317,7 +351,7 @@ pub fn msd_figure(msd: &Msd, report: &Report) -> Figure {
 
 /// α(τ) against τ with its ±2 SE band, α = 1 marked and the fit window shaded.
 pub fn alpha_figure(msd: &Msd, report: &Report) -> Figure {
-    let ex = msd.local_exponent();
+    let ex = msd.local_exponent_of(&report_axes(msd, report));
     let points: Vec<(f64, f64)> = ex
         .lag_times_s
         .iter()
@@ -338,7 +372,12 @@ pub fn alpha_figure(msd: &Msd, report: &Report) -> Figure {
         hi = hi.max(a);
     }
     Figure {
-        title: format!("local exponent α(τ) of '{}'", report.species),
+        title: format!(
+            "local exponent α(τ) of '{}', {}{}",
+            report.species,
+            report.direction,
+            apparent_note(report)
+        ),
         x_label: "lag τ (s)".into(),
         y_label: "α = d ln MSD / d ln τ".into(),
         x_range: log_x_range(&msd.lag_times_s),
@@ -361,6 +400,7 @@ pub fn alpha_figure(msd: &Msd, report: &Report) -> Figure {
             label: "α(τ)".into(),
             dashed: false,
             markers: true,
+            line: true,
         }],
     }
 }
@@ -500,20 +540,32 @@ pub fn render_svg(fig: &Figure) -> String {
         } else {
             ""
         };
-        let _ = writeln!(
-            s,
-            r#"<polyline points="{}" fill="none" stroke="{}" stroke-width="1.8"{dash}/>"#,
-            pts.join(" "),
-            c.colour.svg()
-        );
+        if c.line {
+            let _ = writeln!(
+                s,
+                r#"<polyline points="{}" fill="none" stroke="{}" stroke-width="1.8"{dash}/>"#,
+                pts.join(" "),
+                c.colour.svg()
+            );
+        }
         if c.markers {
+            // Marker-only curves draw larger rings so they stand out on a line's dots.
+            let ring = !c.line;
             for p in &pts {
                 let (x, y) = p.split_once(',').unwrap_or(("0", "0"));
-                let _ = writeln!(
-                    s,
-                    r#"<circle cx="{x}" cy="{y}" r="2.5" fill="{}"/>"#,
-                    c.colour.svg()
-                );
+                let _ = if ring {
+                    writeln!(
+                        s,
+                        r#"<circle cx="{x}" cy="{y}" r="5" fill="none" stroke="{}" stroke-width="1.8"/>"#,
+                        c.colour.svg()
+                    )
+                } else {
+                    writeln!(
+                        s,
+                        r#"<circle cx="{x}" cy="{y}" r="2.5" fill="{}"/>"#,
+                        c.colour.svg()
+                    )
+                };
             }
         }
     }
@@ -754,6 +806,20 @@ pub fn render_png(fig: &Figure, path: &Path, text: bool) -> Result<()> {
             .collect();
         let colour = c.colour.plotters();
         let style = colour.stroke_width(2);
+        if !c.line {
+            let series = chart
+                .draw_series(
+                    pts.iter()
+                        .map(|&p| Circle::new(p, 5, colour.stroke_width(2))),
+                )
+                .map_err(|e| err(&e))?;
+            if text {
+                series
+                    .label(c.label.as_str())
+                    .legend(move |(x, y)| Circle::new((x + 10, y), 5, colour.stroke_width(2)));
+            }
+            continue;
+        }
         let series = if c.dashed {
             chart.draw_series(DashedLineSeries::new(pts.clone(), 6, 4, style))
         } else {

@@ -8,7 +8,6 @@
 
 use crate::estimators::{analyze, AnalyzeOptions};
 use crate::models;
-use crate::report::scenario_models;
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
@@ -130,10 +129,50 @@ pub struct PointResult {
     pub d_eff_over_d0: f64,
     /// Long-time exponent.
     pub alpha_long: f64,
+    /// Which diffusivity D_eff is (e.g. "lateral (x, y)").
+    #[serde(default)]
+    pub direction: String,
+    /// Fit window [t0, t1], s.
+    #[serde(default)]
+    pub fit_window_s: [f64; 2],
+    /// How the window was chosen ("auto", "auto_fallback", "user").
+    #[serde(default)]
+    pub fit_window_source: String,
+    /// Crossover time to the diffusive regime, s, if the MSD showed one.
+    #[serde(default)]
+    pub crossover_time_s: Option<f64>,
+    /// `true` when D_eff is an apparent value (not diffusive in the window).
+    #[serde(default)]
+    pub apparent: bool,
+    /// The run's duration, s.
+    #[serde(default)]
+    pub duration_s: f64,
+    /// For an apparent value: by how much to lengthen the run.
+    #[serde(default)]
+    pub lengthen_run_by: Option<f64>,
     /// Model predictions of D_eff/D0 for this scenario.
     pub models: BTreeMap<String, f64>,
     /// Trajectory file, relative to the output folder.
     pub trajectory: String,
+}
+
+/// One seed's fit within a summary row.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct SeedFit {
+    /// Seed.
+    pub seed: i64,
+    /// D_eff/D0.
+    pub d_eff_over_d0: f64,
+    /// Its 95 % interval.
+    pub d_eff_over_d0_ci95: [f64; 2],
+    /// Long-time exponent in the window.
+    pub alpha_long: f64,
+    /// Fit window [t0, t1], s.
+    pub fit_window_s: [f64; 2],
+    /// `true` when D_eff is an apparent value.
+    pub apparent: bool,
+    /// For an apparent value: by how much to lengthen the run.
+    pub lengthen_run_by: Option<f64>,
 }
 
 /// One grid point, all seeds combined.
@@ -157,6 +196,20 @@ pub struct SummaryRow {
     pub d_eff_over_d0_ci95: [f64; 2],
     /// Mean long-time exponent.
     pub alpha_long: f64,
+    /// Which diffusivity D_eff is (e.g. "lateral (x, y)").
+    pub direction: String,
+    /// `true` when any seed's D_eff is an apparent value, so the combined
+    /// value is one too.
+    pub apparent: bool,
+    /// Seeds whose D_eff is an apparent value.
+    pub apparent_seeds: Vec<i64>,
+    /// Shortest and longest lag of the seeds' fit windows, s.
+    pub fit_window_s: [f64; 2],
+    /// For an apparent point: by how much to lengthen the runs (the
+    /// largest factor over its seeds).
+    pub lengthen_run_by: Option<f64>,
+    /// Each seed's fit.
+    pub per_seed: Vec<SeedFit>,
     /// Model predictions of D_eff/D0 (from the first seed's scenario).
     pub models: BTreeMap<String, f64>,
 }
@@ -178,6 +231,9 @@ pub struct Summary {
     pub free_volume_gamma_se: Option<f64>,
     /// Points of the grid with no result yet (an unfinished shard).
     pub missing_points: Vec<usize>,
+    /// One line per point whose D_eff is an apparent value, saying which
+    /// seeds and by how much to lengthen the runs.
+    pub too_short: Vec<String>,
     /// The usual caution.
     pub caution: String,
 }
@@ -373,6 +429,11 @@ fn run_point(
         .d0_m2_per_s
         .ok_or_else(|| fail("the trajectory does not give D0".into()))?;
     let species_name = report.species.clone();
+    let duration_s = scenario.steps as f64 * scenario.dt_s;
+    let lengthen_run_by = report.apparent.then(|| {
+        let estimate = crate::run_length::long_time_regime(&scenario, &species_name);
+        crate::run_length::lengthen_factor(duration_s, report.crossover_time_s, estimate.as_ref())
+    });
     let result = PointResult {
         point,
         seed,
@@ -387,7 +448,17 @@ fn run_point(
         d_eff_ci95_m2_per_s: report.d_eff_ci95_m2_per_s,
         d_eff_over_d0: report.d_eff_m2_per_s / d0,
         alpha_long: report.alpha_long,
-        models: scenario_models(&scenario, &species_name),
+        direction: report.direction.clone(),
+        fit_window_s: report.fit_window_s,
+        fit_window_source: serde_json::to_value(report.fit_window_source)
+            .ok()
+            .and_then(|v| v.as_str().map(String::from))
+            .unwrap_or_default(),
+        crossover_time_s: report.crossover_time_s,
+        apparent: report.apparent,
+        duration_s,
+        lengthen_run_by,
+        models: report.models.clone(),
         trajectory: rel,
     };
     let json_path = point_json(dir, point, seed);
@@ -425,6 +496,20 @@ pub fn summarize(sweep: &Sweep, dir: &Path) -> Result<Summary> {
         rows.push(combine(point, &results));
     }
     let (gamma, gamma_se) = fit_gamma(sweep, &rows);
+    let too_short = rows
+        .iter()
+        .filter(|r| r.apparent)
+        .map(|r| {
+            let values: Vec<String> = r.values.iter().map(|(k, v)| format!("{k} = {v}")).collect();
+            format!(
+                "point {} ({}): D_eff is an apparent value for seed(s) {:?} — the MSD was not diffusive in the fit window; lengthen integrator.steps about ×{:.1}",
+                r.point,
+                values.join(", "),
+                r.apparent_seeds,
+                r.lengthen_run_by.unwrap_or(2.0)
+            )
+        })
+        .collect();
     Ok(Summary {
         title: sweep.title.clone(),
         sweep_file: sweep.file.display().to_string(),
@@ -433,6 +518,7 @@ pub fn summarize(sweep: &Sweep, dir: &Path) -> Result<Summary> {
         free_volume_gamma: gamma,
         free_volume_gamma_se: gamma_se,
         missing_points: missing,
+        too_short,
         caution: CAUTION.into(),
     })
 }
@@ -475,12 +561,48 @@ fn combine(point: usize, results: &[PointResult]) -> SummaryRow {
         d_eff_over_d0: d / d0,
         d_eff_over_d0_ci95: [ci[0] / d0, ci[1] / d0],
         alpha_long: results.iter().map(|r| r.alpha_long).sum::<f64>() / results.len() as f64,
+        direction: results[0].direction.clone(),
+        apparent: results.iter().any(|r| r.apparent),
+        apparent_seeds: results
+            .iter()
+            .filter(|r| r.apparent)
+            .map(|r| r.seed)
+            .collect(),
+        fit_window_s: [
+            results
+                .iter()
+                .map(|r| r.fit_window_s[0])
+                .fold(f64::INFINITY, f64::min),
+            results
+                .iter()
+                .map(|r| r.fit_window_s[1])
+                .fold(0.0, f64::max),
+        ],
+        lengthen_run_by: results
+            .iter()
+            .filter_map(|r| r.lengthen_run_by)
+            .reduce(f64::max),
+        per_seed: results
+            .iter()
+            .map(|r| SeedFit {
+                seed: r.seed,
+                d_eff_over_d0: r.d_eff_over_d0,
+                d_eff_over_d0_ci95: [
+                    r.d_eff_ci95_m2_per_s[0] / r.d0_m2_per_s,
+                    r.d_eff_ci95_m2_per_s[1] / r.d0_m2_per_s,
+                ],
+                alpha_long: r.alpha_long,
+                fit_window_s: r.fit_window_s,
+                apparent: r.apparent,
+                lengthen_run_by: r.lengthen_run_by,
+            })
+            .collect(),
         models: results[0].models.clone(),
     }
 }
 
 /// Fits γ of the free-volume form to D_eff/D0 against the first key when
-/// that key's values are fractions in [0, 1).
+/// that key's values are fractions in [0, 1), leaving out apparent values.
 fn fit_gamma(sweep: &Sweep, rows: &[SummaryRow]) -> (Option<f64>, Option<f64>) {
     let key = &sweep.keys[0];
     if !key.ends_with("volume_fraction") {
@@ -497,7 +619,8 @@ fn fit_gamma(sweep: &Sweep, rows: &[SummaryRow]) -> (Option<f64>, Option<f64>) {
         else {
             continue;
         };
-        if phi <= 0.0 || phi >= 1.0 || r.d_eff_over_d0 <= 0.0 {
+        // Apparent values are biased towards D0; they would bend γ.
+        if phi <= 0.0 || phi >= 1.0 || r.d_eff_over_d0 <= 0.0 || r.apparent {
             continue;
         }
         let half = (r.d_eff_over_d0_ci95[1] - r.d_eff_over_d0_ci95[0]) / 2.0;
@@ -549,6 +672,12 @@ pub fn write_summary(summary: &Summary, dir: &Path) -> Result<Vec<PathBuf>> {
             "d_eff_over_d0_ci95_low",
             "d_eff_over_d0_ci95_high",
             "alpha_long",
+            "direction",
+            "fit_window_t0_s",
+            "fit_window_t1_s",
+            "apparent",
+            "apparent_seeds",
+            "lengthen_run_by",
         ]
         .map(String::from),
     );
@@ -584,6 +713,22 @@ pub fn write_summary(summary: &Summary, dir: &Path) -> Result<Vec<PathBuf>> {
             fields.push(format!("{v:e}"));
         }
         fields.insert(1 + summary.keys.len(), r.seeds.to_string());
+        fields.push(csv_field(&r.direction));
+        fields.push(format!("{:e}", r.fit_window_s[0]));
+        fields.push(format!("{:e}", r.fit_window_s[1]));
+        fields.push(if r.apparent { "yes" } else { "no" }.into());
+        fields.push(
+            r.apparent_seeds
+                .iter()
+                .map(|s| s.to_string())
+                .collect::<Vec<_>>()
+                .join(";"),
+        );
+        fields.push(
+            r.lengthen_run_by
+                .map(|f| format!("{f:.2}"))
+                .unwrap_or_default(),
+        );
         for m in &model_names {
             fields.push(
                 r.models

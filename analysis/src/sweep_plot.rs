@@ -41,7 +41,26 @@ pub fn sweep_figure(summary: &Summary) -> Figure {
         label: "simulation D_eff/D0".into(),
         dashed: false,
         markers: true,
+        line: true,
     }];
+    let apparent: Vec<(f64, f64)> = pts
+        .iter()
+        .filter(|(_, r)| r.apparent)
+        .map(|(x, r)| (*x, r.d_eff_over_d0))
+        .collect();
+    if !apparent.is_empty() {
+        curves.push(Curve {
+            points: apparent,
+            colour: Colour {
+                rgb: (230, 85, 13),
+                opacity: 1.0,
+            },
+            label: "apparent value: MSD not diffusive in the fit window".into(),
+            dashed: false,
+            markers: true,
+            line: false,
+        });
+    }
     let mut names: Vec<&String> = pts.iter().flat_map(|(_, r)| r.models.keys()).collect();
     names.sort();
     names.dedup();
@@ -59,6 +78,7 @@ pub fn sweep_figure(summary: &Summary) -> Figure {
             label: (*name).clone(),
             dashed: true,
             markers: false,
+            line: true,
         });
     }
     if let Some(gamma) = summary.free_volume_gamma {
@@ -75,6 +95,7 @@ pub fn sweep_figure(summary: &Summary) -> Figure {
             label: format!("free volume, fitted γ = {gamma:.3}"),
             dashed: true,
             markers: false,
+            line: true,
         });
     }
     let ymax = pts
@@ -144,8 +165,8 @@ pub fn summary_table(summary: &Summary) -> String {
         out.push_str(&format!("  {k:>w$}"));
     }
     out.push_str(&format!(
-        "  {:>5}  {:>9}  {:>19}  {:>6}",
-        "seeds", "D_eff/D0", "95 % interval", "α"
+        "  {:>5}  {:>9}  {:>19}  {:>6}  {:>19}  {:>8}",
+        "seeds", "D_eff/D0", "95 % interval", "α", "fit window / s", "fit"
     ));
     for (i, _) in names.iter().enumerate() {
         out.push_str(&format!("  {:>8}", format!("model {}", i + 1)));
@@ -164,6 +185,11 @@ pub fn summary_table(summary: &Summary) -> String {
             r.d_eff_over_d0_ci95[1],
             r.alpha_long
         ));
+        out.push_str(&format!(
+            "  {:>19}  {:>8}",
+            format!("{:.2e}–{:.2e}", r.fit_window_s[0], r.fit_window_s[1]),
+            if r.apparent { "APPARENT" } else { "ok" }
+        ));
         for n in &names {
             out.push_str(&format!(
                 "  {:>8.4}",
@@ -174,6 +200,14 @@ pub fn summary_table(summary: &Summary) -> String {
     }
     for (i, n) in names.iter().enumerate() {
         out.push_str(&format!("  model {}: {n}\n", i + 1));
+    }
+    if let Some(d) = summary.points.first().map(|r| &r.direction) {
+        if !d.is_empty() {
+            out.push_str(&format!("  D_eff is the {d} diffusivity\n"));
+        }
+    }
+    for line in &summary.too_short {
+        out.push_str(&format!("  {line}\n"));
     }
     if let (Some(g), Some(se)) = (summary.free_volume_gamma, summary.free_volume_gamma_se) {
         out.push_str(&format!("  free-volume fit exp(−γ φ/(1−φ)): γ = {g:.3} ± {se:.3} (fitted to these points, not a prediction)\n"));

@@ -4,6 +4,7 @@ mod analysis;
 mod bad_input;
 mod file_format;
 mod free;
+mod results;
 mod resume;
 mod support;
 mod threads;
