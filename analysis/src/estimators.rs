@@ -184,6 +184,9 @@ pub struct Report {
     pub file: String,
     /// The analysed species.
     pub species: String,
+    /// The stored scenario in a line (file, species, obstacles, geometry,
+    /// seed), when the file holds one.
+    pub scenario: Option<String>,
     /// Particles analysed.
     pub particles: usize,
     /// Frames analysed.
@@ -448,6 +451,9 @@ pub fn analyze(
     let report = Report {
         file: path.display().to_string(),
         species: meta.name.clone(),
+        scenario: scenario
+            .as_ref()
+            .map(|s| crate::report::scenario_line(s, &meta.name)),
         particles: meta.particles,
         frames: meta.frames,
         frames_planned: meta.frames_planned,

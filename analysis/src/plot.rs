@@ -1,18 +1,21 @@
-//! Plots of an analysis: MSD/τ against τ and α(τ) against τ, each as SVG
-//! and PNG.
+//! Plots: MSD/τ against τ, α(τ) against τ, the van Hove distribution,
+//! and (in `sweep_plot`) D_eff/D0 against a swept key, each as SVG and PNG.
 //!
-//! Both plots are first described as a [`Figure`] (data in plot units), then
-//! rendered twice: the SVG by a small writer of our own, whose text is SVG
-//! text and so needs no font file; the PNG by `plotters`, whose text needs a
-//! TrueType font at run time. The PNG looks for one in a few standard
-//! places (or the file named by the environment variable `THICKET_FONT`)
-//! and is drawn without text if none is found.
+//! A plot is first described as a [`Figure`] (data in plot units), then
+//! drawn once, as SVG, by a small writer of our own; the PNG is that SVG
+//! rasterised (resvg), so both files show the same ticks, labels and legend.
+//! SVG text needs no font file; PNG text needs a TrueType font at run time,
+//! looked for in a few standard places (or the file named by the
+//! environment variable `THICKET_FONT`), and the PNG is drawn without text
+//! if none is found.
+//!
+//! Log axes carry ticks at 1, 2 and 5 times each power of ten (labelled)
+//! and at the other integers (unlabelled); labels are written as
+//! "2·10⁻⁵", never as floating-point noise.
 
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
-
-use plotters::prelude::*;
 
 use crate::error::{ErrorKind, Result};
 use crate::estimators::{Report, NM2_PER_S_IN_M2_PER_S};
@@ -73,10 +76,6 @@ impl Colour {
 
     fn svg(&self) -> String {
         format!("rgb({},{},{})", self.rgb.0, self.rgb.1, self.rgb.2)
-    }
-
-    fn plotters(&self) -> RGBAColor {
-        RGBColor(self.rgb.0, self.rgb.1, self.rgb.2).mix(self.opacity)
     }
 }
 
@@ -175,25 +174,34 @@ fn output_error(path: &Path, e: impl std::fmt::Display) -> crate::error::Error {
     .into()
 }
 
-/// Registers a TrueType font for PNG text once; `false` if none was found.
+/// `true` when a TrueType font for PNG text was found.
 pub fn png_font_available() -> bool {
-    static READY: OnceLock<bool> = OnceLock::new();
-    *READY.get_or_init(|| {
+    !font_database().is_empty()
+}
+
+/// The font of PNG text, loaded once: `THICKET_FONT` or the first of
+/// [`FONT_CANDIDATES`] that loads, registered as the family the SVG names.
+fn font_database() -> &'static resvg::usvg::fontdb::Database {
+    static DB: OnceLock<resvg::usvg::fontdb::Database> = OnceLock::new();
+    DB.get_or_init(|| {
+        let mut db = resvg::usvg::fontdb::Database::new();
         let from_env = std::env::var_os("THICKET_FONT").map(PathBuf::from);
         let candidates = from_env
             .into_iter()
             .chain(FONT_CANDIDATES.iter().map(PathBuf::from));
         for path in candidates {
-            let Ok(bytes) = std::fs::read(&path) else {
-                continue;
-            };
-            // plotters keeps font data for the life of the program.
-            let bytes: &'static [u8] = Box::leak(bytes.into_boxed_slice());
-            if plotters::style::register_font(FAMILY, FontStyle::Normal, bytes).is_ok() {
-                return true;
+            if db.load_font_file(&path).is_ok() && !db.is_empty() {
+                let family = db
+                    .faces()
+                    .next()
+                    .and_then(|f| f.families.first().map(|(name, _)| name.clone()));
+                if let Some(family) = family {
+                    db.set_sans_serif_family(family);
+                }
+                break;
             }
         }
-        false
+        db
     })
 }
 
@@ -211,6 +219,17 @@ fn report_axes(msd: &Msd, report: &Report) -> Vec<usize> {
     } else {
         axes
     }
+}
+
+/// What a figure shows, for its title: the scenario line, or the species
+/// and file of a trajectory without one.
+fn context(report: &Report) -> String {
+    report.scenario.clone().unwrap_or_else(|| {
+        let file = Path::new(&report.file)
+            .file_name()
+            .map_or_else(String::new, |f| f.to_string_lossy().into_owned());
+        format!("'{}' in {file}", report.species)
+    })
 }
 
 /// The apparent-value caveat for a figure's title.
@@ -252,6 +271,7 @@ fn log_x_range(t: &[f64]) -> [f64; 2] {
 pub fn msd_figure(msd: &Msd, report: &Report) -> Figure {
     let axes = report_axes(msd, report);
     let d2 = 2.0 * axes.len() as f64;
+    // In m²/s here; shown in µm²/s (× 1e12), with a power of ten only when far from 1.
     let to_si = |msd_nm2: f64, t: f64| msd_nm2 * NM2_PER_S_IN_M2_PER_S / t;
     let ta: Vec<(f64, f64)> = msd
         .lag_times_s
@@ -275,8 +295,9 @@ pub fn msd_figure(msd: &Msd, report: &Report) -> Figure {
         ymax = ymax.max(d2 * d0);
     }
     ymax = ymax.max(d2 * report.d_eff_ci95_m2_per_s[1]);
-    let e = decade(ymax);
-    let scale = 10f64.powi(-e);
+    let e = decade(ymax * 1e12);
+    let e = if (-1..=3).contains(&e) { 0 } else { e };
+    let scale = 1e12 * 10f64.powi(-e);
     let sc = |pts: Vec<(f64, f64)>| {
         pts.into_iter()
             .map(|(x, y)| (x, y * scale))
@@ -286,15 +307,17 @@ pub fn msd_figure(msd: &Msd, report: &Report) -> Figure {
     let dims = axes.len();
     let mut fig = Figure {
         title: format!(
-            "MSD/τ of '{}', {} ({} particles, {} frames){}",
-            report.species,
+            "MSD/τ, {} — {}{}",
             report.direction,
-            report.particles,
-            report.frames,
+            context(report),
             apparent_note(report)
         ),
-        x_label: "lag τ (s)".into(),
-        y_label: format!("MSD/τ (1e{e} m²/s)"),
+        x_label: "lag τ / s".into(),
+        y_label: if e == 0 {
+            "MSD/τ / (µm² s⁻¹)".into()
+        } else {
+            format!("MSD/τ / ({} µm² s⁻¹)", fmt_power_tick(1, e))
+        },
         x_range,
         x_log: true,
         y_range: [0.0, ymax * scale * 1.15 + f64::MIN_POSITIVE],
@@ -373,12 +396,12 @@ pub fn alpha_figure(msd: &Msd, report: &Report) -> Figure {
     }
     Figure {
         title: format!(
-            "local exponent α(τ) of '{}', {}{}",
-            report.species,
+            "local exponent α(τ), {} — {}{}",
             report.direction,
+            context(report),
             apparent_note(report)
         ),
-        x_label: "lag τ (s)".into(),
+        x_label: "lag τ / s".into(),
         y_label: "α = d ln MSD / d ln τ".into(),
         x_range: log_x_range(&msd.lag_times_s),
         x_log: true,
@@ -491,15 +514,14 @@ pub fn render_svg(fig: &Figure) -> String {
             band.colour.opacity
         );
     }
-    // Grid lines at decades (or linear ticks) of x and at the y ticks.
-    let decades: Vec<f64> = if fig.x_log {
-        (lx0.ceil() as i32..=lx1.floor() as i32)
-            .map(|k| 10f64.powi(k))
-            .collect()
-    } else {
-        linear_ticks(lx0, lx1)
-    };
-    for &x in &decades {
+    // Grid lines at the labelled x ticks and at the y ticks.
+    let xticks = x_ticks(fig);
+    let labelled: Vec<f64> = xticks
+        .iter()
+        .filter(|t| t.1.is_some())
+        .map(|t| t.0)
+        .collect();
+    for &x in &labelled {
         let _ = writeln!(
             s,
             r##"<line x1="{0:.2}" y1="{top}" x2="{0:.2}" y2="{1}" stroke="#ddd"/>"##,
@@ -575,20 +597,28 @@ pub fn render_svg(fig: &Figure) -> String {
         s,
         r#"<rect x="{left}" y="{top}" width="{pw}" height="{ph}" fill="none" stroke="black"/>"#
     );
-    for &x in &decades {
-        let xp = px(x);
-        let _ = writeln!(
-            s,
-            r#"<line x1="{xp:.2}" y1="{0}" x2="{xp:.2}" y2="{1}" stroke="black"/><text x="{xp:.2}" y="{2}" font-size="13" text-anchor="middle">{3}</text>"#,
-            top + ph,
-            top + ph + 6.0,
-            top + ph + 20.0,
-            if fig.x_log {
-                format!("1e{}", x.log10().round() as i32)
-            } else {
-                fmt_tick(x)
+    for (x, label) in &xticks {
+        let xp = px(*x);
+        match label {
+            Some(text) => {
+                let _ = writeln!(
+                    s,
+                    r#"<line class="xtick" x1="{xp:.2}" y1="{0}" x2="{xp:.2}" y2="{1}" stroke="black"/><text class="xlabel" x="{xp:.2}" y="{2}" font-size="13" text-anchor="middle">{3}</text>"#,
+                    top + ph,
+                    top + ph + 6.0,
+                    top + ph + 20.0,
+                    escape(text)
+                );
             }
-        );
+            None => {
+                let _ = writeln!(
+                    s,
+                    r#"<line class="xminor" x1="{xp:.2}" y1="{0}" x2="{xp:.2}" y2="{1}" stroke="black"/>"#,
+                    top + ph,
+                    top + ph + 3.0
+                );
+            }
+        }
     }
     for &y in &yticks {
         let yp = py(y);
@@ -673,6 +703,53 @@ pub fn render_svg(fig: &Figure) -> String {
     s
 }
 
+/// x ticks of a figure: (value, label) with labels on the major ticks.
+/// A log axis has majors at 1, 2 and 5 × 10^k (only 10^k when it spans
+/// more than three decades) and unlabelled minors at the other integers.
+pub fn x_ticks(fig: &Figure) -> Vec<(f64, Option<String>)> {
+    let [lo, hi] = fig.x_range;
+    if !fig.x_log {
+        return linear_ticks(lo, hi)
+            .into_iter()
+            .map(|v| (v, Some(fmt_tick(v))))
+            .collect();
+    }
+    if !(lo > 0.0 && hi > lo && hi.is_finite()) {
+        return Vec::new();
+    }
+    let (k0, k1) = (lo.log10().floor() as i32, hi.log10().ceil() as i32);
+    let wide = hi.log10() - lo.log10() > 3.0;
+    let mut out = Vec::new();
+    for k in k0..=k1 {
+        for m in 1..=9 {
+            let v = f64::from(m) * 10f64.powi(k);
+            if v < lo || v > hi {
+                continue;
+            }
+            let major = m == 1 || (!wide && (m == 2 || m == 5));
+            out.push((v, major.then(|| fmt_power_tick(m, k))));
+        }
+    }
+    out
+}
+
+/// "10⁻⁵" for m = 1, "2·10⁻⁵" otherwise.
+fn fmt_power_tick(m: i32, k: i32) -> String {
+    const SUPERSCRIPT: [char; 10] = ['⁰', '¹', '²', '³', '⁴', '⁵', '⁶', '⁷', '⁸', '⁹'];
+    let mut power = String::from("10");
+    if k < 0 {
+        power.push('⁻');
+    }
+    for d in k.unsigned_abs().to_string().chars() {
+        power.push(SUPERSCRIPT[d.to_digit(10).unwrap_or(0) as usize]);
+    }
+    if m == 1 {
+        power
+    } else {
+        format!("{m}·{power}")
+    }
+}
+
 fn fmt_tick(v: f64) -> String {
     let s = format!("{v:.3}");
     let s = s.trim_end_matches('0').trim_end_matches('.');
@@ -683,170 +760,39 @@ fn fmt_tick(v: f64) -> String {
     }
 }
 
-/// Renders a figure as PNG with plotters; without `text`, titles, labels
-/// and the legend are left out (no font is needed then).
+/// Renders a figure as PNG by rasterising the SVG of [`render_svg`], so
+/// the two files show the same chart: ticks, labels, legend and all.
+/// Without `text`, the text elements are left out (no font is needed then).
 ///
 /// # Errors
-/// [`ErrorKind::Output`] if drawing or writing fails.
+/// [`ErrorKind::Output`] if rasterising or writing fails.
 pub fn render_png(fig: &Figure, path: &Path, text: bool) -> Result<()> {
-    let err = |e: &dyn std::fmt::Display| output_error(path, e);
-    let root = BitMapBackend::new(path, (WIDTH, HEIGHT)).into_drawing_area();
-    root.fill(&WHITE).map_err(|e| err(&e))?;
-    // Plot in linear coordinates of log10(x) for a log axis, so one code path serves both.
-    let fx = |x: f64| if fig.x_log { x.log10() } else { x };
-    let [x0, x1] = [fx(fig.x_range[0]), fx(fig.x_range[1])];
-    let [y0, y1] = fig.y_range;
-    let mut builder = ChartBuilder::on(&root);
-    builder.margin(15);
+    use resvg::{tiny_skia, usvg};
+    let mut svg = render_svg(fig);
+    if !text {
+        svg = strip_text(&svg);
+    }
+    let mut options = usvg::Options {
+        font_family: FAMILY.into(),
+        ..usvg::Options::default()
+    };
     if text {
-        builder
-            .caption(&fig.title, (FAMILY, 20))
-            .x_label_area_size(45)
-            .y_label_area_size(65);
-    } else {
-        builder.x_label_area_size(5).y_label_area_size(5);
+        *options.fontdb_mut() = font_database().clone();
     }
-    let mut chart = builder
-        .build_cartesian_2d(x0..x1, y0..y1)
-        .map_err(|e| err(&e))?;
-    if text {
-        chart
-            .configure_mesh()
-            .x_desc(fig.x_label.as_str())
-            .y_desc(fig.y_label.as_str())
-            .x_label_formatter(&|x| {
-                if fig.x_log {
-                    format!("{:.0e}", 10f64.powf(*x))
-                } else {
-                    fmt_tick(*x)
-                }
-            })
-            .label_style((FAMILY, 14))
-            .draw()
-            .map_err(|e| err(&e))?;
-    } else {
-        // Without a font: the frame and decade grid lines only.
-        let decades: Vec<f64> = if fig.x_log {
-            (x0.ceil() as i32..=x1.floor() as i32)
-                .map(f64::from)
-                .collect()
-        } else {
-            linear_ticks(x0, x1)
-        };
-        for x in decades {
-            chart
-                .draw_series(std::iter::once(PathElement::new(
-                    vec![(x, y0), (x, y1)],
-                    RGBColor(221, 221, 221),
-                )))
-                .map_err(|e| err(&e))?;
-        }
-        chart
-            .draw_series(std::iter::once(Rectangle::new(
-                [(x0, y0), (x1, y1)],
-                BLACK.stroke_width(1),
-            )))
-            .map_err(|e| err(&e))?;
-    }
-    for (span, c, label) in &fig.x_spans {
-        let a = fx(span[0]).max(x0);
-        let b = fx(span[1]).min(x1);
-        let colour = c.plotters();
-        let series = chart
-            .draw_series(std::iter::once(Rectangle::new(
-                [(a, y0), (b, y1)],
-                colour.filled(),
-            )))
-            .map_err(|e| err(&e))?;
-        if text {
-            series.label(label.as_str()).legend(move |(x, y)| {
-                Rectangle::new([(x, y - 5), (x + 20, y + 5)], colour.filled())
-            });
-        }
-    }
-    for band in &fig.bands {
-        if band.points.len() < 2 {
-            continue;
-        }
-        let mut poly: Vec<(f64, f64)> = band.points.iter().map(|&(x, _, hi)| (fx(x), hi)).collect();
-        poly.extend(band.points.iter().rev().map(|&(x, lo, _)| (fx(x), lo)));
-        let colour = band.colour.plotters();
-        let series = chart
-            .draw_series(std::iter::once(Polygon::new(poly, colour.filled())))
-            .map_err(|e| err(&e))?;
-        if text {
-            series.label(band.label.as_str()).legend(move |(x, y)| {
-                Rectangle::new([(x, y - 5), (x + 20, y + 5)], colour.filled())
-            });
-        }
-    }
-    for l in &fig.hlines {
-        let colour = l.colour.plotters();
-        let series = chart
-            .draw_series(DashedLineSeries::new(
-                vec![(x0, l.y), (x1, l.y)],
-                8,
-                5,
-                colour.stroke_width(2),
-            ))
-            .map_err(|e| err(&e))?;
-        if text {
-            series.label(l.label.as_str()).legend(move |(x, y)| {
-                PathElement::new(vec![(x, y), (x + 20, y)], colour.stroke_width(2))
-            });
-        }
-    }
-    for c in &fig.curves {
-        let pts: Vec<(f64, f64)> = c
-            .points
-            .iter()
-            .copied()
-            .filter(|p| (p.0 > 0.0 || !fig.x_log) && p.1.is_finite())
-            .map(|(x, y)| (fx(x), y))
-            .collect();
-        let colour = c.colour.plotters();
-        let style = colour.stroke_width(2);
-        if !c.line {
-            let series = chart
-                .draw_series(
-                    pts.iter()
-                        .map(|&p| Circle::new(p, 5, colour.stroke_width(2))),
-                )
-                .map_err(|e| err(&e))?;
-            if text {
-                series
-                    .label(c.label.as_str())
-                    .legend(move |(x, y)| Circle::new((x + 10, y), 5, colour.stroke_width(2)));
-            }
-            continue;
-        }
-        let series = if c.dashed {
-            chart.draw_series(DashedLineSeries::new(pts.clone(), 6, 4, style))
-        } else {
-            chart.draw_series(LineSeries::new(pts.clone(), style))
-        }
-        .map_err(|e| err(&e))?;
-        if text {
-            series.label(c.label.as_str()).legend(move |(x, y)| {
-                PathElement::new(vec![(x, y), (x + 20, y)], colour.stroke_width(2))
-            });
-        }
-        if c.markers {
-            chart
-                .draw_series(pts.iter().map(|&p| Circle::new(p, 2, colour.filled())))
-                .map_err(|e| err(&e))?;
-        }
-    }
-    if text {
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.85))
-            .border_style(BLACK)
-            .label_font((FAMILY, 13))
-            .draw()
-            .map_err(|e| err(&e))?;
-    }
-    root.present().map_err(|e| err(&e))?;
-    Ok(())
+    let tree = usvg::Tree::from_str(&svg, &options).map_err(|e| output_error(path, e))?;
+    let mut pixmap = tiny_skia::Pixmap::new(WIDTH, HEIGHT)
+        .ok_or_else(|| output_error(path, "cannot allocate the image"))?;
+    resvg::render(&tree, tiny_skia::Transform::default(), &mut pixmap.as_mut());
+    pixmap.save_png(path).map_err(|e| output_error(path, e))
+}
+
+/// The SVG without its `<text>` elements.
+fn strip_text(svg: &str) -> String {
+    svg.lines()
+        .map(|l| match (l.find("<text"), l.rfind("</text>")) {
+            (Some(a), Some(b)) => format!("{}{}", &l[..a], &l[b + "</text>".len()..]),
+            _ => l.to_string(),
+        })
+        .collect::<Vec<_>>()
+        .join("\n")
 }

@@ -26,3 +26,52 @@ pub fn scenario_of(
     let text = trajectory.run_parameters()?.scenario_toml.clone()?;
     Scenario::from_text(&text, path, &[]).ok()
 }
+
+/// One line naming a scenario and its point, for plot titles and tables:
+/// the scenario file, the species, and what crowds or confines it.
+pub fn scenario_line(scenario: &Scenario, species: &str) -> String {
+    use thicket_engine::obstacles::{ObstacleSpec, RadiusDistribution, Target};
+    let file = scenario
+        .source
+        .file_name()
+        .map_or_else(String::new, |f| f.to_string_lossy().into_owned());
+    let mut parts = vec![file];
+    if let Some(s) = scenario.species.iter().find(|s| s.name == species) {
+        parts.push(format!("{species} a = {} nm", s.radius_nm));
+    }
+    match &scenario.obstacles {
+        Some(ObstacleSpec::Generated {
+            generator,
+            radii,
+            target,
+        }) => {
+            let amount = match target {
+                Target::VolumeFraction(phi) => format!("φ = {phi}"),
+                Target::Count(n) => format!("{n} spheres"),
+            };
+            let radius = match radii {
+                RadiusDistribution::Fixed { radius_nm } => format!(", b = {radius_nm} nm"),
+                _ => String::new(),
+            };
+            parts.push(format!("{} obstacles {amount}{radius}", generator.name()));
+        }
+        Some(ObstacleSpec::File { path, .. }) => parts.push(format!(
+            "obstacles from {}",
+            path.file_name()
+                .map_or_else(String::new, |f| f.to_string_lossy().into_owned())
+        )),
+        None => {}
+    }
+    if let Some(f) = &scenario.fibres {
+        let amount = match f.target {
+            Target::VolumeFraction(phi) => format!("φ_f = {phi}"),
+            Target::Count(n) => format!("{n}"),
+        };
+        parts.push(format!("fibres {amount}, r_f = {} nm", f.radius_nm));
+    }
+    if let Some(g) = &scenario.geometry {
+        parts.push(g.shape.kind().replace('_', " "));
+    }
+    parts.push(format!("seed {}", scenario.seed));
+    parts.join("; ")
+}

@@ -41,7 +41,7 @@ fn writes_svg_and_png_for_msd_and_alpha() {
             let svg = String::from_utf8(bytes).unwrap();
             assert!(svg.starts_with("<svg") && svg.trim_end().ends_with("</svg>"));
             assert!(
-                svg.contains("<text") && svg.contains("lag τ (s)"),
+                svg.contains("<text") && svg.contains("lag τ / s"),
                 "SVG must carry its labels"
             );
         }
