@@ -33,7 +33,7 @@ pub fn models(phi: &str, size_ratio: f64, lambda: &str, as_json: bool) -> Result
     anyhow::ensure!(size_ratio.is_finite() && size_ratio >= 0.0, "--size-ratio {size_ratio}: the tracer-to-obstacle radius ratio a/b must be a finite number ≥ 0");
     let mut crowd = Vec::new();
     for &p in &phis {
-        // The obstacle phase seen by the tracer centre has radius a + b (REFERENCE.md).
+        // The obstacle phase seen by the tracer centre has radius a + b (REFERENCES.md).
         let phi_excl = p * (1.0 + size_ratio).powi(3);
         let spheres = models::crowding_predictions(phi_excl).with_context(|| {
             format!("--phi {p} with --size-ratio {size_ratio}: the excluded fraction φ(1+a/b)³ = {phi_excl:.4} must be below 1")

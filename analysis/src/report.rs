@@ -10,7 +10,7 @@ use thicket_engine::Scenario;
 ///
 /// - Free diffusion (nothing to touch): 1 by Stokes–Einstein.
 /// - Fixed spheres: the obstruction models at the fraction excluded from the
-///   tracer centre, φ_excl = Σ (4/3)π(a + b_i)³ / V (REFERENCE.md), with
+///   tracer centre, φ_excl = Σ (4/3)π(a + b_i)³ / V (REFERENCES.md), with
 ///   the obstacles placed again from the scenario's seed (as the run did);
 ///   Mackie–Meares at the obstacles' own fraction, its original variable.
 /// - Fibres: Ogston at the fibre volume fraction.
