@@ -1,4 +1,5 @@
 pub mod camera;
+pub mod direct;
 pub mod error;
 pub mod estimators;
 pub mod models;
