@@ -7,3 +7,4 @@ mod free;
 mod resume;
 mod support;
 mod threads;
+mod validate;
