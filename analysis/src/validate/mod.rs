@@ -263,10 +263,14 @@ pub fn run_checks(mode: Mode, dir: &Path, progress: &dyn Fn(Area, &str)) -> Vec<
     for group in groups() {
         progress(group.area, group.title);
         let started = Instant::now();
-        let results = match (group.run)(mode, dir) {
-            Ok(r) if !r.is_empty() => r,
-            Ok(_) => vec![broken(group.title, group.source, "no result")],
-            Err(e) => vec![broken(group.title, group.source, e)],
+        // A check that panics is a failed check, not the end of the others.
+        let attempt =
+            std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| (group.run)(mode, dir)));
+        let results = match attempt {
+            Ok(Ok(r)) if !r.is_empty() => r,
+            Ok(Ok(_)) => vec![broken(group.title, group.source, "no result")],
+            Ok(Err(e)) => vec![broken(group.title, group.source, e)],
+            Err(_) => vec![broken(group.title, group.source, "the check panicked")],
         };
         let seconds = started.elapsed().as_secs_f64();
         out.extend(results.into_iter().map(|mut r| {
@@ -317,4 +321,33 @@ pub fn table(results: &[CheckResult]) -> String {
     let passed = results.iter().filter(|r| r.passed).count();
     s.push_str(&format!("\n{passed} of {} checks passed\n", results.len()));
     s
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn verdicts_follow_the_comparison() {
+        assert!(check("x", "s", 1.0, 1.03, 0.01).standard_errors(4.0).passed);
+        assert!(!check("x", "s", 1.0, 1.05, 0.01).standard_errors(4.0).passed);
+        // A zero standard error cannot back a statistical verdict.
+        assert!(!check("x", "s", 1.0, 1.0, 0.0).standard_errors(4.0).passed);
+        let upper = |m: f64| check("x", "s", 1.0, m, 0.0).bound(Comparison::AtMost, 0.1, "b");
+        assert!(upper(1.05).passed && !upper(1.2).passed && upper(-5.0).passed);
+        let lower = |m: f64| check("x", "s", 1.0, m, 0.0).bound(Comparison::AtLeast, 0.0, "b");
+        assert!(lower(1.0).passed && !lower(0.99).passed);
+        assert!(!check("x", "s", f64::NAN, 1.0, 0.0).printed(1.0, "r").passed);
+    }
+
+    #[test]
+    fn a_band_adds_the_spread_in_quadrature_and_refuses_noise() {
+        let r = check("x", "s", 1.0, 1.0, 0.0075).band(0.03, "3 %");
+        assert!((r.tolerance - 0.03f64.hypot(0.03)).abs() < 1e-15);
+        assert!(r.passed && r.verdict == "pass");
+        // 2 SE beyond the band: too noisy to say anything, so a failure even at the expected value.
+        let r = check("x", "s", 1.0, 1.0, 0.02).band(0.03, "3 %");
+        assert!(!r.passed && r.verdict == "fail");
+        assert!(!broken("x", "s", "no").passed);
+    }
 }
