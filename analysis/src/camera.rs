@@ -872,3 +872,61 @@ fn read_fixed_text(a: &hdf5::Attribute) -> hdf5::Result<String> {
         _ => get::<65536>(a),
     }
 }
+
+/// Simulates the first species of a scenario by free diffusion in memory (no
+/// HDF5) and images it with the scenario's camera, handing the camera
+/// `window` recorded positions at a time. The tracks are those
+/// [`image_trajectory`] gives for the same positions; the self-checks and
+/// tests use it to exercise the camera without a trajectory file.
+///
+/// # Errors
+/// [`TracksError::NoCamera`] when the scenario has no `[camera]`.
+pub fn image_free_in_memory(scenario: &Scenario, window: usize) -> Result<TrackSet, TracksError> {
+    use thicket_engine::integrate::{advance_free, kinetics, State};
+    let camera = Camera::new(scenario)?;
+    let mut kin = kinetics(scenario);
+    // Only the first species is simulated and imaged.
+    kin.truncate(1);
+    let mut state = State::initial(scenario);
+    let n = scenario.species[0].count;
+    let needed = camera.samples_needed();
+    let mut imaging = camera.start(0, 0, n);
+    let mut done = 0;
+    while done < needed {
+        let w = window.max(1).min(needed - done);
+        let mut buf = Array3::<f64>::zeros((w, n, 3));
+        for t in 0..w {
+            if done + t > 0 {
+                advance_free(
+                    &mut state,
+                    &kin,
+                    &scenario.sim_box,
+                    scenario.output.record_every_steps,
+                );
+            }
+            for i in 0..n {
+                let p = state.unwrapped(i, &scenario.sim_box);
+                for k in 0..3 {
+                    buf[[t, i, k]] = p[k];
+                }
+            }
+        }
+        imaging.push(buf.view());
+        done += w;
+    }
+    let species = vec![SpeciesTruth {
+        name: scenario.species[0].name.clone(),
+        d0_m2_per_s: scenario.species[0].d0_m2_per_s,
+    }];
+    Ok(TrackSet::assemble(
+        imaging.finish(),
+        species,
+        camera
+            .region_names()
+            .iter()
+            .map(|r| r.to_string())
+            .collect(),
+        camera.summary(),
+        scenario.resolved_toml.clone(),
+    ))
+}

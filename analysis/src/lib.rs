@@ -1,4 +1,5 @@
 pub mod camera;
+pub mod direct;
 pub mod directions;
 pub mod error;
 pub mod estimators;

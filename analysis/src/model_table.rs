@@ -651,7 +651,7 @@ mod tests {
 
     #[test]
     fn point_tracer_gets_torquato_and_a_large_one_a_reason() {
-        // REFERENCE.md: Torquato's tracer form 0.859 at φ = 0.3 for a point tracer.
+        // REFERENCES.md: Torquato's tracer form 0.859 at φ = 0.3 for a point tracer.
         let point = obstacle_inputs_table(0.3, 0.0);
         let t = point
             .entries

@@ -4,7 +4,7 @@
 //! Every function returns a dimensionless ratio and checks its inputs
 //! cheaply, returning a [`ModelError`] that names the value and the allowed
 //! range. Obstruction models come in two forms that must not be confused
-//! (REFERENCE.md): the *conductivity* form σ_eff/σ0 of a composite, and the
+//! (REFERENCES.md): the *conductivity* form σ_eff/σ0 of a composite, and the
 //! *tracer* form D_eff/D0 that a mean-squared displacement measures, which is
 //! the conductivity divided by the free-volume fraction 1 − φ. Functions say
 //! which form they return in their names.
@@ -20,12 +20,12 @@ pub use thicket_engine::mobility::{
     WallMobilityTable, BRENNER_LUBRICATION_SWITCH_Z_OVER_A,
 };
 
-/// Random close packing of monodisperse spheres, φ ≈ 0.64 (REFERENCE.md):
+/// Random close packing of monodisperse spheres, φ ≈ 0.64 (REFERENCES.md):
 /// no random non-overlapping sphere packing is denser, so the three-point
 /// estimate for such packings is not offered beyond it.
 pub const RANDOM_CLOSE_PACKING: f64 = 0.64;
 
-/// Largest λ for which Dechadilok & Deen (2006) state their fit (REFERENCE.md).
+/// Largest λ for which Dechadilok & Deen (2006) state their fit (REFERENCES.md).
 pub const DECHADILOK_DEEN_MAX_LAMBDA: f64 = 0.95;
 
 /// A model input outside the range where the formula is defined.
@@ -118,7 +118,7 @@ fn positive(name: &'static str, value: f64) -> ModelResult<f64> {
 
 /// Maxwell (1873), **tracer form**: D_eff/D0 = 2/(2 + φ) for a point tracer
 /// among insulating (impermeable) spheres at volume fraction φ ∈ [0, 1)
-/// (REFERENCE.md). This is what an MSD measures; tortuosity 1 + φ/2.
+/// (REFERENCES.md). This is what an MSD measures; tortuosity 1 + φ/2.
 ///
 /// For a tracer of radius a among obstacles of radius b pass the excluded
 /// fraction ([`excluded_volume_fraction`]).
@@ -129,7 +129,7 @@ pub fn maxwell_tracer(phi: f64) -> ModelResult<f64> {
 
 /// Maxwell (1873), **conductivity form**: σ_eff/σ0 = 2(1 − φ)/(2 + φ) for a
 /// composite with insulating spheres at volume fraction φ ∈ [0, 1)
-/// (REFERENCE.md). Not what an MSD measures; see [`maxwell_tracer`].
+/// (REFERENCES.md). Not what an MSD measures; see [`maxwell_tracer`].
 pub fn maxwell_conductivity(phi: f64) -> ModelResult<f64> {
     let phi = fraction("volume fraction phi", phi)?;
     Ok(2.0 * (1.0 - phi) / (2.0 + phi))
@@ -137,7 +137,7 @@ pub fn maxwell_conductivity(phi: f64) -> ModelResult<f64> {
 
 /// Hashin & Shtrikman (1962) upper bound, **conductivity form**, for
 /// insulating non-overlapping inclusions at volume fraction φ ∈ [0, 1)
-/// (REFERENCE.md), written from the general two-phase bound
+/// (REFERENCES.md), written from the general two-phase bound
 /// σ_U = σ1 + φ2 / (1/(σ2 − σ1) + φ1/(3σ1)) with σ2 = 0, σ1 = 1.
 /// It coincides with [`maxwell_conductivity`].
 pub fn hashin_shtrikman_upper_conductivity(phi: f64) -> ModelResult<f64> {
@@ -148,7 +148,7 @@ pub fn hashin_shtrikman_upper_conductivity(phi: f64) -> ModelResult<f64> {
 }
 
 /// Hashin & Shtrikman (1962) upper bound, **tracer form** (conductivity
-/// bound divided by 1 − φ), φ ∈ [0, 1) (REFERENCE.md). It equals
+/// bound divided by 1 − φ), φ ∈ [0, 1) (REFERENCES.md). It equals
 /// [`maxwell_tracer`], 2/(2 + φ): an upper bound that simulations among
 /// random non-overlapping spheres must sit just under.
 pub fn hashin_shtrikman_upper_tracer(phi: f64) -> ModelResult<f64> {
@@ -156,7 +156,7 @@ pub fn hashin_shtrikman_upper_tracer(phi: f64) -> ModelResult<f64> {
 }
 
 /// Mackie & Meares (1955): D_eff/D0 = ((1 − φ)/(1 + φ))², φ ∈ [0, 1)
-/// (REFERENCE.md).
+/// (REFERENCES.md).
 pub fn mackie_meares(phi: f64) -> ModelResult<f64> {
     let phi = fraction("volume fraction phi", phi)?;
     let r = (1.0 - phi) / (1.0 + phi);
@@ -164,7 +164,7 @@ pub fn mackie_meares(phi: f64) -> ModelResult<f64> {
 }
 
 /// Free-volume type model: D_eff/D0 = exp(−γ φ/(1 − φ)), the Cohen–Turnbull
-/// (1959) form applied to the obstacle fraction (REFERENCE.md, from memory).
+/// (1959) form applied to the obstacle fraction (REFERENCES.md, from memory).
 /// γ is an overlap factor of order one that must be fitted
 /// ([`fit_free_volume_gamma`]); it is not a parameter-free prediction.
 /// φ ∈ [0, 1), γ finite.
@@ -191,7 +191,7 @@ pub struct FreeVolumeFit {
     pub points: usize,
 }
 
-/// Fits γ of [`free_volume`] (Cohen–Turnbull 1959 form, REFERENCE.md) by
+/// Fits γ of [`free_volume`] (Cohen–Turnbull 1959 form, REFERENCES.md) by
 /// weighted least squares on ln(ratio), which is linear in γ:
 /// ln(D_eff/D0) = −γ x with x = φ/(1 − φ), a line through the origin, so
 /// γ = −Σ w x ln r / Σ w x² in closed form.
@@ -273,7 +273,7 @@ pub fn fit_free_volume_gamma(
 
 /// Ogston, Preston & Wells (1973), random fibres of radius `fibre_radius`
 /// at volume fraction φ ∈ [0, 1): D_eff/D0 = exp(−√φ · (a + r_f)/r_f) for a
-/// tracer of radius `tracer_radius` a ≥ 0 (REFERENCE.md, from memory).
+/// tracer of radius `tracer_radius` a ≥ 0 (REFERENCES.md, from memory).
 /// Radii in any one length unit; r_f > 0.
 pub fn ogston_fibres(phi: f64, tracer_radius: f64, fibre_radius: f64) -> ModelResult<f64> {
     let phi = fraction("fibre volume fraction phi", phi)?;
@@ -284,7 +284,7 @@ pub fn ogston_fibres(phi: f64, tracer_radius: f64, fibre_radius: f64) -> ModelRe
 
 /// Volume fraction excluded to the centre of a tracer of radius a among
 /// spheres of radius b at number density n: φ_excl = n · (4/3)π(a + b)³
-/// (exact geometry, REFERENCE.md). Use it as φ in the obstruction formulas.
+/// (exact geometry, REFERENCES.md). Use it as φ in the obstruction formulas.
 /// n in 1/length³ and radii in the same length unit, all ≥ 0. For freely
 /// overlapping obstacles it is a reduced density and may exceed 1.
 pub fn excluded_volume_fraction(
@@ -301,7 +301,7 @@ pub fn excluded_volume_fraction(
 
 /// Fraction of space open to the centre of a tracer of radius a among freely
 /// overlapping spheres of radius b placed as Poisson points of density n:
-/// exp(−n · (4/3)π(a + b)³), an exact geometric identity (REFERENCE.md).
+/// exp(−n · (4/3)π(a + b)³), an exact geometric identity (REFERENCES.md).
 /// Arguments as for [`excluded_volume_fraction`].
 pub fn poisson_open_fraction(
     number_density: f64,
@@ -312,7 +312,7 @@ pub fn poisson_open_fraction(
 }
 
 /// Three-point microstructure parameter ζ2 of equilibrium random
-/// non-overlapping (hard) spheres, ζ2 ≈ 0.21068φ − 0.04693φ² (REFERENCE.md;
+/// non-overlapping (hard) spheres, ζ2 ≈ 0.21068φ − 0.04693φ² (REFERENCES.md;
 /// coefficients from memory), φ ∈ [0, 0.64).
 pub fn torquato_zeta2_spheres(phi: f64) -> ModelResult<f64> {
     let phi = packing_fraction(phi)?;
@@ -354,7 +354,7 @@ pub fn torquato_three_point_conductivity(phi: f64, zeta2: f64) -> ModelResult<f6
 /// Torquato's three-point estimate, **tracer form** D_eff/D0, for a point
 /// tracer among random non-overlapping spheres at φ ∈ [0, 0.64):
 /// [`torquato_three_point_conductivity`] with [`torquato_zeta2_spheres`],
-/// divided by 1 − φ. Reproduces the REFERENCE.md values 0.951, 0.904, 0.859,
+/// divided by 1 − φ. Reproduces the REFERENCES.md values 0.951, 0.904, 0.859,
 /// 0.817, 0.777 at φ = 0.1 … 0.5 (first-passage simulations, Kim & Torquato
 /// 1991, match it closely).
 pub fn torquato_tracer(phi: f64) -> ModelResult<f64> {
@@ -363,7 +363,7 @@ pub fn torquato_tracer(phi: f64) -> ModelResult<f64> {
 }
 
 /// Carnahan & Starling (1969) contact value of the hard-sphere radial
-/// distribution function, g(σ⁺) = (1 − φ/2)/(1 − φ)³ (REFERENCE.md).
+/// distribution function, g(σ⁺) = (1 − φ/2)/(1 − φ)³ (REFERENCES.md).
 /// φ ∈ [0, 1); a fluid equation of state, meaningful up to freezing
 /// (φ ≈ 0.49).
 pub fn carnahan_starling_contact(phi: f64) -> ModelResult<f64> {
@@ -374,7 +374,7 @@ pub fn carnahan_starling_contact(phi: f64) -> ModelResult<f64> {
 
 /// Long-time self-diffusion of mobile hard spheres without hydrodynamic
 /// interactions, dilute limit D_L/D0 = 1 − 2φ (Hanna, Hess & Klein 1982;
-/// Ackerson & Fleishman 1982; REFERENCE.md, from memory). φ ∈ [0, 1); only
+/// Ackerson & Fleishman 1982; REFERENCES.md, from memory). φ ∈ [0, 1); only
 /// meaningful for φ ≪ 1.
 pub fn hard_sphere_self_diffusion_dilute(phi: f64) -> ModelResult<f64> {
     let phi = fraction("hard-sphere volume fraction phi", phi)?;
@@ -383,7 +383,7 @@ pub fn hard_sphere_self_diffusion_dilute(phi: f64) -> ModelResult<f64> {
 
 /// Brady (1994) long-time self-diffusion of hard spheres without
 /// hydrodynamic interactions, D_L/D0 ≈ 1/(1 + 2φ g(σ⁺)) with the
-/// Carnahan–Starling contact value (REFERENCE.md). φ ∈ [0, 1). A theory to
+/// Carnahan–Starling contact value (REFERENCES.md). φ ∈ [0, 1). A theory to
 /// compare with, not an oracle.
 pub fn brady_long_time_self_diffusion(phi: f64) -> ModelResult<f64> {
     let g = carnahan_starling_contact(phi)?;
@@ -391,7 +391,7 @@ pub fn brady_long_time_self_diffusion(phi: f64) -> ModelResult<f64> {
 }
 
 /// Steric partition coefficient of a sphere in a cylindrical pore,
-/// Φ = (1 − λ)² with λ = a/r_pore ∈ [0, 1) (exact, REFERENCE.md).
+/// Φ = (1 − λ)² with λ = a/r_pore ∈ [0, 1) (exact, REFERENCES.md).
 pub fn partition_cylinder(lambda: f64) -> ModelResult<f64> {
     let lambda = fraction("size ratio lambda = a/r_pore", lambda)?;
     let open = 1.0 - lambda;
@@ -399,7 +399,7 @@ pub fn partition_cylinder(lambda: f64) -> ModelResult<f64> {
 }
 
 /// Steric partition coefficient of a sphere of radius a in a slit of
-/// half-width h, Φ = 1 − a/h (exact, REFERENCE.md). a ≥ 0, h > 0 (one
+/// half-width h, Φ = 1 − a/h (exact, REFERENCES.md). a ≥ 0, h > 0 (one
 /// length unit), a/h ∈ [0, 1).
 pub fn partition_slit(tracer_radius: f64, half_width: f64) -> ModelResult<f64> {
     let a = non_negative("tracer radius", tracer_radius)?;
@@ -410,7 +410,7 @@ pub fn partition_slit(tracer_radius: f64, half_width: f64) -> ModelResult<f64> {
 
 /// Renkin (1954) centreline hindrance factor of diffusion in a cylindrical
 /// pore, K_d = 1 − 2.104λ + 2.09λ³ − 0.95λ⁵, λ = a/r_pore ∈ [0, 1)
-/// (REFERENCE.md). Centreline, not cross-section averaged.
+/// (REFERENCES.md). Centreline, not cross-section averaged.
 pub fn renkin_centreline_kd(lambda: f64) -> ModelResult<f64> {
     let l = fraction("size ratio lambda = a/r_pore", lambda)?;
     let l2 = l * l;
@@ -419,14 +419,14 @@ pub fn renkin_centreline_kd(lambda: f64) -> ModelResult<f64> {
 
 /// Renkin (1954) hindrance H = Φ · K_d for a cylindrical pore, with
 /// [`partition_cylinder`] and [`renkin_centreline_kd`], λ ∈ [0, 1)
-/// (REFERENCE.md). It includes partitioning, so it scales a membrane flux,
+/// (REFERENCES.md). It includes partitioning, so it scales a membrane flux,
 /// not the axial diffusivity of a particle inside the pore.
 pub fn renkin_hindrance(lambda: f64) -> ModelResult<f64> {
     Ok(partition_cylinder(lambda)? * renkin_centreline_kd(lambda)?)
 }
 
 /// Dechadilok & Deen (2006) diffusive hindrance factor H = Φ · ⟨K_d⟩ for a
-/// cylindrical pore (REFERENCE.md):
+/// cylindrical pore (REFERENCES.md):
 /// H = 1 + (9/8)λ ln λ − 1.56034λ + 0.528155λ² + 1.91521λ³ − 2.81903λ⁴
 /// + 0.270788λ⁵ + 1.10115λ⁶ − 0.435933λ⁷.
 ///
@@ -455,7 +455,7 @@ pub fn dechadilok_deen_hindrance(lambda: f64) -> ModelResult<f64> {
 }
 
 /// Tortuosity τ = D0/D_eff from a measured or predicted D_eff/D0 > 0
-/// (definition, REFERENCE.md: Maxwell's 2/(2 + φ) gives τ = 1 + φ/2).
+/// (definition, REFERENCES.md: Maxwell's 2/(2 + φ) gives τ = 1 + φ/2).
 pub fn tortuosity(d_eff_over_d0: f64) -> ModelResult<f64> {
     Ok(1.0 / positive("D_eff/D0", d_eff_over_d0)?)
 }
@@ -582,11 +582,11 @@ mod tests {
 
     #[test]
     fn maxwell_tracer_matches_reference_and_its_limits() {
-        // REFERENCE.md: Maxwell 2/(2+phi) = 0.952, 0.909, 0.870, 0.833, 0.800 at phi = 0.1 … 0.5
+        // REFERENCES.md: Maxwell 2/(2+phi) = 0.952, 0.909, 0.870, 0.833, 0.800 at phi = 0.1 … 0.5
         for (phi, expected) in PHIS.iter().zip([0.952, 0.909, 0.870, 0.833, 0.800]) {
             close(maxwell_tracer(*phi).unwrap(), expected, 6e-4);
         }
-        // REFERENCE.md: dilute limit D_eff/D0 = 1 − phi/2 + O(phi²): slope −1/2.
+        // REFERENCES.md: dilute limit D_eff/D0 = 1 − phi/2 + O(phi²): slope −1/2.
         let eps = 1e-6;
         close((maxwell_tracer(eps).unwrap() - 1.0) / eps, -0.5, 1e-6);
         assert_eq!(maxwell_tracer(0.0).unwrap(), 1.0);
@@ -594,7 +594,7 @@ mod tests {
 
     #[test]
     fn conductivity_is_tracer_times_free_fraction() {
-        // REFERENCE.md: tracer form = conductivity / (1 − phi); the two must not be confused.
+        // REFERENCES.md: tracer form = conductivity / (1 − phi); the two must not be confused.
         for phi in PHIS {
             let tracer = maxwell_tracer(phi).unwrap();
             let conductivity = maxwell_conductivity(phi).unwrap();
@@ -607,7 +607,7 @@ mod tests {
 
     #[test]
     fn hashin_shtrikman_equals_maxwell_for_insulating_spheres() {
-        // REFERENCE.md: Maxwell is also the Hashin–Shtrikman (1962) upper bound.
+        // REFERENCES.md: Maxwell is also the Hashin–Shtrikman (1962) upper bound.
         for i in 0..100 {
             let phi = f64::from(i) / 100.0;
             close(
@@ -625,7 +625,7 @@ mod tests {
 
     #[test]
     fn tortuosity_of_maxwell_is_one_plus_half_phi() {
-        // REFERENCE.md: tortuosity tau = 1 + phi/2 for the Maxwell tracer form.
+        // REFERENCES.md: tortuosity tau = 1 + phi/2 for the Maxwell tracer form.
         for phi in PHIS {
             close(
                 tortuosity(maxwell_tracer(phi).unwrap()).unwrap(),
@@ -645,7 +645,7 @@ mod tests {
         // Dilute slope of ((1−phi)/(1+phi))² is −4.
         let eps = 1e-7;
         close((mackie_meares(eps).unwrap() - 1.0) / eps, -4.0, 1e-5);
-        // It lies below the Hashin–Shtrikman upper bound (REFERENCE.md).
+        // It lies below the Hashin–Shtrikman upper bound (REFERENCES.md).
         for phi in PHIS {
             assert!(mackie_meares(phi).unwrap() < hashin_shtrikman_upper_tracer(phi).unwrap());
         }
@@ -653,12 +653,12 @@ mod tests {
 
     #[test]
     fn torquato_three_point_matches_reference() {
-        // REFERENCE.md: Torquato three-point estimate 0.951, 0.904, 0.859, 0.817, 0.777
+        // REFERENCES.md: Torquato three-point estimate 0.951, 0.904, 0.859, 0.817, 0.777
         // at phi = 0.1 … 0.5 (zeta2 coefficients from memory); 3 decimals given.
         for (phi, expected) in PHIS.iter().zip([0.951, 0.904, 0.859, 0.817, 0.777]) {
             close(torquato_tracer(*phi).unwrap(), expected, 5e-4);
         }
-        // REFERENCE.md: Maxwell's 2/(2+phi) is an upper bound the estimate sits under.
+        // REFERENCES.md: Maxwell's 2/(2+phi) is an upper bound the estimate sits under.
         for i in 1..64 {
             let phi = f64::from(i) / 100.0;
             assert!(torquato_tracer(phi).unwrap() < maxwell_tracer(phi).unwrap());
@@ -837,7 +837,7 @@ mod tests {
 
     #[test]
     fn excluded_volume_and_poisson_open_fraction() {
-        // REFERENCE.md: phi_excl = n (4/3) pi (a+b)³; open fraction exp(−phi_excl) (exact).
+        // REFERENCES.md: phi_excl = n (4/3) pi (a+b)³; open fraction exp(−phi_excl) (exact).
         let n = 0.01;
         let (a, b) = (1.5, 2.5);
         let phi = excluded_volume_fraction(n, a, b).unwrap();
@@ -856,7 +856,7 @@ mod tests {
 
     #[test]
     fn carnahan_starling_contact_value() {
-        // REFERENCE.md: Carnahan–Starling (1969) g(sigma+) at phi = 0.3 → 2.478.
+        // REFERENCES.md: Carnahan–Starling (1969) g(sigma+) at phi = 0.3 → 2.478.
         close(carnahan_starling_contact(0.3).unwrap(), 2.478, 6e-4);
         // Ideal-gas limit g = 1 and its exact dilute slope 5/2 (second virial term).
         assert_eq!(carnahan_starling_contact(0.0).unwrap(), 1.0);
@@ -870,11 +870,11 @@ mod tests {
 
     #[test]
     fn brady_matches_reference_and_dilute_limit() {
-        // REFERENCE.md: Brady (1994) no-HI D_L/D0 = 0.793, 0.587, 0.402 at phi = 0.1, 0.2, 0.3.
+        // REFERENCES.md: Brady (1994) no-HI D_L/D0 = 0.793, 0.587, 0.402 at phi = 0.1, 0.2, 0.3.
         for (phi, expected) in [(0.1, 0.793), (0.2, 0.587), (0.3, 0.402)] {
             close(brady_long_time_self_diffusion(phi).unwrap(), expected, 6e-4);
         }
-        // REFERENCE.md (from memory): dilute D_L/D0 = 1 − 2 phi; Brady shares that slope.
+        // REFERENCES.md (from memory): dilute D_L/D0 = 1 − 2 phi; Brady shares that slope.
         close(hard_sphere_self_diffusion_dilute(0.1).unwrap(), 0.8, 1e-15);
         let eps = 1e-7;
         close(
@@ -886,7 +886,7 @@ mod tests {
 
     #[test]
     fn partition_coefficients() {
-        // REFERENCE.md: cylinder (1−lambda)², slit 1 − a/h (exact steric exclusion).
+        // REFERENCES.md: cylinder (1−lambda)², slit 1 − a/h (exact steric exclusion).
         close(partition_cylinder(0.5).unwrap(), 0.25, 1e-15);
         close(partition_slit(1.0, 4.0).unwrap(), 0.75, 1e-15);
         assert_eq!(partition_cylinder(0.0).unwrap(), 1.0);
@@ -898,7 +898,7 @@ mod tests {
 
     #[test]
     fn renkin_matches_reference() {
-        // REFERENCE.md: Renkin H = 0.6413, 0.3812, 0.2072, 0.0449 at lambda = 0.1, 0.2, 0.3, 0.5.
+        // REFERENCES.md: Renkin H = 0.6413, 0.3812, 0.2072, 0.0449 at lambda = 0.1, 0.2, 0.3, 0.5.
         for (lambda, expected) in [(0.1, 0.6413), (0.2, 0.3812), (0.3, 0.2072), (0.5, 0.0449)] {
             close(renkin_hindrance(lambda).unwrap(), expected, 6e-5);
         }
@@ -911,7 +911,7 @@ mod tests {
 
     #[test]
     fn renkin_against_bungay_brenner_centreline() {
-        // REFERENCE.md: Bungay & Brenner (1973) centreline K_d = 0.7916, 0.5954 at lambda = 0.1, 0.2.
+        // REFERENCES.md: Bungay & Brenner (1973) centreline K_d = 0.7916, 0.5954 at lambda = 0.1, 0.2.
         // A different (exact) theory: Renkin's truncated series agrees to 3e-4 only at small lambda.
         close(renkin_centreline_kd(0.1).unwrap(), 0.7916, 3e-4);
         close(renkin_centreline_kd(0.2).unwrap(), 0.5954, 3e-4);
@@ -919,7 +919,7 @@ mod tests {
 
     #[test]
     fn dechadilok_deen_matches_reference() {
-        // REFERENCE.md: Dechadilok & Deen (2006) H = 0.5918, 0.3579, 0.2033, 0.0474
+        // REFERENCES.md: Dechadilok & Deen (2006) H = 0.5918, 0.3579, 0.2033, 0.0474
         // at lambda = 0.1, 0.2, 0.3, 0.5.
         for (lambda, expected) in [(0.1, 0.5918), (0.2, 0.3579), (0.3, 0.2033), (0.5, 0.0474)] {
             close(dechadilok_deen_hindrance(lambda).unwrap(), expected, 6e-5);
@@ -1013,9 +1013,9 @@ mod tests {
     #[test]
     fn wall_mobilities_are_re_exported() {
         // The catalogue exposes the engine's formulas, not copies of them.
-        close(faxen_parallel(0.5), 0.7214, 6e-5); // REFERENCE.md: Faxén, z/a = 2 → 0.7214
-        close(brenner_perpendicular(2.0), 0.4705, 6e-5); // REFERENCE.md: Brenner, z/a = 2 → 0.4705
-        close(bevan_prieve_perpendicular(1.0), 0.4706, 6e-5); // REFERENCE.md: Bevan–Prieve, z/a = 2
+        close(faxen_parallel(0.5), 0.7214, 6e-5); // REFERENCES.md: Faxén, z/a = 2 → 0.7214
+        close(brenner_perpendicular(2.0), 0.4705, 6e-5); // REFERENCES.md: Brenner, z/a = 2 → 0.4705
+        close(bevan_prieve_perpendicular(1.0), 0.4706, 6e-5); // REFERENCES.md: Bevan–Prieve, z/a = 2
         assert_eq!(superpose_two_walls(1.0, 1.0), 1.0);
     }
 }
@@ -1070,7 +1070,7 @@ pub fn square_array_access_factor(radius: f64, spacing: f64) -> ModelResult<f64>
 /// thick with pores of radius r_open (the rims are rounded with radius a;
 /// that flare, an O(a/r_open) change of the 2a term, is left out). Without
 /// the end terms this is the plain steric prediction ε Φ D0 / L
-/// (REFERENCE.md: "with a known end correction").
+/// (REFERENCES.md: "with a known end correction").
 pub fn membrane_steric_permeability_over_d0(
     porosity: f64,
     thickness: f64,
@@ -1171,7 +1171,7 @@ mod slit_tests {
 
     #[test]
     fn slit_hindrance_matches_reference_check_value() {
-        // REFERENCE.md (Dechadilok & Deen 2006, slit, from memory): λ = 0.2 → H/Φ = 0.7290.
+        // REFERENCES.md (Dechadilok & Deen 2006, slit, from memory): λ = 0.2 → H/Φ = 0.7290.
         let h = dechadilok_deen_slit_hindrance(0.2).unwrap();
         assert!((h / (1.0 - 0.2) - 0.7290).abs() < 5e-4, "{h}");
         // Exact limit: no hindrance for a point particle.

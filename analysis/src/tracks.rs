@@ -745,7 +745,7 @@ pub struct CovarianceEstimate {
 /// D̂ = ⟨Δx_k²⟩/(2Δt) + ⟨Δx_k Δx_{k+1}⟩/Δt and
 /// σ̂² = R⟨Δx_k²⟩ + (2R − 1)⟨Δx_k Δx_{k+1}⟩, with R the blur factor
 /// (Vestergaard, Blainey & Flyvbjerg, Phys. Rev. E 89, 022726, 2014;
-/// REFERENCE.md). Averages run over the steps between consecutive frames and
+/// REFERENCES.md). Averages run over the steps between consecutive frames and
 /// over the pairs of consecutive steps, so a track with gaps uses what it has.
 ///
 /// Both estimates are unbiased and may be negative for a short or noisy

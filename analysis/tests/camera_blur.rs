@@ -3,7 +3,7 @@
 //! Outside check: per axis, the MSD of blurred, noisy tracks of free
 //! diffusion is MSD(nΔt) = 2D nΔt + 2σ² − 4RDΔt with R = t_E/(6Δt) for a
 //! uniform exposure t_E ≤ Δt (Berglund, Phys. Rev. E 82, 011917, 2010;
-//! Savin & Doyle 2005; REFERENCE.md "Single-particle-tracking measurement
+//! Savin & Doyle 2005; REFERENCES.md "Single-particle-tracking measurement
 //! model"). The issue asks for agreement within 3 % at three (σ, t_E).
 
 mod camera_support;

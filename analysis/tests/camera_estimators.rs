@@ -2,7 +2,7 @@
 //!
 //! Outside check: the covariance-based estimator is unbiased for D and σ²
 //! (Vestergaard, Blainey & Flyvbjerg, Phys. Rev. E 89, 022726, 2014;
-//! REFERENCE.md), checked as REFERENCE.md asks, by the spread over many
+//! REFERENCES.md), checked as REFERENCES.md asks, by the spread over many
 //! seeded tracks against the true D and σ, not by a quoted error formula.
 
 mod camera_support;

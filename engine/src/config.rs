@@ -21,7 +21,7 @@ pub const MAX_COUNT: i64 = 100_000_000;
 /// The largest number of steps in one run.
 pub const MAX_STEPS: i64 = 1_000_000_000_000;
 /// Step length as a fraction of the smallest feature above which `check` warns
-/// (a tenth: common practice, REFERENCE.md "Numerics").
+/// (a tenth: common practice, REFERENCES.md "Numerics").
 pub const STEP_WARNING_FRACTION: f64 = 0.1;
 /// The largest number of fixed obstacles (spheres or fibres) a scenario may ask for.
 pub const MAX_OBSTACLES: i64 = 20_000_000;

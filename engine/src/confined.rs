@@ -15,7 +15,7 @@
 //! (n = ∇d, so (n·∇)n = 0): the Itô drift that keeps the equilibrium
 //! density uniform; along a plane wall it is dz = (dD⊥/dz) dt + √(2 D⊥) dW.
 //! The slit combines its two walls by linear superposition of resistances
-//! (REFERENCE.md). In a cylindrical pore and a membrane the *nearest-wall
+//! (REFERENCES.md). In a cylindrical pore and a membrane the *nearest-wall
 //! planar approximation* is used: only the nearest wall counts, treated as
 //! a plane at its distance (the opposite side of a pore is ignored). On a
 //! pore axis the normal is undefined and the curvature term (D⊥ − D∥)∇·n
@@ -316,7 +316,7 @@ impl Confinement {
     }
 
     /// The same kernels without the Itô drift term: only to show the
-    /// spurious pile-up at walls that its absence causes (REFERENCE.md).
+    /// spurious pile-up at walls that its absence causes (REFERENCES.md).
     /// Has no effect without wall hydrodynamics.
     pub fn without_ito_drift(mut self) -> Self {
         self.ito_drift = false;

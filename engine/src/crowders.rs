@@ -8,7 +8,7 @@
 //! (tracer pairs are ideal probes). The rejection scheme samples the
 //! hard-sphere equilibrium exactly for any Δt, since each proposal is
 //! symmetric (Metropolis et al. 1953); its dynamics carry a bias that
-//! shrinks like √Δt (REFERENCE.md "Numerics").
+//! shrinks like √Δt (REFERENCES.md "Numerics").
 //!
 //! **Update order.** The reference is the sequential sweep: particles in
 //! index order, each tested against the already-updated positions of lower

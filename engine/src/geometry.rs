@@ -132,7 +132,7 @@ impl Membrane {
 
     /// Steric partition coefficient of the membrane for radius a: the
     /// centre-accessible pore area over the pore area, Σ (r − a)² / Σ r²
-    /// (exact; (1 − λ)² for equal pores, REFERENCE.md).
+    /// (exact; (1 − λ)² for equal pores, REFERENCES.md).
     pub fn steric_partition(&self, radius_nm: f64) -> f64 {
         let open: f64 = self
             .pores

@@ -184,7 +184,7 @@ pub const OPEN_START_ATTEMPTS: u64 = 1_000_000;
 /// Each step proposes the Gaussian move (wrapped, or reflected at walls) and
 /// rejects it whole if the new centre would overlap an obstacle: move
 /// rejection, a Monte Carlo Brownian dynamics scheme whose bias shrinks like
-/// √Δt (REFERENCE.md "Numerics"). `blockers[s]` answers for species s.
+/// √Δt (REFERENCES.md "Numerics"). `blockers[s]` answers for species s.
 pub fn advance_obstructed<B: Blocker>(
     state: &mut State,
     kinetics: &[Kinetics],

@@ -43,7 +43,7 @@ pub fn m2_to_nm2(d_m2_per_s: f64) -> f64 {
 mod tests {
     use super::*;
 
-    // REFERENCE.md, water viscosity rows: IAPWS 2008 / CRC Handbook table (from memory).
+    // REFERENCES.md, water viscosity rows: IAPWS 2008 / CRC Handbook table (from memory).
     // The correlation is stated there to hold within about 1 %; we assert 1 %.
     #[test]
     fn water_viscosity_matches_handbook_rows() {
@@ -70,7 +70,7 @@ mod tests {
         assert!(water_viscosity_pa_s(400.0).is_none());
     }
 
-    // REFERENCE.md, Stokes–Einstein worked values (computed from k_B exact and the table η).
+    // REFERENCES.md, Stokes–Einstein worked values (computed from k_B exact and the table η).
     #[test]
     fn stokes_einstein_worked_values() {
         let cases = [

@@ -14,7 +14,7 @@
 //!
 //! Sources: Faxén's method of reflections (parallel), Brenner (1961, exact
 //! series, perpendicular), Bevan & Prieve (2000, closed form, perpendicular),
-//! Cox & Brenner (1967, lubrication limit near contact). See REFERENCE.md.
+//! Cox & Brenner (1967, lubrication limit near contact). See REFERENCES.md.
 
 /// Below this z/a the Brenner series converges too slowly (the number of
 /// terms grows like 1/√(z/a − 1)), so [`brenner_perpendicular`] switches to
@@ -39,7 +39,7 @@ const BRENNER_MAX_TERMS: usize = 20_000;
 const COX_BRENNER_LINEAR_COEFFICIENT: f64 = 0.971;
 
 /// Parallel mobility D∥/D0 of a sphere near one plane wall, by Faxén's
-/// method of reflections (REFERENCE.md):
+/// method of reflections (REFERENCES.md):
 /// `1 − 9/16 x + 1/8 x³ − 45/256 x⁴ − 1/16 x⁵` with `x = a/z`.
 ///
 /// `a_over_z` must lie in [0, 1] (z is the centre-to-wall distance, so
@@ -71,7 +71,7 @@ pub fn d_faxen_parallel_dz(a_over_z: f64) -> f64 {
 }
 
 /// Perpendicular mobility D⊥/D0 of a sphere near one plane wall, closed form
-/// of Bevan & Prieve (2000) (REFERENCE.md):
+/// of Bevan & Prieve (2000) (REFERENCES.md):
 /// `(6h² + 2h)/(6h² + 9h + 2)` with h = (z − a)/a the gap in units of a.
 ///
 /// `h_over_a` must be ≥ 0 (`+∞` gives 1); otherwise `NaN`.
@@ -212,7 +212,7 @@ fn brenner_series_value_and_gradient(z_over_a: f64) -> (f64, f64) {
 }
 
 /// Perpendicular mobility D⊥/D0 of a sphere near one plane wall from
-/// Brenner's (1961) exact series (REFERENCE.md), z/a = centre-to-wall
+/// Brenner's (1961) exact series (REFERENCES.md), z/a = centre-to-wall
 /// distance over radius.
 ///
 /// The series is summed in a rewritten form that involves only e^(−α)
@@ -262,7 +262,7 @@ pub fn brenner_perpendicular_value_and_gradient(z_over_a: f64) -> (f64, f64) {
 /// `Brenner` is the exact series (Brenner 1961) with the Cox–Brenner
 /// lubrication limit very near contact; `BevanPrieve` is the closed form of
 /// Bevan & Prieve (2000), at most about 2.3e-3 from the series (largest
-/// near z/a ≈ 7; under 1e-3 at the REFERENCE.md check points).
+/// near z/a ≈ 7; under 1e-3 at the REFERENCES.md check points).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum PerpendicularModel {
@@ -465,7 +465,7 @@ impl Default for WallMobilityTable {
 /// superposition of the wall resistances: `1/D = 1/D1 + 1/D2 − 1/D0`.
 ///
 /// This is a common approximation (Oseen-type linear superposition,
-/// REFERENCE.md), not an exact two-wall solution. Written as
+/// REFERENCES.md), not an exact two-wall solution. Written as
 /// `d1·d2/(d1 + d2 − d1·d2)` so that contact with one wall (d = 0) gives 0
 /// without dividing by zero; if both are 0 the result is 0.
 pub fn superpose_two_walls(d1: f64, d2: f64) -> f64 {
@@ -497,7 +497,7 @@ pub fn superpose_two_walls_with_gradient(d1: f64, d1_dz: f64, d2: f64, d2_dz: f6
 mod tests {
     use super::*;
 
-    /// Slow, obviously-correct reference: the REFERENCE.md Brenner series
+    /// Slow, obviously-correct reference: the REFERENCES.md Brenner series
     /// evaluated literally with sinh, for moderate z/a where it cannot overflow.
     fn brenner_literal(z_over_a: f64) -> f64 {
         let alpha = z_over_a.acosh();
@@ -529,25 +529,25 @@ mod tests {
 
     #[test]
     fn brenner_matches_reference_check_values() {
-        // REFERENCE.md: Brenner 1961 series, z/a = 1.1 → 0.0873
+        // REFERENCES.md: Brenner 1961 series, z/a = 1.1 → 0.0873
         assert!((brenner_perpendicular(1.1) - 0.0873).abs() < 6e-5);
-        // REFERENCE.md: Brenner 1961 series, z/a = 1.5 → 0.3120
+        // REFERENCES.md: Brenner 1961 series, z/a = 1.5 → 0.3120
         assert!((brenner_perpendicular(1.5) - 0.3120).abs() < 6e-5);
-        // REFERENCE.md: Brenner 1961 series, z/a = 2 → 0.4705
+        // REFERENCES.md: Brenner 1961 series, z/a = 2 → 0.4705
         assert!((brenner_perpendicular(2.0) - 0.4705).abs() < 6e-5);
-        // REFERENCE.md: Brenner 1961 series, z/a = 3 → 0.6373
+        // REFERENCES.md: Brenner 1961 series, z/a = 3 → 0.6373
         assert!((brenner_perpendicular(3.0) - 0.6373).abs() < 6e-5);
     }
 
     #[test]
     fn bevan_prieve_matches_reference_check_values() {
-        // REFERENCE.md: Bevan & Prieve 2000 closed form, z/a = 1.1 → 0.0878
+        // REFERENCES.md: Bevan & Prieve 2000 closed form, z/a = 1.1 → 0.0878
         assert!((bevan_prieve_perpendicular(0.1) - 0.0878).abs() < 6e-5);
-        // REFERENCE.md: Bevan & Prieve 2000 closed form, z/a = 1.5 → 0.3125
+        // REFERENCES.md: Bevan & Prieve 2000 closed form, z/a = 1.5 → 0.3125
         assert!((bevan_prieve_perpendicular(0.5) - 0.3125).abs() < 6e-5);
-        // REFERENCE.md: Bevan & Prieve 2000 closed form, z/a = 2 → 0.4706
+        // REFERENCES.md: Bevan & Prieve 2000 closed form, z/a = 2 → 0.4706
         assert!((bevan_prieve_perpendicular(1.0) - 0.4706).abs() < 6e-5);
-        // REFERENCE.md: Bevan & Prieve 2000 closed form, z/a = 3 → 0.6364
+        // REFERENCES.md: Bevan & Prieve 2000 closed form, z/a = 3 → 0.6364
         assert!((bevan_prieve_perpendicular(2.0) - 0.6364).abs() < 6e-5);
         // Exact rationals of the same form: h = 1/2 → 5/16, h = 1 → 8/17.
         assert!((bevan_prieve_perpendicular(0.5) - 5.0 / 16.0).abs() < 1e-15);
@@ -556,7 +556,7 @@ mod tests {
 
     #[test]
     fn faxen_matches_reference_check_value() {
-        // REFERENCE.md: Faxén parallel, z/a = 2 → 0.7214
+        // REFERENCES.md: Faxén parallel, z/a = 2 → 0.7214
         assert!((faxen_parallel(0.5) - 0.7214).abs() < 6e-5);
         // Exact value of the polynomial at x = 1/2: 1 − 9/32 + 1/64 − 45/4096 − 1/512.
         let exact = 1.0 - 9.0 / 32.0 + 1.0 / 64.0 - 45.0 / 4096.0 - 1.0 / 512.0;
@@ -699,7 +699,7 @@ mod tests {
 
     #[test]
     fn closed_form_stays_close_to_the_series() {
-        // REFERENCE.md pairs: the closed form is within 1e-3 of the series at 1.1, 1.5, 2, 3.
+        // REFERENCES.md pairs: the closed form is within 1e-3 of the series at 1.1, 1.5, 2, 3.
         for &z in &[1.1, 1.5, 2.0, 3.0] {
             let gap = (bevan_prieve_perpendicular(z - 1.0) - brenner_perpendicular(z)).abs();
             assert!(gap < 1e-3, "z/a = {z}");
@@ -798,7 +798,7 @@ mod tests {
 
     #[test]
     fn slit_superposition() {
-        // Identities of 1/D = 1/D1 + 1/D2 − 1 (REFERENCE.md two-wall superposition).
+        // Identities of 1/D = 1/D1 + 1/D2 − 1 (REFERENCES.md two-wall superposition).
         assert_eq!(superpose_two_walls(1.0, 1.0), 1.0);
         assert_eq!(superpose_two_walls(0.0, 0.7), 0.0);
         assert_eq!(superpose_two_walls(0.0, 0.0), 0.0);

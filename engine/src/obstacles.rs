@@ -37,7 +37,7 @@ pub const OBSTACLE_STREAM: u64 = u64::MAX;
 /// Stream index of the Monte Carlo estimates printed by `check`.
 pub const SAMPLING_STREAM: u64 = u64::MAX - 2;
 /// Jamming fraction of random sequential addition of equal spheres,
-/// φ ≈ 0.3841 (Zhang & Torquato 2013, REFERENCE.md; from memory).
+/// φ ≈ 0.3841 (Zhang & Torquato 2013, REFERENCES.md; from memory).
 pub const RSA_JAMMING_FRACTION: f64 = 0.3841;
 /// Simple cubic lattice of touching spheres: φ = π/6.
 pub const SIMPLE_CUBIC_MAX_FRACTION: f64 = PI / 6.0;

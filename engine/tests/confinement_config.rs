@@ -83,7 +83,7 @@ fn kinds_resolve_to_shapes_and_walled_axes() {
         ),
         (1.0, 0.0)
     );
-    // Steric partition (1 − λ)², REFERENCE.md (exact).
+    // Steric partition (1 − λ)², REFERENCES.md (exact).
     assert!((m.steric_partition(2.0) - 0.75f64.powi(2)).abs() < 1e-15);
     assert_eq!(s.sim_box.periodic, [true, true, false]);
     // An override reaches the geometry like any other key.

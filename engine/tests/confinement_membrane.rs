@@ -106,7 +106,7 @@ fn partition(lambda: f64, count: usize, measure: u64, seed: u64) {
         4.0 * se < 0.03 * expected,
         "too few samples for a 3 % check: SE {se}"
     );
-    // REFERENCE.md: steric partition coefficient of a cylindrical pore Φ = (1 − λ)² (exact); within 3 %.
+    // REFERENCES.md: steric partition coefficient of a cylindrical pore Φ = (1 − λ)² (exact); within 3 %.
     assert!(
         (phi / expected - 1.0).abs() < 0.03,
         "Φ = {phi} vs {expected}"
@@ -203,7 +203,7 @@ fn steady_state_permeability_matches_the_steric_prediction() {
         steric.rejected_moves
     );
     assert!(4.5 * se < 0.05, "too few crossings for a 5 % check");
-    // REFERENCE.md: steric prediction P = εΦD0/L with Φ = (1 − λ)², here with its end corrections
+    // REFERENCES.md: steric prediction P = εΦD0/L with Φ = (1 − λ)², here with its end corrections
     // (thicket_analysis::models): the slab L + 2a that centres see, the flanged-pipe end correction
     // 0.8216 (r − a) (King 1936 / Norris & Sheng 1989, from memory) and the square-array factor; within 5 %.
     // A profile of the run showed the pore interior carrying J = D0 π (r − a)² |dc/dz| to 1.5 %.

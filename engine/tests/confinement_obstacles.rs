@@ -180,7 +180,7 @@ fn axial_diffusion_in_a_pore_of_aligned_fibres_is_free() {
 }
 
 /// Carnahan–Starling compressibility factor p/(ρkT) = (1 + φ + φ² − φ³)/(1 − φ)³
-/// (Carnahan & Starling 1969; REFERENCE.md gives its contact value).
+/// (Carnahan & Starling 1969; REFERENCES.md gives its contact value).
 fn carnahan_starling_z(phi: f64) -> f64 {
     (1.0 + phi + phi * phi - phi.powi(3)) / (1.0 - phi).powi(3)
 }

@@ -93,7 +93,7 @@ fn steric_confinement_leaves_axial_diffusion_free() {
         m.rejected
     );
     assert!(4.5 * se < 0.02, "too few samples for a 2 % check: SE {se}");
-    // REFERENCE.md: steric confinement alone does not slow axial diffusion in an infinitely long
+    // REFERENCES.md: steric confinement alone does not slow axial diffusion in an infinitely long
     // straight pore (a guard against reflection bugs); within 2 %.
     assert!((d - 1.0).abs() < 0.02, "axial D_eff/D0 = {d}");
 
@@ -133,7 +133,7 @@ fn wall_hydrodynamics_slow_axial_diffusion_to_the_section_average() {
          Dechadilok-Deen averaged K_d {dd:.4}; Renkin centreline K_d {renkin:.4}"
     );
     // Exact identity of the model: axial moves have no drift and the equilibrium density is
-    // uniform, so ⟨Δz²⟩ = 2 ⟨D∥⟩ t, with Faxén's D∥ (REFERENCE.md) at the nearest-wall distance.
+    // uniform, so ⟨Δz²⟩ = 2 ⟨D∥⟩ t, with Faxén's D∥ (REFERENCES.md) at the nearest-wall distance.
     assert!((d - model).abs() < 5.0 * se, "{d} vs {model}");
     // A uniform section also needs the curvature term of the drift.
     let chi2 = chi_square_flat(&m.radial);

@@ -96,7 +96,7 @@ fn drift_keeps_density_uniform_and_its_absence_piles_up() {
         "with Itô drift: chi-square {chi2:.2} (19 dof), bins {:?}",
         with.histogram
     );
-    // REFERENCE.md: with the Itô drift the equilibrium density across a slit stays uniform.
+    // REFERENCES.md: with the Itô drift the equilibrium density across a slit stays uniform.
     // Chi-square critical value at p = 0.001, 19 dof: NIST/SEMATECH e-Handbook table.
     assert!(
         chi2 < CHI2_19_P001,
@@ -111,7 +111,7 @@ fn drift_keeps_density_uniform_and_its_absence_piles_up() {
         "without drift: chi-square {chi2_off:.0}, wall bins hold {edge:.2}× the mean, bins {:?}",
         without.histogram
     );
-    // REFERENCE.md: without the drift particles pile up at the walls; the same test must fail.
+    // REFERENCES.md: without the drift particles pile up at the walls; the same test must fail.
     assert!(
         chi2_off > 10.0 * CHI2_19_P001,
         "no pile-up seen without the drift: chi-square {chi2_off}"
@@ -131,7 +131,7 @@ fn drift_keeps_density_uniform_and_its_absence_piles_up() {
     // Binomial spread of the central count: relative SE √((1 − p)/(N p)), p = 1/2.
     let se = expected * (1.0 / COUNT as f64).sqrt();
     println!("slit partition coefficient {phi:.4} against 1 − a/h = {expected:.4} (SE {se:.4})");
-    // REFERENCE.md: slit of half-width h, steric partition coefficient Φ = 1 − a/h (exact).
+    // REFERENCES.md: slit of half-width h, steric partition coefficient Φ = 1 − a/h (exact).
     assert!(
         (phi - expected).abs() < 5.0 * se,
         "partition {phi} vs {expected}"
@@ -156,7 +156,7 @@ fn lateral_diffusivity_is_the_gap_average_of_the_parallel_mobility() {
     let model = mean_parallel_mobility(&s.geometry.as_ref().unwrap().shape, A, A).unwrap();
     println!("lateral D_eff/D0 = {d_over_d0:.4} ± {se:.4}, gap average of superposed Faxén D∥ = {model:.4}");
     // Exact identity of the model: lateral moves have no drift and the density is uniform,
-    // so ⟨Δx²⟩ = 2 ⟨D∥⟩ t (Itô isometry); D∥ by Faxén (REFERENCE.md), walls superposed.
+    // so ⟨Δx²⟩ = 2 ⟨D∥⟩ t (Itô isometry); D∥ by Faxén (REFERENCES.md), walls superposed.
     assert!(
         (d_over_d0 - model).abs() < 5.0 * se,
         "{d_over_d0} vs {model}"

@@ -94,13 +94,13 @@ fn short_time_diffusivities_follow_brenner_and_faxen() {
         );
         // The SE must leave the 3 % tolerance at least 4.5 standard errors wide.
         assert!(4.5 * se_perp < 0.03 && 4.5 * se_par < 0.03);
-        // REFERENCE.md: Brenner (1961) series for D⊥, e.g. 0.3120, 0.4705, 0.6373 at z/a = 1.5, 2, 3; within 3 %.
+        // REFERENCES.md: Brenner (1961) series for D⊥, e.g. 0.3120, 0.4705, 0.6373 at z/a = 1.5, 2, 3; within 3 %.
         assert!(
             (b.dz2 / perp - 1.0).abs() < 0.03,
             "D⊥ at z/a = {h}: {} vs {perp}",
             b.dz2
         );
-        // REFERENCE.md: Faxén's method of reflections for D∥ (0.7214 at z/a = 2); within 3 %.
+        // REFERENCES.md: Faxén's method of reflections for D∥ (0.7214 at z/a = 2); within 3 %.
         assert!(
             (b.dxy2 / par - 1.0).abs() < 0.03,
             "D∥ at z/a = {h}: {} vs {par}",

@@ -69,7 +69,7 @@ fn check_maxwell(phi: f64, tracers: usize, duration_s: f64) -> (f64, f64) {
     let maxwell = models::maxwell_tracer(phi_excl).unwrap();
     let bound = models::hashin_shtrikman_upper_tracer(phi_excl).unwrap();
     println!("φ = {phi} (excluded {phi_excl:.4}): D_eff/D0 = {d:.4} ± {se:.4}; Maxwell 2/(2+φ) = {maxwell:.4}; Torquato {:.4}", models::torquato_tracer(phi).unwrap());
-    // Maxwell (1873), tracer form D_eff/D0 = 2/(2 + φ) (REFERENCE.md): within 3 %.
+    // Maxwell (1873), tracer form D_eff/D0 = 2/(2 + φ) (REFERENCES.md): within 3 %.
     assert!(
         (d / maxwell - 1.0).abs() < 0.03,
         "φ = {phi}: {d} ± {se} vs Maxwell {maxwell}"
@@ -88,7 +88,7 @@ fn check_maxwell(phi: f64, tracers: usize, duration_s: f64) -> (f64, f64) {
     (d, se)
 }
 
-// Exact identity (REFERENCE.md): among freely overlapping spheres placed as
+// Exact identity (REFERENCES.md): among freely overlapping spheres placed as
 // Poisson points of density n, the fraction of space open to the centre of a
 // tracer of radius a is exp(−n·(4/3)π(a + b)³). Averaged over 1400
 // realisations (2 million obstacles), so that realisation noise (about
@@ -121,7 +121,7 @@ fn poisson_open_fraction_is_exponential() {
     let n = count as f64 / (edge * edge * edge);
     let want = models::poisson_open_fraction(n, a, b).unwrap();
     println!("open fraction {mean:.5} ± {se:.5}, exp(−n·(4/3)π(a+b)³) = {want:.5}");
-    // REFERENCE.md: exact geometric identity, to 1e-3.
+    // REFERENCES.md: exact geometric identity, to 1e-3.
     assert!((mean - want).abs() < 1e-3, "{mean} ± {se} vs {want}");
 }
 
@@ -145,7 +145,7 @@ fn maxwell_point_tracer_phi_0_2() {
 }
 
 // φ = 0.3 with the Δt-convergence series: the rejection bias of move
-// rejection shrinks like √Δt (REFERENCE.md "Numerics"), i.e. linearly in the
+// rejection shrinks like √Δt (REFERENCES.md "Numerics"), i.e. linearly in the
 // rms step σ = √(2 D0 Δt). Steps σ = 0.01, 0.04, 0.16 obstacle radii.
 #[test]
 #[cfg_attr(
@@ -176,7 +176,7 @@ fn maxwell_point_tracer_phi_0_3_with_dt_series() {
         "√Δt extrapolation {predicted} vs measured {fine}"
     );
     // Extrapolated to Δt → 0, the bias-free value should sit near Torquato's
-    // three-point estimate 0.859 (REFERENCE.md, from memory; first-passage
+    // three-point estimate 0.859 (REFERENCES.md, from memory; first-passage
     // simulations of Kim & Torquato 1991 match it closely): within 2 %.
     let zero = fine + (fine - mid) / 3.0;
     let torquato = models::torquato_tracer(0.3).unwrap();
@@ -198,7 +198,7 @@ fn fibres_text(phi: f64, orientation: &str, seed: u64) -> String {
 }
 
 // Fibres beside Ogston, Preston & Wells (1973), D/D0 = exp(−√φ (a + r_f)/r_f)
-// (REFERENCE.md, from memory): an approximation reported, not an oracle. What
+// (REFERENCES.md, from memory): an approximation reported, not an oracle. What
 // is asserted is the dilute trend (D → D0 as φ → 0) and a monotone decrease.
 #[test]
 #[cfg_attr(

@@ -11,7 +11,7 @@ use crowding_support::*;
 use thicket_analysis::models;
 use thicket_engine::crowders::{find_overlap_brute_force, Sweep};
 use thicket_engine::integrate::{reflect, Kinetics, State};
-use thicket_engine::neighbors::{blocked_brute_force, min_image_distance2, CellList, VerletList};
+use thicket_engine::neighbors::{blocked_brute_force, min_image_distance2};
 use thicket_engine::obstacles::FixedObstacles;
 use thicket_engine::rng::standard_normal;
 use thicket_engine::Scenario;
@@ -227,10 +227,8 @@ fn never_an_overlap_after_many_steps() {
     );
 }
 
-/// Contact value g(σ⁺) by least-squares extrapolation of g(r) histogrammed in
-/// 8 bins of 0.01σ from contact (a quadratic in r − σ), from `configs`
-/// configurations `gap` steps apart after `equilibrate` steps; returns the
-/// mean and standard error over 5 blocks of configurations.
+/// Contact value g(σ⁺) (mean, SE over 5 blocks) of equal crowders at `phi`
+/// (the library's measurement, shared with `thicket validate`).
 fn contact_value(
     phi: f64,
     n: usize,
@@ -240,77 +238,14 @@ fn contact_value(
     gap: u64,
 ) -> (f64, f64) {
     let sc = scenario(&crowd_text(phi, n, sigma, 41));
-    let (_, mut dynamics, mut state) = prepare(&sc);
-    let b = sc.sim_box;
-    let (radius, crowder) = radii_and_roles(&sc);
-    let bins = 8;
-    let width = 0.01;
-    let cells = CellList::new(&b, 1.0 + bins as f64 * width);
-    let density = n as f64 / b.edges_nm.iter().product::<f64>();
-    with_threads(2, || dynamics.advance(&mut state, equilibrate));
-    let blocks = 5;
-    let mut estimates = Vec::new();
-    for _ in 0..blocks {
-        let mut hist = vec![0.0; bins];
-        for _ in 0..configs / blocks {
-            with_threads(2, || dynamics.advance(&mut state, gap));
-            let list = VerletList::build(
-                &cells,
-                &state.positions,
-                &radius,
-                &crowder,
-                &b,
-                bins as f64 * width,
-            );
-            for i in 0..n {
-                for &j in list.neighbours(i) {
-                    let j = j as usize;
-                    if j > i {
-                        let r = min_image_distance2(&b, &state.positions[i], &state.positions[j])
-                            .sqrt();
-                        let bin = ((r - 1.0) / width) as usize;
-                        if bin < bins {
-                            hist[bin] += 1.0;
-                        }
-                    }
-                }
-            }
-        }
-        // g in each shell, then a quadratic fit a + b x + c x² in x = r − σ at the bin centres.
-        let (mut sx, mut sy) = (Vec::new(), Vec::new());
-        for (k, h) in hist.iter().enumerate() {
-            let r0 = 1.0 + k as f64 * width;
-            let shell = 4.0 / 3.0 * std::f64::consts::PI * ((r0 + width).powi(3) - r0.powi(3));
-            sy.push(h / ((configs / blocks) as f64 * 0.5 * n as f64 * density * shell));
-            sx.push((k as f64 + 0.5) * width);
-        }
-        estimates.push(quadratic_intercept(&sx, &sy));
-    }
-    mean_se(&estimates)
-}
-
-/// Intercept of the least-squares quadratic through (x, y).
-fn quadratic_intercept(x: &[f64], y: &[f64]) -> f64 {
-    // Normal equations for [a, b, c], solved by Cramer's rule.
-    let s = |p: i32| x.iter().map(|v| v.powi(p)).sum::<f64>();
-    let t = |p: i32| x.iter().zip(y).map(|(v, w)| v.powi(p) * w).sum::<f64>();
-    let m = [[s(0), s(1), s(2)], [s(1), s(2), s(3)], [s(2), s(3), s(4)]];
-    let r = [t(0), t(1), t(2)];
-    let det = |a: [[f64; 3]; 3]| {
-        a[0][0] * (a[1][1] * a[2][2] - a[1][2] * a[2][1])
-            - a[0][1] * (a[1][0] * a[2][2] - a[1][2] * a[2][0])
-            + a[0][2] * (a[1][0] * a[2][1] - a[1][1] * a[2][0])
-    };
-    let mut ma = m;
-    for row in 0..3 {
-        ma[row][0] = r[row];
-    }
-    det(ma) / det(m)
+    with_threads(2, || {
+        thicket_analysis::direct::contact_value(&sc, equilibrate, configs, gap).expect("placement")
+    })
 }
 
 // Equilibrium structure: any correct hard-sphere move scheme reproduces the
 // Carnahan–Starling (1969) contact value g(σ⁺) = (1 − φ/2)/(1 − φ)³
-// (REFERENCE.md), within 3 %. Move rejection samples the equilibrium exactly
+// (REFERENCES.md), within 3 %. Move rejection samples the equilibrium exactly
 // at any Δt (a symmetric proposal, Metropolis acceptance), so a step of
 // 0.08σ is used to decorrelate configurations quickly.
 #[test]
@@ -355,9 +290,9 @@ fn dilute_self_diffusion(sigma: f64, duration: f64) -> (f64, f64) {
 }
 
 // Dilute mobile hard spheres: D_L/D0 = 1 − 2φ + O(φ²) (Hanna, Hess & Klein
-// 1982; Ackerson & Fleishman 1982; REFERENCE.md, from memory), within 0.02 at
+// 1982; Ackerson & Fleishman 1982; REFERENCES.md, from memory), within 0.02 at
 // φ = 0.05, at the smallest Δt of a series σ = 0.02, 0.06, 0.18 (in σ_hs)
-// whose rejection bias shrinks like √Δt (REFERENCE.md "Numerics").
+// whose rejection bias shrinks like √Δt (REFERENCES.md "Numerics").
 #[test]
 #[cfg_attr(
     debug_assertions,

@@ -2,7 +2,7 @@
 
 use crate::support::*;
 
-/// REFERENCE.md: free diffusion, MSD = 2 d D t and Gaussian displacements with
+/// REFERENCES.md: free diffusion, MSD = 2 d D t and Gaussian displacements with
 /// variance 2 D t per axis (Einstein 1905); D0 from Stokes–Einstein.
 #[test]
 fn free_diffusion_matches_stokes_einstein_from_outside() {
@@ -71,7 +71,7 @@ fn check_json_reports_species() {
     assert_eq!(sp["name"], "bead");
     assert_eq!(sp["count"], 2000);
     assert!((sp["radius_m"].as_f64().unwrap() - 4e-9).abs() < 1e-15);
-    // k_B T/(6π η a) with η from the water correlation at 298.15 K (REFERENCE.md, 0.8900 mPa·s ±1 %).
+    // k_B T/(6π η a) with η from the water correlation at 298.15 K (REFERENCES.md, 0.8900 mPa·s ±1 %).
     let d0 = sp["d0_m2_per_s"].as_f64().unwrap();
     let d0_table = 1.380649e-23 * 298.15 / (6.0 * std::f64::consts::PI * 0.8900e-3 * 4e-9);
     assert!((d0 / d0_table - 1.0).abs() < 0.01, "{d0} vs {d0_table}");

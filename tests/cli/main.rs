@@ -8,3 +8,4 @@ mod results;
 mod resume;
 mod support;
 mod threads;
+mod validate;

@@ -3,11 +3,9 @@
 
 #![allow(dead_code)] // each test file uses a different part
 
-use ndarray::Array3;
 use std::path::Path;
-use thicket_analysis::camera::Camera;
-use thicket_analysis::tracks::{SpeciesTruth, TrackSet};
-use thicket_engine::integrate::{advance_free, kinetics, State};
+use thicket_analysis::camera::image_free_in_memory;
+use thicket_analysis::tracks::TrackSet;
 use thicket_engine::Scenario;
 
 /// One free species of diffusivity `d_m2_per_s` in a periodic cube of edge
@@ -40,63 +38,15 @@ pub fn image(scenario: &Scenario) -> TrackSet {
     image_in_windows(scenario, 64)
 }
 
-/// As [`image`], handing the camera `window` recorded positions at a time.
+/// As [`image`], handing the camera `window` recorded positions at a time
+/// (the library's in-memory path, shared with `thicket validate`).
 pub fn image_in_windows(scenario: &Scenario, window: usize) -> TrackSet {
     assert_eq!(
         scenario.species.len(),
         1,
         "the in-memory helper images one species"
     );
-    let camera = Camera::new(scenario).expect("the scenario has a camera");
-    let kin = kinetics(scenario);
-    let mut state = State::initial(scenario);
-    let n = state.len();
-    let needed = camera.samples_needed();
-    let mut imaging = camera.start(0, 0, n);
-    let mut done = 0;
-    while done < needed {
-        let w = window.min(needed - done);
-        let mut buf = Array3::<f64>::zeros((w, n, 3));
-        for t in 0..w {
-            if done + t > 0 {
-                advance_free(
-                    &mut state,
-                    &kin,
-                    &scenario.sim_box,
-                    scenario.output.record_every_steps,
-                );
-            }
-            for i in 0..n {
-                let p = state.unwrapped(i, &scenario.sim_box);
-                for k in 0..3 {
-                    buf[[t, i, k]] = p[k];
-                }
-            }
-        }
-        imaging.push(buf.view());
-        done += w;
-    }
-    let species = vec![SpeciesTruth {
-        name: scenario.species[0].name.clone(),
-        d0_m2_per_s: scenario.species[0].d0_m2_per_s,
-    }];
-    TrackSet::assemble(
-        imaging.finish(),
-        species,
-        camera
-            .region_names()
-            .iter()
-            .map(|r| r.to_string())
-            .collect(),
-        camera.summary(),
-        scenario.resolved_toml.clone(),
-    )
+    image_free_in_memory(scenario, window).expect("the scenario has a camera")
 }
 
-/// Mean and standard error of the mean.
-pub fn mean_se(v: &[f64]) -> (f64, f64) {
-    let n = v.len() as f64;
-    let m = v.iter().sum::<f64>() / n;
-    let var = v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (n - 1.0);
-    (m, (var / n).sqrt())
-}
+pub use thicket_analysis::direct::mean_se;

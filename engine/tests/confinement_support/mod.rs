@@ -2,10 +2,11 @@
 //! statistics.
 
 #![allow(dead_code)]
+// Each test file uses a different part of the re-exported helpers.
+#![allow(unused_imports)]
 
 use std::path::Path;
 use thicket_engine::confined::Confinement;
-use thicket_engine::integrate::State;
 use thicket_engine::Scenario;
 
 /// Free diffusivity of every test tracer, m²/s: 1e8 nm²/s keeps the numbers simple.
@@ -56,43 +57,5 @@ pub fn on_threads<T: Send>(threads: usize, f: impl FnOnce() -> T + Send) -> T {
 }
 
 /// Advances in blocks of at most `block` steps (the driver's way), `steps` in all.
-pub fn advance(
-    c: &Confinement,
-    state: &mut State,
-    steps: u64,
-    block: u64,
-) -> Vec<thicket_engine::confined::Counts> {
-    let mut totals = Vec::new();
-    let mut done = 0;
-    while done < steps {
-        let n = block.min(steps - done);
-        let counts = c.advance(state, n);
-        if totals.is_empty() {
-            totals = counts;
-        } else {
-            for (t, b) in totals.iter_mut().zip(counts) {
-                *t = *t + b;
-            }
-        }
-        done += n;
-    }
-    totals
-}
-
-/// Pearson's chi-square of counts against equal expected counts.
-pub fn chi_square_flat(counts: &[u64]) -> f64 {
-    let total: u64 = counts.iter().sum();
-    let expected = total as f64 / counts.len() as f64;
-    counts
-        .iter()
-        .map(|&c| (c as f64 - expected).powi(2) / expected)
-        .sum()
-}
-
-/// Mean and standard error of the mean.
-pub fn mean_se(values: &[f64]) -> (f64, f64) {
-    let n = values.len() as f64;
-    let mean = values.iter().sum::<f64>() / n;
-    let var = values.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (n - 1.0);
-    (mean, (var / n).sqrt())
-}
+pub use thicket_analysis::direct::advance_confined as advance;
+pub use thicket_analysis::direct::{chi_square_flat, mean_se};
