@@ -983,8 +983,9 @@ impl Report {
     /// A human-readable table of the report.
     pub fn to_table(&self) -> String {
         let mut s = String::new();
-        let e = |v: f64| format!("{v:.4e}");
-        let pair = |p: [f64; 2]| format!("[{:.4e}, {:.4e}]", p[0], p[1]);
+        use crate::format::{sig, with_interval};
+        let e = |v: f64| sig(v, 4);
+        let window = |p: [f64; 2]| format!("{}–{}", sig(p[0], 3), sig(p[1], 3));
         let _ = writeln!(
             s,
             "thicket analysis of {} (species '{}')",
@@ -1015,16 +1016,12 @@ impl Report {
         row(
             "D_eff (95 % CI)",
             format!(
-                "{} m²/s  {}{flag}",
-                e(self.d_eff_m2_per_s),
-                pair(self.d_eff_ci95_m2_per_s)
+                "{} m²/s{flag}",
+                with_interval(self.d_eff_m2_per_s, self.d_eff_ci95_m2_per_s)
             ),
         );
         if let (Some(r), Some(ci)) = (self.d_eff_over_d0, self.d_eff_over_d0_ci95) {
-            row(
-                "D_eff/D0 (95 % CI)",
-                format!("{r:.4}  [{:.4}, {:.4}]", ci[0], ci[1]),
-            );
+            row("D_eff/D0 (95 % CI)", with_interval(r, ci));
         }
         if let Some(tau) = self.tortuosity {
             row("tortuosity D0/D_eff", format!("{tau:.4}"));
@@ -1043,23 +1040,22 @@ impl Report {
             };
             row(
                 &format!("D_{}", names.get(a).unwrap_or(&"?")),
-                format!("{} m²/s  {}{bounded}", e(*d), pair(*ci)),
+                format!("{} m²/s{bounded}", with_interval(*d, *ci)),
             );
         }
         for o in &self.other_directions {
             let ratio = match (o.d_over_d0, o.d_over_d0_ci95) {
-                (Some(r), Some(ci)) => format!(", D/D0 = {r:.4} [{:.4}, {:.4}]", ci[0], ci[1]),
+                (Some(r), Some(ci)) => format!(", D/D0 = {}", with_interval(r, ci)),
                 _ => String::new(),
             };
             let flag = if o.apparent { "  APPARENT" } else { "" };
             row(
                 &format!("D {}", o.label),
                 format!(
-                    "{} m²/s  {}{ratio}, α = {:.3}, window {} s{flag}",
-                    e(o.d_m2_per_s),
-                    pair(o.ci95_m2_per_s),
+                    "{} m²/s{ratio}, α = {:.3}, window {} s{flag}",
+                    with_interval(o.d_m2_per_s, o.ci95_m2_per_s),
                     o.alpha_long,
-                    pair(o.fit_window_s)
+                    window(o.fit_window_s)
                 ),
             );
         }
@@ -1073,7 +1069,7 @@ impl Report {
             "fit window",
             format!(
                 "{} s ({source}, {} lags)",
-                pair(self.fit_window_s),
+                window(self.fit_window_s),
                 self.fit_lags
             ),
         );

@@ -3,6 +3,7 @@ pub mod direct;
 pub mod directions;
 pub mod error;
 pub mod estimators;
+pub mod format;
 pub mod model_table;
 pub mod models;
 pub mod msd;
