@@ -1,9 +1,12 @@
+pub mod blocks;
 pub mod camera;
 pub mod error;
 pub mod estimators;
+pub mod membrane;
 pub mod models;
 pub mod msd;
 pub mod plot;
+pub mod profile;
 pub mod read;
 pub mod report;
 pub mod sweep;
