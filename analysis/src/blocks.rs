@@ -66,11 +66,14 @@ impl Interval {
         }
     }
 
-    /// The same interval mapped through a monotone increasing `f`.
+    /// The same interval mapped through a monotone increasing `f` (the
+    /// standard error by the central difference of `f` over ± one SE).
     pub fn map(&self, f: impl Fn(f64) -> f64) -> Self {
         Self {
             value: f(self.value),
-            standard_error: None,
+            standard_error: self
+                .standard_error
+                .map(|se| 0.5 * (f(self.value + se) - f(self.value - se)).abs()),
             ci95: self.ci95.map(|[lo, hi]| [f(lo), f(hi)]),
             blocks: self.blocks,
         }
