@@ -477,7 +477,7 @@ pub fn analyze_membrane(path: &Path, species: Option<&str>) -> Result<MembraneAn
     }
     let permeability_over_steric = steric.map(|st| permeability.map(|p| p / st));
 
-    let time_lag = time_lag(&series, m, &scenario, k0, last, d0);
+    let time_lag = time_lag(&series, m, k0, last, d0);
     let profile = profile(&reader, m, a, k0, last, len, total.density)?;
     Ok(MembraneAnalysis {
         file: path.to_path_buf(),
@@ -514,14 +514,7 @@ pub fn analyze_membrane(path: &Path, species: Option<&str>) -> Result<MembraneAn
 
 /// Time lag from the membrane series: applies when the run starts with
 /// empty pores and an empty permeate reservoir and the permeate bath is held at 0.
-fn time_lag(
-    series: &Series,
-    m: &Membrane,
-    scenario: &Scenario,
-    k0: usize,
-    last: usize,
-    d0: f64,
-) -> TimeLag {
+fn time_lag(series: &Series, m: &Membrane, k0: usize, last: usize, d0: f64) -> TimeLag {
     let first = &series.rows[0];
     let feed_top = m.top_concentration_mol_per_m3 >= m.bottom_concentration_mol_per_m3;
     let (permeate_conc, permeate_res, exits, entries) = if feed_top {
@@ -563,7 +556,6 @@ fn time_lag(
         .iter()
         .map(|r| (r[exits] - r[entries]) as f64)
         .collect();
-    let _ = (k0, scenario);
     match time_lag_fit(&t[..=last], &q[..=last], series.time_s[k0]) {
         Some((t_lag, window)) if t_lag > 0.0 => {
             let d = m.thickness_nm().powi(2) / (6.0 * t_lag);

@@ -102,6 +102,9 @@ pub struct DensityProfile {
     pub open_from_nm: f64,
 }
 
+/// K of a group from its particle-frame count and its count in the reference region.
+type KFromCounts = Box<dyn Fn(f64, f64) -> f64>;
+
 /// How positions map to the profile coordinate and the reference region.
 enum Kind {
     Slit {
@@ -201,40 +204,36 @@ pub fn analyze_partition(path: &Path, species: Option<&str>) -> Result<Option<Pa
         }
     }
     // Per group: K and the profile over the reference density.
-    let (k_of, reference_text, exact, exact_source): (
-        Box<dyn Fn(f64, f64) -> f64>,
-        String,
-        Option<f64>,
-        String,
-    ) = match &kind {
-        Kind::Slit { width } => {
-            let w_ref = 0.5 * width - a;
-            let w = *width;
-            (
+    let (k_of, reference_text, exact, exact_source): (KFromCounts, String, Option<f64>, String) =
+        match &kind {
+            Kind::Slit { width } => {
+                let w_ref = 0.5 * width - a;
+                let w = *width;
+                (
                     Box::new(move |n, r| n * w_ref / (w * r)),
                     format!("|z - W/2| <= (W/2 - a)/2 = {:.4} nm (the central half of the open gap)", 0.5 * w_ref),
                     models::partition_slit(a, 0.5 * w).ok(),
                     "(W - 2a)/W = 1 - a/h, exact steric partition of a slit (REFERENCE.md; models::partition_slit)".into(),
                 )
-        }
-        Kind::Cylinder { radius, .. } => {
-            let rho_ref = (radius - a) / 2f64.sqrt();
-            let r = *radius;
-            (
+            }
+            Kind::Cylinder { radius, .. } => {
+                let rho_ref = (radius - a) / 2f64.sqrt();
+                let r = *radius;
+                (
                     Box::new(move |n, c| n * rho_ref * rho_ref / (r * r * c)),
                     format!("rho <= (r - a)/sqrt(2) = {rho_ref:.4} nm (the half of the open cross-section nearest the axis)"),
                     models::partition_cylinder(a / r).ok(),
                     "(1 - a/r)^2, exact steric partition of a cylindrical pore (REFERENCE.md; models::partition_cylinder)".into(),
                 )
-        }
-        Kind::Obstacles {
-            reference_from,
-            reference_share,
-            ..
-        } => {
-            let v = *reference_share;
-            let poisson = poisson_exact(&scenario, a);
-            (
+            }
+            Kind::Obstacles {
+                reference_from,
+                reference_share,
+                ..
+            } => {
+                let v = *reference_share;
+                let poisson = poisson_exact(&scenario, a);
+                (
                     Box::new(move |n, r| n * v / r),
                     format!(
                         "distance from the nearest obstacle surface >= {reference_from:.4} nm (the farther half of the open space by sampled volume, {v:.4} of the box)"
@@ -245,8 +244,8 @@ pub fn analyze_partition(path: &Path, species: Option<&str>) -> Result<Option<Pa
                         None => "no exact value for these obstacles; compare with the sampled open fraction".into(),
                     },
                 )
-        }
-    };
+            }
+        };
     let total_n: f64 = count.iter().sum();
     let total_ref: f64 = reference.iter().sum();
     let k_total = k_of(total_n, total_ref);
