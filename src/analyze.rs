@@ -17,6 +17,11 @@ pub fn analyze_trajectory(
 ) -> Result<ExitCode> {
     // Recycled particles make an MSD meaningless in a membrane: its own report instead.
     if crate::confined::is_membrane(file) {
+        anyhow::ensure!(
+            window.is_none() && d0.is_none(),
+            "{}: --window and --d0 set an MSD fit, which a membrane file does not get (its D0 is stored); leave them out",
+            file.display()
+        );
         crate::confined::membrane_report(file, species, plot, as_json)?;
         return Ok(ExitCode::SUCCESS);
     }

@@ -52,6 +52,8 @@ fn membrane_file_gets_the_membrane_report() {
         "{table}"
     );
     assert!(table.contains("membrane permeability"));
+    let fit = thicket(dir.path(), &["analyze", "m.h5", "--window", "1e-7,2e-7"]);
+    assert!(!fit.status.success() && stderr(&fit).contains("--window"));
 
     // --plot writes the profile CSV; a second time it refuses and leaves the file alone.
     ok(&thicket(dir.path(), &["analyze", "m.h5", "--plot", "m"]));
