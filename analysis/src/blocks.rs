@@ -4,7 +4,7 @@
 //! **Block rule.** The integrated autocorrelation time τ_int of each series
 //! (in frames, τ_int = ½ + Σ_{k≥1} ρ(k)) is estimated with Sokal's automatic
 //! window (the sum stops at the first M ≥ 5 τ_int(M); Sokal, "Monte Carlo
-//! methods in statistical mechanics", 1997). Blocks are at least
+//! methods in statistical mechanics", 1997; from memory). Blocks are at least
 //! [`BLOCK_TAUS`] × τ_int long (the slowest of the series that enter an
 //! estimate), so that block means are close to independent; the interval is
 //! mean ± t₀.₉₇₅(B − 1) · s/√B over the B blocks. With fewer than

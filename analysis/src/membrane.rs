@@ -27,13 +27,14 @@
 //! totals; the interval comes from the spread of the same ratio over blocks.
 //!
 //! **Time lag** (Barrer 1939; Crank, *The Mathematics of Diffusion*, 2nd
-//! ed., §4.3.2): for a layer of thickness L, initially empty, between a
+//! ed., §4.3.2; references from memory): for a layer of thickness L,
+//! initially empty, between a
 //! source at fixed concentration and a sink, the amount through it tends to
 //! Q(t) = (D C₁/L)(t − L²/(6D)). The estimate fits a straight line to the
 //! cumulative amount delivered to the permeate bath over the steady-state
 //! window; the intercept on the time axis is t_lag, D_membrane = L²/(6 t_lag).
 //! Between thicket's baths the reservoir layers and the pore mouths add to
-//! the lag, so this D_membrane is a lower bound on the pore-interior value.
+//! the lag, so this D_membrane is an apparent value that includes them.
 
 use std::collections::BTreeMap;
 use std::io::Write;
@@ -561,7 +562,7 @@ fn time_lag(series: &Series, m: &Membrane, k0: usize, last: usize, d0: f64) -> T
             let d = m.thickness_nm().powi(2) / (6.0 * t_lag);
             TimeLag {
                 applies: true,
-                reason: "the run started from an empty membrane with the permeate bath at zero; the reservoir layers and pore mouths add to the lag, so D_membrane = L^2/(6 t_lag) is a lower bound".into(),
+                reason: "the run started from an empty membrane with the permeate bath at zero; the reservoir layers and pore mouths add to the lag, so D_membrane = L^2/(6 t_lag) is an apparent value that includes them".into(),
                 t_lag_s: Some(t_lag),
                 d_membrane_m2_per_s: Some(d * 1e-18),
                 d_membrane_over_d0: Some(d / d0),

@@ -367,7 +367,7 @@ pub fn analyze_partition(path: &Path, species: Option<&str>) -> Result<Option<Pa
 /// Var = (1/V) ∫₀^{2R} 4πr² [(1 − (2v − V∩)/V)^N − (1 − 2x)^N] dr
 ///       + (1 − 2x)^N − (1 − x)^{2N},
 /// the conditional form of the Boolean-model covariance (Chiu, Stoyan,
-/// Kendall & Mecke, *Stochastic Geometry*, ch. 3). The mean given N is
+/// Kendall & Mecke, *Stochastic Geometry*, ch. 3; from memory). The mean given N is
 /// (1 − x)^N, which differs from the exponential by N x²/2 relative
 /// (below 10⁻³ for any box much larger than the spheres).
 fn poisson_exact(scenario: &Scenario, a: f64) -> Option<(f64, f64)> {

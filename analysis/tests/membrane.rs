@@ -130,7 +130,8 @@ fn membrane_analysis_against_steric_values_and_the_run_summary() {
     assert!(pores.first().unwrap() < pores.last().unwrap());
 }
 
-/// Crank, *The Mathematics of Diffusion* (2nd ed.), eq. 4.24a: the amount through a membrane of
+/// Crank, *The Mathematics of Diffusion* (2nd ed.), eq. 4.24a (equation number
+/// from memory): the amount through a membrane of
 /// thickness L, initially empty, with C₁ at x = 0 and 0 at x = L:
 /// Q/(L C₁) = Dt/L² − 1/6 − (2/π²) Σ (−1)ⁿ/n² exp(−D n² π² t/L²); its asymptote crosses the
 /// time axis at L²/(6D) (the Barrer time lag).
