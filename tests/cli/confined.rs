@@ -111,3 +111,37 @@ fn slit_file_gets_a_partition_coefficient() {
         "s_profile.csv"
     );
 }
+
+#[test]
+fn membrane_numbers_equal_numpy_from_h5py() {
+    let dir = tempdir();
+    run_config(
+        dir.path(),
+        "membrane.toml",
+        "m.h5",
+        &[
+            "species.solute.count=600",
+            "integrator.steps=20000",
+            "output.record_every_steps=500",
+            "geometry.flux_after_s=8e-7",
+            "geometry.wall_hydrodynamics=false",
+        ],
+    );
+    let json: serde_json::Value =
+        serde_json::from_str(&ok(&thicket(dir.path(), &["analyze", "m.h5", "--json"]))).unwrap();
+    let file = dir.path().join("m.h5");
+    let py = python_json("membrane_check.py", &[file.to_str().unwrap(), "solute"]);
+    // The same definitions computed independently with numpy on the file read by h5py: rounding only.
+    for (ours, theirs) in [
+        ("flux_particles_per_s", "flux_particles_per_s"),
+        (
+            "permeability_bath_to_bath_m_per_s",
+            "permeability_bath_to_bath_m_per_s",
+        ),
+        ("partition", "partition"),
+    ] {
+        let a = json[ours]["value"].as_f64().unwrap();
+        let b = py[theirs].as_f64().unwrap();
+        assert!((a / b - 1.0).abs() < 1e-9, "{ours}: {a} vs numpy {b}");
+    }
+}
