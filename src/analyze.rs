@@ -15,6 +15,16 @@ pub fn analyze_trajectory(
     plot: Option<&Path>,
     as_json: bool,
 ) -> Result<ExitCode> {
+    // Recycled particles make an MSD meaningless in a membrane: its own report instead.
+    if crate::confined::is_membrane(file) {
+        anyhow::ensure!(
+            window.is_none() && d0.is_none(),
+            "{}: --window and --d0 set an MSD fit, which a membrane file does not get (its D0 is stored); leave them out",
+            file.display()
+        );
+        crate::confined::membrane_report(file, species, plot, as_json)?;
+        return Ok(ExitCode::SUCCESS);
+    }
     let mut options = AnalyzeOptions {
         d0_m2_per_s: d0,
         ..AnalyzeOptions::default()
@@ -36,10 +46,18 @@ pub fn analyze_trajectory(
     }
     let analysis = analyze(file, species, &options)?;
     let report = &analysis.report;
+    let partition = crate::confined::partition_report(file, species, plot)?;
     if as_json {
-        println!("{}", serde_json::to_string_pretty(report)?);
+        let mut value = serde_json::to_value(report)?;
+        if let (Some(p), Some(map)) = (&partition, value.as_object_mut()) {
+            map.insert("partition".into(), serde_json::to_value(p)?);
+        }
+        println!("{}", serde_json::to_string_pretty(&value)?);
     } else {
         print!("{}", report.to_table());
+        if let Some(p) = &partition {
+            print!("{}", p.to_table());
+        }
         println!("{}", thicket_analysis::sweep::CAUTION);
     }
     if let Some(prefix) = plot {

@@ -3,6 +3,7 @@
 
 mod analyze;
 mod check;
+mod confined;
 mod demo;
 mod models;
 mod progress;

@@ -91,7 +91,8 @@ pub fn run(
     }
 }
 
-/// After a membrane run, the steady-state results the file now holds, per species.
+/// After a membrane run, the steady-state results per species, from the
+/// membrane analysis (the numbers `thicket analyze` prints, with intervals).
 fn print_membrane_results(scenario: &Scenario, out: &Path) {
     let is_membrane = scenario
         .geometry
@@ -100,47 +101,6 @@ fn print_membrane_results(scenario: &Scenario, out: &Path) {
     if !is_membrane {
         return;
     }
-    let Ok(file) = thicket_analysis::read::Trajectory::open(out) else {
-        return;
-    };
-    let shown = [
-        (
-            "flux_particles_per_s",
-            "net flux through the slab, particles/s",
-        ),
-        (
-            "membrane_permeability_m_per_s",
-            "membrane permeability, m/s",
-        ),
-        ("hindrance_measured", "hindrance H = P L / (ε D0)"),
-        (
-            "pore_concentration_over_mean_bath",
-            "pore over mean bath concentration",
-        ),
-        (
-            "partition_coefficient_steric",
-            "steric partition coefficient",
-        ),
-    ];
-    for s in &scenario.species {
-        let Ok(results) = file.membrane_results(&s.name) else {
-            continue;
-        };
-        if results.is_empty() {
-            println!(
-                "  {}: no steady-state window (the run ended before membrane flux_after_s)",
-                s.name
-            );
-            continue;
-        }
-        println!(
-            "  {} (steady state, model estimates; details in /observables/{}/membrane):",
-            s.name, s.name
-        );
-        for (key, label) in shown {
-            if let Some((_, v)) = results.iter().find(|(k, _)| k == key) {
-                println!("    {label:<40} {v:.4e}");
-            }
-        }
-    }
+    let names: Vec<String> = scenario.species.iter().map(|s| s.name.clone()).collect();
+    crate::confined::print_membrane_summary(out, &names);
 }

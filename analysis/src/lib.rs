@@ -1,13 +1,16 @@
+pub mod blocks;
 pub mod camera;
 pub mod direct;
 pub mod directions;
 pub mod error;
 pub mod estimators;
 pub mod format;
+pub mod membrane;
 pub mod model_table;
 pub mod models;
 pub mod msd;
 pub mod plot;
+pub mod profile;
 pub mod read;
 pub mod report;
 pub mod run_length;

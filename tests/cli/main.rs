@@ -2,6 +2,7 @@
 
 mod analysis;
 mod bad_input;
+mod confined;
 mod file_format;
 mod free;
 mod results;
