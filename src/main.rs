@@ -94,12 +94,12 @@ enum Command {
     },
     /// Analyse a trajectory: MSD, D_eff with its 95 % interval, α, models.
     Analyze {
-        /// Trajectory (HDF5, H5MD layout), or a tracks CSV from `thicket tracks` (estimates against the truth beside it).
+        /// Trajectory (HDF5, H5MD layout), or a tracks CSV: from `thicket tracks` (estimates against the truth beside it) or another pipeline (see the tracks CSV options).
         file: PathBuf,
         /// Print one JSON object instead of a table.
         #[arg(long)]
         json: bool,
-        /// Write PREFIX_msd.{svg,png} and PREFIX_alpha.{svg,png}.
+        /// Write PREFIX_msd.{svg,png} and PREFIX_alpha.{svg,png}; for a tracks CSV, PREFIX_d_hist.{svg,png} and PREFIX_tracks.csv.
         #[arg(long, value_name = "PREFIX")]
         plot: Option<PathBuf>,
         /// Species to analyse (default: the first).
