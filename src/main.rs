@@ -95,12 +95,12 @@ enum Command {
     },
     /// Analyse a trajectory: MSD, D_eff with its 95 % interval, α, models.
     Analyze {
-        /// Trajectory (HDF5, H5MD layout), or a tracks CSV from `thicket tracks` (estimates against the truth beside it).
+        /// Trajectory (HDF5, H5MD layout), or a tracks CSV: from `thicket tracks` (estimates against the truth beside it) or another pipeline (see the tracks CSV options).
         file: PathBuf,
         /// Print one JSON object instead of a table.
         #[arg(long)]
         json: bool,
-        /// Write PREFIX_msd.{svg,png} and PREFIX_alpha.{svg,png}.
+        /// Write PREFIX_msd.{svg,png} and PREFIX_alpha.{svg,png}; for a tracks CSV, PREFIX_d_hist.{svg,png} and PREFIX_tracks.csv.
         #[arg(long, value_name = "PREFIX")]
         plot: Option<PathBuf>,
         /// Species to analyse (default: the first).
@@ -115,6 +115,8 @@ enum Command {
         /// Axes of the headline D_eff, e.g. xy or z (default: what the geometry defines: lateral in a slit, axial in a pore, all axes in an open box).
         #[arg(long, value_name = "AXES")]
         axes: Option<String>,
+        #[command(flatten)]
+        track_csv: TrackCsvArgs,
     },
     /// Run a grid of scenarios × seeds and summarise D_eff/D0 beside the models.
     Sweep {
@@ -154,6 +156,60 @@ enum Command {
     },
 }
 
+/// Options of `thicket analyze TRACKS.csv` for tracks from other pipelines
+/// (README, "Synthetic tracks").
+#[derive(clap::Args, Debug, Clone, Default)]
+#[command(next_help_heading = "Tracks CSV (other pipelines)")]
+struct TrackCsvArgs {
+    /// Which column holds what: KEY=COLUMN pairs, keys track, frame, time, x, y, z; COLUMN a header name or a 1-based number, e.g. track=TRACK_ID,frame=FRAME,x=POSITION_X,y=POSITION_Y (default: thicket's own track_id, frame, time_s, x_nm, y_nm[, z_nm]).
+    #[arg(long, value_name = "KEY=COLUMN,...")]
+    columns: Option<String>,
+    /// Unit of the position columns: nm, um (µm), or px with --pixel-size (default nm).
+    #[arg(long, value_name = "UNIT")]
+    length_unit: Option<String>,
+    /// Pixel size in nm, with --length-unit px.
+    #[arg(long, value_name = "NM", allow_hyphen_values = true)]
+    pixel_size: Option<f64>,
+    /// Unit of the time column: s or ms (default s).
+    #[arg(long, value_name = "UNIT")]
+    time_unit: Option<String>,
+    /// Frame interval in seconds, for files with frame numbers but no times (or times off a grid).
+    #[arg(long, value_name = "S", allow_hyphen_values = true)]
+    frame_interval: Option<f64>,
+    /// Exposure time per frame in seconds, 0 to the frame interval: sets the blur factor R = t_E/(6Δt) (default: from the truth file beside a thicket CSV, else R = 1/6).
+    #[arg(long, value_name = "S", allow_hyphen_values = true)]
+    exposure: Option<f64>,
+    /// Lines to skip after the header row (rows of units or descriptions).
+    #[arg(long, value_name = "N")]
+    skip_rows: Option<usize>,
+    /// Write the per-track table (CSV) here (default with --plot PREFIX: PREFIX_tracks.csv).
+    #[arg(long, value_name = "FILE")]
+    tracks_table: Option<PathBuf>,
+    /// Overwrite an existing per-track table and histogram.
+    #[arg(long)]
+    force: bool,
+}
+
+impl TrackCsvArgs {
+    /// Options given, by name (they apply to a tracks CSV only).
+    fn given(&self) -> Vec<&'static str> {
+        [
+            (self.columns.is_some(), "--columns"),
+            (self.length_unit.is_some(), "--length-unit"),
+            (self.pixel_size.is_some(), "--pixel-size"),
+            (self.time_unit.is_some(), "--time-unit"),
+            (self.frame_interval.is_some(), "--frame-interval"),
+            (self.exposure.is_some(), "--exposure"),
+            (self.skip_rows.is_some(), "--skip-rows"),
+            (self.tracks_table.is_some(), "--tracks-table"),
+            (self.force, "--force"),
+        ]
+        .into_iter()
+        .filter_map(|(on, name)| on.then_some(name))
+        .collect()
+    }
+}
+
 fn main() -> ExitCode {
     restore_default_sigpipe();
     let cli = Cli::parse();
@@ -181,20 +237,39 @@ fn main() -> ExitCode {
             window,
             d0,
             axes,
+            track_csv: t,
         } if file
             .extension()
             .is_some_and(|e| e.eq_ignore_ascii_case("csv")) =>
         {
-            tracks::analyze_tracks_csv(
-                &file,
+            tracks::analyze_tracks_csv(&tracks::AnalyzeTracksArgs {
+                path: file,
                 json,
-                plot.is_some()
-                    || species.is_some()
+                plot,
+                trajectory_options: species.is_some()
                     || window.is_some()
                     || d0.is_some()
                     || axes.is_some(),
-            )
+                import: thicket_analysis::track_import::ImportOptions {
+                    columns: t.columns,
+                    length_unit: t.length_unit,
+                    pixel_size_nm: t.pixel_size,
+                    time_unit: t.time_unit,
+                    frame_interval_s: t.frame_interval,
+                    skip_rows: t.skip_rows.unwrap_or(0),
+                },
+                exposure_s: t.exposure,
+                tracks_table: t.tracks_table,
+                force: t.force,
+            })
         }
+        Command::Analyze {
+            file, track_csv, ..
+        } if !track_csv.given().is_empty() => Err(anyhow::anyhow!(
+            "{}: {} apply to a tracks CSV (.csv), not to a trajectory",
+            file.display(),
+            track_csv.given().join(", ")
+        )),
         Command::Analyze {
             file,
             json,
@@ -203,6 +278,7 @@ fn main() -> ExitCode {
             window,
             d0,
             axes,
+            track_csv: _,
         } => analyze::analyze_trajectory(
             &file,
             species.as_deref(),

@@ -12,12 +12,14 @@
 
 use crate::progress;
 use anyhow::{bail, Context, Result};
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 use std::process::ExitCode;
 use std::time::Instant;
 use thicket_analysis::camera::image_trajectory_on;
+use thicket_analysis::track_import::{read_csv_with, ImportOptions, TrackCsvLayout};
+use thicket_analysis::track_outputs::{d_histogram_paths, write_d_histogram, write_track_table};
 use thicket_analysis::tracks::{
-    analyze_track_table, read_csv, read_truth, truth_path_for, TrackAnalysisOptions, TracksError,
+    analyze_track_table, read_truth, truth_path_for, TrackAnalysisOptions, TracksError,
 };
 use thicket_engine::run::{RunOptions, RunOutcome};
 use thicket_engine::Scenario;
@@ -146,26 +148,97 @@ pub fn tracks(args: &TracksArgs) -> Result<ExitCode> {
     Ok(ExitCode::SUCCESS)
 }
 
+/// What `thicket analyze TRACKS.csv` is asked to do.
+#[derive(Debug, Clone)]
+pub struct AnalyzeTracksArgs {
+    /// The tracks CSV.
+    pub path: PathBuf,
+    /// Print JSON instead of tables.
+    pub json: bool,
+    /// `--plot PREFIX`: histogram of per-track D and, unless `--tracks-table`
+    /// says otherwise, the per-track table `PREFIX_tracks.csv`.
+    pub plot: Option<PathBuf>,
+    /// Options meant for trajectories were given (refused).
+    pub trajectory_options: bool,
+    /// Layout and units of the CSV.
+    pub import: ImportOptions,
+    /// `--exposure`, s.
+    pub exposure_s: Option<f64>,
+    /// `--tracks-table FILE`.
+    pub tracks_table: Option<PathBuf>,
+    /// Overwrite existing outputs.
+    pub force: bool,
+}
+
 /// `thicket analyze TRACKS.csv`: per-track D and σ² by the covariance
 /// estimator and the MSD fit, against the truth in the `.h5` file beside the
-/// CSV when there is one (bias and spread per species and region).
-/// `trajectory_options` is true when options meant for trajectories were given.
-pub fn analyze_tracks_csv(path: &Path, json: bool, trajectory_options: bool) -> Result<ExitCode> {
-    if trajectory_options {
-        bail!("{}: --plot, --species, --window and --d0 apply to trajectories (.h5); a tracks CSV takes only --json", path.display());
+/// CSV when there is one (bias and spread per species and region), else
+/// their distribution over tracks; optionally the per-track table and a
+/// histogram of D. Every option is checked and every output path is free
+/// (or `--force`) before anything is written.
+pub fn analyze_tracks_csv(args: &AnalyzeTracksArgs) -> Result<ExitCode> {
+    let path = args.path.as_path();
+    if args.trajectory_options {
+        bail!("{}: --species, --window, --d0 and --axes apply to trajectories (.h5); a tracks CSV takes --json, --plot and the tracks CSV options (see thicket analyze --help)", path.display());
     }
-    let table = read_csv(path)?;
+    let layout = TrackCsvLayout::from_options(path, &args.import)?;
+    let table_path = args.tracks_table.clone().or_else(|| {
+        args.plot
+            .as_ref()
+            .map(|p| PathBuf::from(format!("{}_tracks.csv", p.display())))
+    });
+    let mut outputs: Vec<PathBuf> = table_path.iter().cloned().collect();
+    if let Some(prefix) = &args.plot {
+        outputs.extend(d_histogram_paths(prefix));
+    }
+    for p in &outputs {
+        if p == path || p == &truth_path_for(path) {
+            bail!(
+                "{}: an output would replace the input; choose another --plot PREFIX or --tracks-table FILE",
+                p.display()
+            );
+        }
+        if p.exists() && !args.force {
+            bail!(
+                "{}: the output file exists; pass --force to overwrite it",
+                p.display()
+            );
+        }
+    }
+    let table = read_csv_with(path, &layout)?;
     let truth_path = truth_path_for(path);
     let truth = if truth_path.exists() {
         Some(read_truth(&truth_path)?)
     } else {
         None
     };
-    let report = analyze_track_table(&table, truth.as_ref(), &TrackAnalysisOptions::default())?;
-    if json {
+    let options = TrackAnalysisOptions {
+        exposure_s: args.exposure_s,
+        ..TrackAnalysisOptions::default()
+    };
+    let report = analyze_track_table(&table, truth.as_ref(), &options)?;
+    if args.json {
         println!("{}", serde_json::to_string_pretty(&report)?);
     } else {
         print!("{}", report.to_text());
+    }
+    let mut written = Vec::new();
+    if let Some(t) = &table_path {
+        write_track_table(t, &report)?;
+        written.push(t.clone());
+    }
+    if let Some(prefix) = &args.plot {
+        written.extend(write_d_histogram(prefix, &report)?);
+    }
+    if !written.is_empty() {
+        let names: Vec<String> = written.iter().map(|p| p.display().to_string()).collect();
+        let line = format!("wrote {}", names.join(", "));
+        // JSON mode keeps stdout to one JSON object.
+        if args.json {
+            eprintln!("{line}");
+        } else {
+            println!("\n{line}");
+        }
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -16,5 +16,7 @@ pub mod report;
 pub mod run_length;
 pub mod sweep;
 pub mod sweep_plot;
+pub mod track_import;
+pub mod track_outputs;
 pub mod tracks;
 pub mod validate;

@@ -42,7 +42,7 @@
 
 use std::collections::BTreeMap;
 use std::fmt::Write as _;
-use std::io::{BufRead, BufWriter, Write};
+use std::io::{BufWriter, Write};
 use std::path::{Path, PathBuf};
 
 use hdf5::types::FixedAscii;
@@ -116,6 +116,26 @@ pub enum TracksError {
         value: String,
         /// What would be allowed.
         allowed: String,
+    },
+    /// An option describing a tracks CSV or its analysis is not allowed.
+    #[error("{}: {option} {value} is not allowed; allowed: {allowed}", file.display())]
+    Option {
+        /// The CSV the option applies to.
+        file: PathBuf,
+        /// Option name, e.g. `--length-unit`.
+        option: String,
+        /// The value given.
+        value: String,
+        /// What would be allowed.
+        allowed: String,
+    },
+    /// An output (table, plot) could not be written.
+    #[error("{}: {message}", file.display())]
+    Output {
+        /// Path concerned.
+        file: PathBuf,
+        /// What went wrong.
+        message: String,
     },
     /// A tracks HDF5 file lacks what the truth needs.
     #[error("{}: {what}; allowed: {allowed}", file.display())]
@@ -565,167 +585,17 @@ impl TrackTable {
     }
 }
 
-/// Reads a tracks CSV: a header naming at least `track_id`, `frame`, `x_nm`
-/// and `y_nm` (optionally `time_s`, `z_nm`; other columns are ignored), then
-/// one detection per row in any order.
+/// Reads a tracks CSV in thicket's own layout: a header naming at least
+/// `track_id`, `frame`, `x_nm` and `y_nm` (optionally `time_s`, `z_nm`;
+/// other columns are ignored), then one detection per row in any order.
+/// Other layouts: [`crate::track_import::read_csv_with`].
 ///
 /// # Errors
 /// [`TracksError::Io`], and [`TracksError::Csv`] naming the line and column
 /// of a missing column, a field that is not a number, a repeated frame in a
 /// track, or times inconsistent with one frame interval.
 pub fn read_csv(path: &Path) -> Result<TrackTable, TracksError> {
-    let file = std::fs::File::open(path).map_err(io_err(path))?;
-    let reader = std::io::BufReader::with_capacity(1 << 20, file);
-    let bad = |line: usize, column: &str, value: &str, allowed: &str| TracksError::Csv {
-        file: path.to_path_buf(),
-        line,
-        column: column.to_string(),
-        value: format!("{value:?}"),
-        allowed: allowed.to_string(),
-    };
-    let mut lines = reader.lines().enumerate();
-    let header =
-        loop {
-            match lines.next() {
-                None => return Err(bad(
-                    1,
-                    "header",
-                    "",
-                    "the file must start with a header row such as track_id,frame,time_s,x_nm,y_nm",
-                )),
-                Some((_, Err(source))) => {
-                    return Err(TracksError::Io {
-                        file: path.to_path_buf(),
-                        source,
-                    })
-                }
-                Some((_, Ok(l))) if l.trim().is_empty() => continue,
-                Some((i, Ok(l))) => break (i + 1, l),
-            }
-        };
-    let names: Vec<String> = header
-        .1
-        .trim()
-        .trim_start_matches('\u{feff}')
-        .split(',')
-        .map(|s| s.trim().to_string())
-        .collect();
-    let find = |name: &str| names.iter().position(|n| n == name);
-    let need = |name: &str| {
-        find(name).ok_or_else(|| bad(header.0, "header", &header.1, &format!("the header must name the column `{name}` (track_id, frame, x_nm, y_nm are required; time_s, z_nm optional)")))
-    };
-    let (c_id, c_frame, c_x, c_y) = (
-        need("track_id")?,
-        need("frame")?,
-        need("x_nm")?,
-        need("y_nm")?,
-    );
-    let (c_t, c_z) = (find("time_s"), find("z_nm"));
-    let dims = if c_z.is_some() { 3 } else { 2 };
-
-    let mut by_id: BTreeMap<i64, Vec<(i64, [f64; 3], usize)>> = BTreeMap::new();
-    let mut times: Vec<(i64, f64, usize)> = Vec::new();
-    for (i, l) in lines {
-        let l = l.map_err(io_err(path))?;
-        let line = i + 1;
-        if l.trim().is_empty() {
-            continue;
-        }
-        let fields: Vec<&str> = l.split(',').map(str::trim).collect();
-        if fields.len() != names.len() {
-            return Err(bad(
-                line,
-                "row",
-                &l,
-                &format!("every row must have {} fields like the header", names.len()),
-            ));
-        }
-        let num = |c: usize| -> Result<f64, TracksError> {
-            fields[c]
-                .parse::<f64>()
-                .ok()
-                .filter(|v| v.is_finite())
-                .ok_or_else(|| bad(line, &names[c], fields[c], "a finite number"))
-        };
-        let int = |c: usize| -> Result<i64, TracksError> {
-            fields[c]
-                .parse::<i64>()
-                .map_err(|_| bad(line, &names[c], fields[c], "a whole number"))
-        };
-        let id = int(c_id)?;
-        let frame = int(c_frame)?;
-        if frame < 0 {
-            return Err(bad(line, "frame", fields[c_frame], "a whole number ≥ 0"));
-        }
-        let z = match c_z {
-            Some(c) => num(c)?,
-            None => 0.0,
-        };
-        if let Some(c) = c_t {
-            times.push((frame, num(c)?, line));
-        }
-        by_id
-            .entry(id)
-            .or_default()
-            .push((frame, [num(c_x)?, num(c_y)?, z], line));
-    }
-
-    let mut tracks = Vec::with_capacity(by_id.len());
-    for (id, mut rows) in by_id {
-        rows.sort_by_key(|r| r.0);
-        if let Some(w) = rows.windows(2).find(|w| w[0].0 == w[1].0) {
-            return Err(bad(
-                w[1].2,
-                "frame",
-                &w[1].0.to_string(),
-                &format!("each frame at most once per track; track {id} has it twice"),
-            ));
-        }
-        tracks.push(ObservedTrack {
-            id,
-            frames: rows.iter().map(|r| r.0).collect(),
-            positions_nm: rows.iter().map(|r| r.1).collect(),
-        });
-    }
-    let frame_interval_s = frame_interval_from_times(&times)
-        .map_err(|(line, value, allowed)| bad(line, "time_s", &value, &allowed))?;
-    Ok(TrackTable {
-        path: path.to_path_buf(),
-        dims,
-        frame_interval_s,
-        tracks,
-    })
-}
-
-/// The frame interval implied by (frame, time) pairs: one Δt with
-/// time = frame × Δt + t0 for every row, to 1e-6 of Δt.
-fn frame_interval_from_times(
-    times: &[(i64, f64, usize)],
-) -> Result<Option<f64>, (usize, String, String)> {
-    let (Some(lo), Some(hi)) = (
-        times.iter().min_by_key(|t| t.0),
-        times.iter().max_by_key(|t| t.0),
-    ) else {
-        return Ok(None);
-    };
-    if hi.0 == lo.0 {
-        return Ok(None);
-    }
-    let dt = (hi.1 - lo.1) / (hi.0 - lo.0) as f64;
-    if !(dt.is_finite() && dt > 0.0) {
-        return Err((
-            hi.2,
-            hi.1.to_string(),
-            "times that increase with the frame number".into(),
-        ));
-    }
-    for &(f, t, line) in times {
-        let expected = lo.1 + (f - lo.0) as f64 * dt;
-        if (t - expected).abs() > 1e-6 * dt + 1e-9 * expected.abs() {
-            return Err((line, t.to_string(), format!("frame {f} at time {expected:e} s: one frame interval ({dt:e} s) for the whole file")));
-        }
-    }
-    Ok(Some(dt))
+    crate::track_import::read_csv_with(path, &crate::track_import::TrackCsvLayout::thicket())
 }
 
 /// Per-track covariance-based estimate (Vestergaard, Blainey & Flyvbjerg 2014).
@@ -1143,9 +1013,12 @@ pub fn read_truth(path: &Path) -> Result<Truth, TracksError> {
 pub struct TrackAnalysisOptions {
     /// Shortest track analysed, in detections. By default, [`DEFAULT_MIN_TRACK_FRAMES`].
     pub min_track_frames: usize,
-    /// Blur factor R to use; by default the truth file's, else 1/6 (exposure
-    /// equal to the frame interval).
+    /// Blur factor R to use; by default from `exposure_s`, else the truth
+    /// file's, else 1/6 (exposure equal to the frame interval).
     pub blur_factor: Option<f64>,
+    /// Exposure time t_E per frame, s (0 ≤ t_E ≤ Δt): R = t_E/(6Δt)
+    /// (Berglund 2010), unless `blur_factor` is given.
+    pub exposure_s: Option<f64>,
 }
 
 impl Default for TrackAnalysisOptions {
@@ -1153,6 +1026,7 @@ impl Default for TrackAnalysisOptions {
         Self {
             min_track_frames: DEFAULT_MIN_TRACK_FRAMES,
             blur_factor: None,
+            exposure_s: None,
         }
     }
 }
@@ -1170,6 +1044,10 @@ pub struct EstimateStats {
     pub se: f64,
     /// Median over tracks.
     pub median: f64,
+    /// Lower quartile over tracks.
+    pub q25: f64,
+    /// Upper quartile over tracks.
+    pub q75: f64,
     /// The true value, when known.
     pub truth: Option<f64>,
     /// Relative bias, mean/truth − 1.
@@ -1190,11 +1068,16 @@ impl EstimateStats {
         let se = sd / (n as f64).sqrt();
         let mut sorted = values.to_vec();
         sorted.sort_by(f64::total_cmp);
-        let median = match n {
-            0 => f64::NAN,
-            _ if n % 2 == 1 => sorted[n / 2],
-            _ => 0.5 * (sorted[n / 2 - 1] + sorted[n / 2]),
+        // Linear interpolation between order statistics (common practice; numpy's default).
+        let quantile = |q: f64| {
+            if n == 0 {
+                return f64::NAN;
+            }
+            let h = q * (n - 1) as f64;
+            let (i, f) = (h.floor() as usize, h.fract());
+            sorted[i] + f * (sorted[(i + 1).min(n - 1)] - sorted[i])
         };
+        let median = quantile(0.5);
         let known = truth.filter(|t| *t != 0.0);
         Self {
             tracks: n,
@@ -1202,6 +1085,8 @@ impl EstimateStats {
             sd,
             se,
             median,
+            q25: quantile(0.25),
+            q75: quantile(0.75),
             truth,
             bias: known.map(|t| m / t - 1.0),
             bias_se: known.map(|t| se / t.abs()),
@@ -1259,8 +1144,33 @@ pub struct TracksReport {
     pub detections: usize,
     /// Shortest track analysed.
     pub min_track_frames: usize,
+    /// Exposure time given, s (R = t_E/(6Δt)).
+    pub exposure_s: Option<f64>,
     /// One entry per species and region.
     pub groups: Vec<GroupReport>,
+    /// Estimates of every track of the file, in order of id (left out of
+    /// the JSON report; see [`crate::track_outputs::write_track_table`]).
+    #[serde(skip)]
+    pub per_track: Vec<TrackEstimate>,
+}
+
+/// The estimates of one track of a file.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TrackEstimate {
+    /// Track id.
+    pub id: i64,
+    /// Detections.
+    pub positions: usize,
+    /// Long enough to enter the report's groups.
+    pub analysed: bool,
+    /// Species from the truth file.
+    pub species: Option<String>,
+    /// True D0 from the truth file, m²/s.
+    pub d0_m2_per_s: Option<f64>,
+    /// Covariance estimate, when the track has two consecutive steps.
+    pub covariance: Option<CovarianceEstimate>,
+    /// MSD-fit estimate, when the track has lags 1 and 2.
+    pub msd_fit: Option<MsdFitEstimate>,
 }
 
 /// Per-track estimates of a table of tracks, grouped by species and region
@@ -1294,8 +1204,8 @@ pub fn analyze_track_table(
                 file: table.path.clone(),
                 line: 1,
                 column: "header".into(),
-                value: "no time_s column".into(),
-                allowed: "a time_s column (or the tracks .h5 file beside the CSV) so the frame interval is known, and tracks spanning at least two frames".into(),
+                value: "no time column".into(),
+                allowed: "a time column, --frame-interval S, or the tracks .h5 file beside the CSV, so the frame interval is known, and tracks spanning at least two frames".into(),
             })
         }
     };
@@ -1308,15 +1218,29 @@ pub fn analyze_track_table(
             "the tracks HDF5 file written together with this CSV",
         ));
     }
-    let (blur_factor, blur_factor_source) = match (options.blur_factor, truth) {
-        (Some(r), _) => (r, "given".to_string()),
-        (None, Some(t)) => (
+    if let Some(te) = options.exposure_s {
+        if !(te.is_finite() && te >= 0.0 && te <= frame_interval_s * (1.0 + 1e-9)) {
+            return Err(TracksError::Option {
+                file: table.path.clone(),
+                option: "--exposure".into(),
+                value: format!("{te:e}"),
+                allowed: format!("an exposure time in seconds from 0 to the frame interval, {frame_interval_s:e} s"),
+            });
+        }
+    }
+    let (blur_factor, blur_factor_source) = match (options.blur_factor, options.exposure_s, truth) {
+        (Some(r), _, _) => (r, "given".to_string()),
+        (None, Some(te), _) => (
+            te / (6.0 * frame_interval_s),
+            format!("exposure {te:e} s given: R = t_E/(6Δt)"),
+        ),
+        (None, None, Some(t)) => (
             t.blur_factor,
             format!("camera settings in {}", t.path.display()),
         ),
-        (None, None) => (
+        (None, None, None) => (
             1.0 / 6.0,
-            "assumed: exposure equal to the frame interval (R = 1/6); no truth file".to_string(),
+            "assumed: exposure equal to the frame interval (R = 1/6); no truth file and no --exposure".to_string(),
         ),
     };
 
@@ -1334,54 +1258,61 @@ pub fn analyze_track_table(
     }
     let mut groups: BTreeMap<(String, String), Acc> = BTreeMap::new();
     let lateral = table.dims.min(2);
-    for t in table
-        .tracks
-        .iter()
-        .filter(|t| t.frames.len() >= options.min_track_frames.max(3))
-    {
-        let (key, d0) = match truth {
-            Some(tr) => {
-                let row = tr.tracks.get(&t.id).ok_or_else(|| {
-                    mismatch(
-                        format!("no truth for track {}", t.id),
-                        "a truth file with every track id of the CSV",
-                    )
-                })?;
-                (
-                    (row.species.clone(), row.region.clone()),
-                    Some(row.d0_m2_per_s),
-                )
-            }
-            None => (("all".to_string(), "unknown".to_string()), None),
-        };
-        let acc = groups.entry(key).or_default();
-        acc.d0 = d0;
-        acc.tracks += 1;
-        acc.detections += t.frames.len();
-        if let Some(c) = covariance_estimate(
+    let mut per_track = Vec::with_capacity(table.tracks.len());
+    for t in &table.tracks {
+        let analysed = t.frames.len() >= options.min_track_frames.max(3);
+        let row = truth.and_then(|tr| tr.tracks.get(&t.id));
+        if analysed && truth.is_some() && row.is_none() {
+            return Err(mismatch(
+                format!("no truth for track {}", t.id),
+                "a truth file with every track id of the CSV",
+            ));
+        }
+        let covariance = covariance_estimate(
             &t.frames,
             &t.positions_nm,
             table.dims,
             frame_interval_s,
             blur_factor,
-        ) {
-            acc.cve_d.push(c.d_nm2_per_s * 1e-18);
-            acc.cve_s2.push(mean(&c.sigma2_axes_nm2[..lateral]));
-            if table.dims == 3 {
-                acc.cve_s2z.push(c.sigma2_axes_nm2[2]);
-            }
-        }
-        if let Some(m) = msd_fit_estimate(
+        );
+        let msd_fit = msd_fit_estimate(
             &t.frames,
             &t.positions_nm,
             table.dims,
             frame_interval_s,
             blur_factor,
-        ) {
-            acc.msd_d.push(m.d_nm2_per_s * 1e-18);
-            acc.msd_s2.push(mean(&m.sigma2_axes_nm2[..lateral]));
-            acc.lags.extend(m.lags_axes.iter().map(|&p| p as f64));
+        );
+        if analysed {
+            let key = row.map_or_else(
+                || ("all".to_string(), "unknown".to_string()),
+                |r| (r.species.clone(), r.region.clone()),
+            );
+            let acc = groups.entry(key).or_default();
+            acc.d0 = row.map(|r| r.d0_m2_per_s);
+            acc.tracks += 1;
+            acc.detections += t.frames.len();
+            if let Some(c) = &covariance {
+                acc.cve_d.push(c.d_nm2_per_s * 1e-18);
+                acc.cve_s2.push(mean(&c.sigma2_axes_nm2[..lateral]));
+                if table.dims == 3 {
+                    acc.cve_s2z.push(c.sigma2_axes_nm2[2]);
+                }
+            }
+            if let Some(m) = &msd_fit {
+                acc.msd_d.push(m.d_nm2_per_s * 1e-18);
+                acc.msd_s2.push(mean(&m.sigma2_axes_nm2[..lateral]));
+                acc.lags.extend(m.lags_axes.iter().map(|&p| p as f64));
+            }
         }
+        per_track.push(TrackEstimate {
+            id: t.id,
+            positions: t.frames.len(),
+            analysed,
+            species: row.map(|r| r.species.clone()),
+            d0_m2_per_s: row.map(|r| r.d0_m2_per_s),
+            covariance,
+            msd_fit,
+        });
     }
     let sigma2 = truth.map(|t| t.sigma_nm * t.sigma_nm);
     let sigma2_z = truth.and_then(|t| t.sigma_z_nm).map(|s| s * s);
@@ -1413,12 +1344,34 @@ pub fn analyze_track_table(
         tracks_analysed: groups.iter().map(|g| g.tracks).sum(),
         detections: table.detections(),
         min_track_frames: options.min_track_frames,
+        exposure_s: options.exposure_s,
         groups,
+        per_track,
     })
 }
 
+/// µm²/s in one m²/s.
+const UM2_PER_S_IN_M2_PER_S: f64 = 1e12;
+
+/// A number with four significant digits, fixed-point for 1e-3…1e5.
+fn sig4(v: f64) -> String {
+    if !v.is_finite() {
+        return "—".into();
+    }
+    let mag = if v == 0.0 {
+        0
+    } else {
+        v.abs().log10().floor() as i32
+    };
+    if (-3..5).contains(&mag) {
+        format!("{v:.*}", (3 - mag).max(0) as usize)
+    } else {
+        format!("{v:.3e}")
+    }
+}
+
 impl TracksReport {
-    /// The report as a readable table.
+    /// The report as a readable table (D in µm²/s; the JSON keeps m²/s).
     pub fn to_text(&self) -> String {
         let mut out = String::new();
         let _ = writeln!(
@@ -1431,10 +1384,11 @@ impl TracksReport {
             "  frame interval {:e} s, blur factor R = {:.4} ({}); {} tracks of ≥ {} detections analysed",
             self.frame_interval_s, self.blur_factor, self.blur_factor_source, self.tracks_analysed, self.min_track_frames
         );
+        let with_truth = self.truth_file.is_some();
         if let Some(t) = &self.truth_file {
             let _ = writeln!(out, "  truth from {t}; bias = mean over tracks / truth − 1 (± its standard error); spread = sd over tracks / truth");
         } else {
-            let _ = writeln!(out, "  no truth file beside the CSV: estimates only");
+            let _ = writeln!(out, "  no truth file beside the CSV: the distribution of the per-track estimates over tracks (mean, sd, quartiles)");
         }
         let pct = |v: Option<f64>| v.map_or("—".to_string(), |v| format!("{:+.1} %", 100.0 * v));
         for g in &self.groups {
@@ -1443,43 +1397,65 @@ impl TracksReport {
                 "\n  species {} in region {}: {} tracks, mean length {:.1} frames",
                 g.species, g.region, g.tracks, g.mean_track_frames
             );
-            let _ = writeln!(
-                out,
-                "    {:<26} {:>12} {:>12} {:>16} {:>10}",
-                "estimate", "mean", "truth", "bias", "spread"
-            );
-            // (label, statistics, printed in scientific notation)
-            let rows: [(&str, &EstimateStats, bool); 4] = [
-                ("D, covariance (m²/s)", &g.covariance_d_m2_per_s, true),
-                ("D, MSD fit (m²/s)", &g.msd_fit_d_m2_per_s, true),
-                ("σ², covariance (nm²)", &g.covariance_sigma2_nm2, false),
-                ("σ², MSD fit (nm²)", &g.msd_fit_sigma2_nm2, false),
-            ];
-            for (name, st, scientific) in rows {
-                let fmt = |v: f64| {
-                    if scientific {
-                        format!("{v:.4e}")
-                    } else {
-                        format!("{v:.1}")
-                    }
-                };
-                let bias = match (st.bias, st.bias_se) {
-                    (Some(b), Some(se)) => format!("{} ± {:.1}", pct(Some(b)), 100.0 * se),
-                    _ => "—".into(),
-                };
-                let spread = st.truth.filter(|t| *t != 0.0).map_or_else(
-                    || fmt(st.sd),
-                    |t| format!("{:.1} %", 100.0 * st.sd / t.abs()),
-                );
+            if with_truth {
                 let _ = writeln!(
                     out,
                     "    {:<26} {:>12} {:>12} {:>16} {:>10}",
-                    name,
-                    fmt(st.mean),
-                    st.truth.map_or("—".into(), fmt),
-                    bias,
-                    spread
+                    "estimate", "mean", "truth", "bias", "spread"
                 );
+            } else {
+                let _ = writeln!(
+                    out,
+                    "    {:<26} {:>12} {:>12} {:>12} {:>24}",
+                    "estimate", "mean", "sd", "median", "quartiles"
+                );
+            }
+            // (label, statistics, factor from the stored unit to the printed one)
+            let rows: [(&str, &EstimateStats, f64); 4] = [
+                (
+                    "D, covariance (µm²/s)",
+                    &g.covariance_d_m2_per_s,
+                    UM2_PER_S_IN_M2_PER_S,
+                ),
+                (
+                    "D, MSD fit (µm²/s)",
+                    &g.msd_fit_d_m2_per_s,
+                    UM2_PER_S_IN_M2_PER_S,
+                ),
+                ("σ², covariance (nm²)", &g.covariance_sigma2_nm2, 1.0),
+                ("σ², MSD fit (nm²)", &g.msd_fit_sigma2_nm2, 1.0),
+            ];
+            for (name, st, k) in rows {
+                let fmt = |v: f64| sig4(k * v);
+                if with_truth {
+                    let bias = match (st.bias, st.bias_se) {
+                        (Some(b), Some(se)) => format!("{} ± {:.1}", pct(Some(b)), 100.0 * se),
+                        _ => "—".into(),
+                    };
+                    let spread = st.truth.filter(|t| *t != 0.0).map_or_else(
+                        || fmt(st.sd),
+                        |t| format!("{:.1} %", 100.0 * st.sd / t.abs()),
+                    );
+                    let _ = writeln!(
+                        out,
+                        "    {:<26} {:>12} {:>12} {:>16} {:>10}",
+                        name,
+                        fmt(st.mean),
+                        st.truth.map_or("—".into(), fmt),
+                        bias,
+                        spread
+                    );
+                } else {
+                    let _ = writeln!(
+                        out,
+                        "    {:<26} {:>12} {:>12} {:>12} {:>24}",
+                        name,
+                        fmt(st.mean),
+                        fmt(st.sd),
+                        fmt(st.median),
+                        format!("{} … {}", fmt(st.q25), fmt(st.q75))
+                    );
+                }
             }
             if let Some(z) = &g.covariance_sigma2_z_nm2 {
                 let _ = writeln!(
@@ -1491,6 +1467,19 @@ impl TracksReport {
                     pct(z.bias)
                 );
             }
+            let root = |v: f64| {
+                if v >= 0.0 {
+                    format!("{:.1} nm", v.sqrt())
+                } else {
+                    "— (mean σ² < 0)".into()
+                }
+            };
+            let _ = writeln!(
+                out,
+                "    σ = √(mean σ²): covariance {}, MSD fit {}",
+                root(g.covariance_sigma2_nm2.mean),
+                root(g.msd_fit_sigma2_nm2.mean)
+            );
             let _ = writeln!(
                 out,
                 "    MSD fit used a median of {} lags",

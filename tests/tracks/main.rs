@@ -5,4 +5,5 @@ mod bad_input;
 mod bleaching;
 mod files;
 mod focal;
+mod import;
 mod support;
