@@ -61,8 +61,12 @@ pub fn analyze_trajectory(
         println!("{}", thicket_analysis::sweep::CAUTION);
     }
     if let Some(prefix) = plot {
-        let written = thicket_analysis::plot::write_plots(prefix, &analysis.msd, report)
+        let mut written = thicket_analysis::plot::write_plots(prefix, &analysis.msd, report)
             .with_context(|| format!("writing plots {}_*", prefix.display()))?;
+        written.extend(
+            thicket_analysis::plot::write_curves(prefix, &analysis.msd, report)
+                .with_context(|| format!("writing curves {}_*", prefix.display()))?,
+        );
         for p in written {
             eprintln!("wrote {}", p.display());
         }

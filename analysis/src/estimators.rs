@@ -254,6 +254,8 @@ pub struct Report {
     pub model_table: Vec<crate::model_table::ModelValue>,
     /// Everything the reader should know before trusting the numbers.
     pub warnings: Vec<String>,
+    /// The curves behind the numbers: MSD per axis, α(τ), van Hove.
+    pub curves: Option<crate::curves::Curves>,
 }
 
 /// The report together with the curves it was computed from (for plots).
@@ -304,12 +306,18 @@ pub fn analyze(
         }
     }
     let trajectory = Trajectory::open(path)?;
-    let reader = trajectory.species(species)?;
+    let scenario = crate::report::scenario_of(&trajectory, path);
+    // By default the first tracer: crowders are the medium, not what is measured.
+    let default_species = scenario
+        .as_ref()
+        .and_then(crate::sweep::default_species)
+        .filter(|name| trajectory.species_names().iter().any(|n| n == name));
+    let reader = trajectory.species(species.or(default_species.as_deref()))?;
     let meta = reader.meta().clone();
     let mut warnings = Vec::new();
     if species.is_none() && trajectory.species_names().len() > 1 {
         warnings.push(format!(
-            "the file holds species [{}]; analysed '{}' (choose another by name)",
+            "the file holds species [{}]; analysed '{}', the first tracer (choose another by name)",
             trajectory.species_names().join(", "),
             meta.name
         ));
@@ -338,7 +346,6 @@ pub fn analyze(
             meta.frames
         ));
     }
-    let scenario = crate::report::scenario_of(&trajectory, path);
     let found = crate::directions::directions(scenario.as_ref(), meta.dims);
     let (headline, others) = match (&options.axes, found.headline) {
         (Some(axes), _) => (
@@ -371,7 +378,15 @@ pub fn analyze(
             ));
         }
     }
-    let msd = compute_msd(&reader, &options.msd)?;
+    let msd_options = if options.msd.van_hove_lags.is_empty() {
+        crate::msd::MsdOptions {
+            van_hove_lags: crate::curves::default_van_hove_lags(meta.frames),
+            ..options.msd.clone()
+        }
+    } else {
+        options.msd.clone()
+    };
+    let msd = compute_msd(&reader, &msd_options)?;
     if msd.suspicious_jumps > 0 {
         warnings.push(format!(
             "the box is periodic but the file has no image counts, and {} frame-to-frame jumps exceed half a box edge: positions look wrapped, so the MSD is too small",
@@ -485,7 +500,10 @@ pub fn analyze(
         models: table.d_eff_over_d0(),
         model_table: table.entries,
         warnings,
+        curves: None,
     };
+    let mut report = report;
+    report.curves = Some(crate::curves::curves(&msd, &report));
     Ok(Analysis {
         report,
         msd,

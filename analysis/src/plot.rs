@@ -48,29 +48,68 @@ pub struct Colour {
     pub opacity: f64,
 }
 
-const BLUE_C: Colour = Colour {
-    rgb: (31, 119, 180),
+/// thicket's house palette, a woodland set of our own: the measurement in
+/// deep teal, models and further series in the order of [`SERIES`].
+pub const MEASURED: Colour = Colour {
+    rgb: (0, 104, 116),
     opacity: 1.0,
 };
-const ORANGE_C: Colour = Colour {
-    rgb: (230, 120, 20),
+
+/// Colours of further series (models, lags, species), in order of use.
+pub const SERIES: [Colour; 6] = [
+    Colour {
+        rgb: (181, 72, 28),
+        opacity: 1.0,
+    }, // rust
+    Colour {
+        rgb: (196, 146, 0),
+        opacity: 1.0,
+    }, // ochre
+    Colour {
+        rgb: (116, 66, 138),
+        opacity: 1.0,
+    }, // plum
+    Colour {
+        rgb: (86, 130, 52),
+        opacity: 1.0,
+    }, // moss
+    Colour {
+        rgb: (72, 96, 140),
+        opacity: 1.0,
+    }, // slate blue
+    Colour {
+        rgb: (150, 110, 80),
+        opacity: 1.0,
+    }, // bark
+];
+
+/// The colour of series `i` (cycling through [`SERIES`]).
+pub fn series(i: usize) -> Colour {
+    SERIES[i % SERIES.len()]
+}
+
+/// Apparent values: vermilion rings.
+pub const WARNING: Colour = Colour {
+    rgb: (222, 60, 40),
     opacity: 1.0,
 };
-const GREEN_C: Colour = Colour {
-    rgb: (44, 160, 44),
-    opacity: 1.0,
-};
+
+const BLUE_C: Colour = MEASURED;
+const ORANGE_C: Colour = SERIES[0];
+const GREEN_C: Colour = SERIES[3];
 const GREY_C: Colour = Colour {
-    rgb: (90, 90, 90),
+    rgb: (70, 70, 70),
     opacity: 1.0,
 };
+/// Fit windows: pale sage.
 const WINDOW_C: Colour = Colour {
-    rgb: (255, 200, 60),
-    opacity: 0.25,
+    rgb: (170, 205, 150),
+    opacity: 0.3,
 };
 
 impl Colour {
-    fn with_opacity(self, opacity: f64) -> Colour {
+    /// The same colour at another opacity.
+    pub fn with_opacity(self, opacity: f64) -> Colour {
         Colour { opacity, ..self }
     }
 
@@ -161,6 +200,31 @@ pub fn write_plots(prefix: impl AsRef<Path>, msd: &Msd, report: &Report) -> Resu
         written.push(svg);
         let png = PathBuf::from(format!("{prefix}_{name}.png"));
         render_png(&fig, &png, text)?;
+        written.push(png);
+    }
+    Ok(written)
+}
+
+/// Writes `PREFIX_van_hove.svg` and `.png` (the displacement distribution
+/// against the Gaussian) when the analysis has van Hove data, and the
+/// curve tables `PREFIX_msd.csv` and `PREFIX_van_hove.csv`; returns their paths.
+///
+/// # Errors
+/// [`ErrorKind::Output`] if a file cannot be written.
+pub fn write_curves(prefix: impl AsRef<Path>, msd: &Msd, report: &Report) -> Result<Vec<PathBuf>> {
+    let prefix = prefix.as_ref();
+    let curves = report
+        .curves
+        .clone()
+        .unwrap_or_else(|| crate::curves::curves(msd, report));
+    let mut written = crate::curves::write_tables(prefix, &curves)?;
+    if let Some(fig) = crate::curves::van_hove_figure(&curves, report) {
+        let base = prefix.display().to_string();
+        let svg = PathBuf::from(format!("{base}_van_hove.svg"));
+        std::fs::write(&svg, render_svg(&fig)).map_err(|e| output_error(&svg, e))?;
+        written.push(svg);
+        let png = PathBuf::from(format!("{base}_van_hove.png"));
+        render_png(&fig, &png, png_font_available())?;
         written.push(png);
     }
     Ok(written)
@@ -651,28 +715,44 @@ pub fn render_svg(fig: &Figure) -> String {
         escape(&fig.y_label)
     );
     // Legend, top right inside the plot.
-    let mut entries: Vec<(Colour, &str, bool)> = Vec::new();
+    // (colour, label, filled box, dashed line)
+    let mut entries: Vec<(Colour, &str, bool, bool)> = Vec::new();
     entries.extend(
         fig.curves
             .iter()
-            .map(|c| (c.colour, c.label.as_str(), false)),
+            .map(|c| (c.colour, c.label.as_str(), false, c.dashed)),
     );
     entries.extend(
         fig.hlines
             .iter()
-            .map(|l| (l.colour, l.label.as_str(), false)),
+            .map(|l| (l.colour, l.label.as_str(), false, true)),
     );
-    entries.extend(fig.bands.iter().map(|b| (b.colour, b.label.as_str(), true)));
-    entries.extend(fig.x_spans.iter().map(|(_, c, l)| (*c, l.as_str(), true)));
-    let (lx, mut ly) = (left + pw - 230.0, top + 12.0);
+    entries.extend(
+        fig.bands
+            .iter()
+            .map(|b| (b.colour, b.label.as_str(), true, false)),
+    );
+    entries.extend(
+        fig.x_spans
+            .iter()
+            .map(|(_, c, l)| (*c, l.as_str(), true, false)),
+    );
+    // Wide enough for the longest label (about 6.6 px a character at 12 px).
+    let legend_w = entries
+        .iter()
+        .map(|e| e.1.chars().count())
+        .max()
+        .map_or(0.0, |n| 40.0 + 6.6 * n as f64)
+        .clamp(120.0, pw * 0.7);
+    let (lx, mut ly) = (left + pw - legend_w - 8.0, top + 12.0);
     let _ = writeln!(
         s,
-        r##"<rect x="{0}" y="{1}" width="222" height="{2}" fill="white" fill-opacity="0.85" stroke="#999"/>"##,
+        r##"<rect x="{0}" y="{1}" width="{legend_w:.1}" height="{2}" fill="white" fill-opacity="0.85" stroke="#999"/>"##,
         lx - 6.0,
         top + 4.0,
         18.0 * entries.len() as f64 + 6.0
     );
-    for (c, label, filled) in entries {
+    for (c, label, filled, dashed) in entries {
         if filled {
             let _ = writeln!(
                 s,
@@ -682,9 +762,14 @@ pub fn render_svg(fig: &Figure) -> String {
                 c.opacity.max(0.3)
             );
         } else {
+            let dash = if dashed {
+                r#" stroke-dasharray="5,3""#
+            } else {
+                ""
+            };
             let _ = writeln!(
                 s,
-                r#"<line x1="{lx}" y1="{0}" x2="{1}" y2="{0}" stroke="{2}" stroke-width="2"/>"#,
+                r#"<line x1="{lx}" y1="{0}" x2="{1}" y2="{0}" stroke="{2}" stroke-width="2"{dash}/>"#,
                 ly + 5.0,
                 lx + 22.0,
                 c.svg()

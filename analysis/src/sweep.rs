@@ -234,8 +234,122 @@ pub struct Summary {
     /// One line per point whose D_eff is an apparent value, saying which
     /// seeds and by how much to lengthen the runs.
     pub too_short: Vec<String>,
+    /// The models' D_eff/D0 along the first key on a fine grid (from 0 for
+    /// a volume fraction), for smooth curves beside the points.
+    pub model_curves: Vec<ModelCurve>,
     /// The usual caution.
     pub caution: String,
+}
+
+/// One model's D_eff/D0 against the sweep's first key.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct ModelCurve {
+    /// Model name, as in the points' `models`.
+    pub name: String,
+    /// The variable the model is evaluated at (φ, φ_excl, λ, …).
+    pub variable: String,
+    /// (x, D_eff/D0) pairs, x increasing.
+    pub points: Vec<[f64; 2]>,
+}
+
+/// Grid points of a model curve.
+const CURVE_POINTS: usize = 41;
+
+/// The models' D_eff/D0 along the first key: the scenario of the first
+/// point with that key set to each value of a fine grid, evaluated by the
+/// one model table. A volume-fraction key starts at 0, where every
+/// obstruction model is exactly 1.
+fn model_curves(sweep: &Sweep) -> Vec<ModelCurve> {
+    let key = &sweep.keys[0];
+    let numbers: Vec<(f64, bool)> = sweep
+        .points
+        .iter()
+        .filter_map(|p| {
+            let v = &p[0];
+            v.as_float()
+                .map(|f| (f, false))
+                .or(v.as_integer().map(|i| (i as f64, true)))
+        })
+        .collect();
+    if numbers.is_empty() {
+        return Vec::new();
+    }
+    let integer = numbers.iter().all(|n| n.1);
+    let fraction = key.ends_with("volume_fraction");
+    let hi = numbers.iter().map(|n| n.0).fold(f64::MIN, f64::max);
+    let lo = if fraction {
+        0.0
+    } else {
+        numbers.iter().map(|n| n.0).fold(f64::MAX, f64::min)
+    };
+    if !(hi > lo) {
+        return Vec::new();
+    }
+    let mut xs: Vec<f64> = (0..CURVE_POINTS)
+        .map(|k| lo + (hi - lo) * k as f64 / (CURVE_POINTS - 1) as f64)
+        .map(|x| if integer { x.round() } else { x })
+        .collect();
+    xs.dedup();
+    let mut curves: Vec<ModelCurve> = Vec::new();
+    let mut add = |name: &str, variable: &str, x: f64, y: f64| match curves
+        .iter_mut()
+        .find(|c| c.name == name)
+    {
+        Some(c) => c.points.push([x, y]),
+        None => curves.push(ModelCurve {
+            name: name.to_string(),
+            variable: variable.to_string(),
+            points: vec![[x, y]],
+        }),
+    };
+    let mut at_zero: Vec<String> = Vec::new();
+    for x in xs {
+        let mut sets = sweep.fixed.clone();
+        for (k, v) in sweep.keys.iter().zip(&sweep.points[0]).skip(1) {
+            sets.push(format!("{k}={v}"));
+        }
+        let value = if integer {
+            format!("{}", x as i64)
+        } else {
+            format!("{x:?}")
+        };
+        sets.push(format!("{key}={value}"));
+        sets.push(format!("seed={}", sweep.seeds[0]));
+        let Ok(scenario) = Scenario::load(&sweep.scenario_file, &sets) else {
+            if fraction && x == 0.0 {
+                at_zero.push(String::new());
+            }
+            continue;
+        };
+        let species = sweep
+            .species
+            .clone()
+            .or_else(|| default_species(&scenario))
+            .unwrap_or_default();
+        let table = crate::model_table::scenario_model_table(&scenario, &species);
+        for e in table.entries.iter().filter(|e| e.compares_with_d_eff) {
+            if let Some(v) = e.value {
+                add(&e.name, &e.variable, x, v);
+            }
+        }
+    }
+    // No obstacles at φ = 0 (a value the scenario itself may refuse): every obstruction model gives 1.
+    if !at_zero.is_empty() {
+        for c in curves.iter_mut().filter(|c| c.variable.starts_with('φ')) {
+            c.points.insert(0, [0.0, 1.0]);
+        }
+    }
+    curves
+}
+
+/// The species an analysis picks by default: the first that is not a crowder.
+pub fn default_species(scenario: &Scenario) -> Option<String> {
+    scenario
+        .species
+        .iter()
+        .find(|s| !s.crowder)
+        .or(scenario.species.first())
+        .map(|s| s.name.clone())
 }
 
 /// The caution every report carries.
@@ -519,6 +633,7 @@ pub fn summarize(sweep: &Sweep, dir: &Path) -> Result<Summary> {
         free_volume_gamma_se: gamma_se,
         missing_points: missing,
         too_short,
+        model_curves: model_curves(sweep),
         caution: CAUTION.into(),
     })
 }
@@ -681,7 +796,12 @@ pub fn write_summary(summary: &Summary, dir: &Path) -> Result<Vec<PathBuf>> {
         ]
         .map(String::from),
     );
-    header.extend(model_names.iter().map(|m| format!("model: {m}")));
+    // Plain names a CSV reader takes as they are; summary.json keeps the full model names.
+    header.extend(
+        model_names
+            .iter()
+            .map(|m| format!("model_{}", crate::format::snake(m))),
+    );
     csv.push_str(
         &header
             .iter()
@@ -710,12 +830,12 @@ pub fn write_summary(summary: &Summary, dir: &Path) -> Result<Vec<PathBuf>> {
             r.d_eff_over_d0_ci95[1],
             r.alpha_long,
         ] {
-            fields.push(format!("{v:e}"));
+            fields.push(crate::format::csv(v));
         }
         fields.insert(1 + summary.keys.len(), r.seeds.to_string());
         fields.push(csv_field(&r.direction));
-        fields.push(format!("{:e}", r.fit_window_s[0]));
-        fields.push(format!("{:e}", r.fit_window_s[1]));
+        fields.push(crate::format::csv(r.fit_window_s[0]));
+        fields.push(crate::format::csv(r.fit_window_s[1]));
         fields.push(if r.apparent { "yes" } else { "no" }.into());
         fields.push(
             r.apparent_seeds
@@ -733,7 +853,7 @@ pub fn write_summary(summary: &Summary, dir: &Path) -> Result<Vec<PathBuf>> {
             fields.push(
                 r.models
                     .get(m)
-                    .map(|v| format!("{v:.6}"))
+                    .map(|&v| crate::format::csv(v))
                     .unwrap_or_default(),
             );
         }

@@ -2,18 +2,11 @@
 //! its 95 % interval and the models' values for the same scenarios.
 
 use crate::models;
-use crate::plot::{png_font_available, render_png, render_svg, Band, Colour, Curve, Figure};
+use crate::plot::{
+    png_font_available, render_png, render_svg, series, Band, Curve, Figure, MEASURED, WARNING,
+};
 use crate::sweep::{Summary, SweepError};
 use std::path::{Path, PathBuf};
-
-const PALETTE: [(u8, u8, u8); 6] = [
-    (214, 39, 40),
-    (44, 160, 44),
-    (148, 103, 189),
-    (140, 86, 75),
-    (227, 119, 194),
-    (127, 127, 127),
-];
 
 fn x_value(summary: &Summary, row: &crate::sweep::SummaryRow) -> Option<f64> {
     let v = row.values.get(&summary.keys[0])?;
@@ -29,15 +22,17 @@ pub fn sweep_figure(summary: &Summary) -> Figure {
         .collect();
     pts.sort_by(|a, b| a.0.total_cmp(&b.0));
     let xs: Vec<f64> = pts.iter().map(|p| p.0).collect();
-    let lo = xs.first().copied().unwrap_or(0.0);
+    let curve_lo = summary
+        .model_curves
+        .iter()
+        .filter_map(|c| c.points.first().map(|p| p[0]))
+        .fold(f64::INFINITY, f64::min);
+    let lo = xs.first().copied().unwrap_or(0.0).min(curve_lo);
     let hi = xs.last().copied().unwrap_or(1.0);
     let pad = ((hi - lo) * 0.05).max(1e-3);
     let mut curves = vec![Curve {
         points: pts.iter().map(|(x, r)| (*x, r.d_eff_over_d0)).collect(),
-        colour: Colour {
-            rgb: (31, 119, 180),
-            opacity: 1.0,
-        },
+        colour: MEASURED,
         label: "simulation D_eff/D0".into(),
         dashed: false,
         markers: true,
@@ -51,10 +46,7 @@ pub fn sweep_figure(summary: &Summary) -> Figure {
     if !apparent.is_empty() {
         curves.push(Curve {
             points: apparent,
-            colour: Colour {
-                rgb: (230, 85, 13),
-                opacity: 1.0,
-            },
+            colour: WARNING,
             label: "apparent value: MSD not diffusive in the fit window".into(),
             dashed: false,
             markers: true,
@@ -65,16 +57,17 @@ pub fn sweep_figure(summary: &Summary) -> Figure {
     names.sort();
     names.dedup();
     for (i, name) in names.iter().enumerate() {
-        let line: Vec<(f64, f64)> = pts
-            .iter()
-            .filter_map(|(x, r)| Some((*x, *r.models.get(*name)?)))
-            .collect();
+        // The fine-grid curve when the summary has one, else the values at the points.
+        let line: Vec<(f64, f64)> = match summary.model_curves.iter().find(|c| &c.name == *name) {
+            Some(c) => c.points.iter().map(|p| (p[0], p[1])).collect(),
+            None => pts
+                .iter()
+                .filter_map(|(x, r)| Some((*x, *r.models.get(*name)?)))
+                .collect(),
+        };
         curves.push(Curve {
             points: line,
-            colour: Colour {
-                rgb: PALETTE[i % PALETTE.len()],
-                opacity: 1.0,
-            },
+            colour: series(i),
             label: (*name).clone(),
             dashed: true,
             markers: false,
@@ -88,10 +81,7 @@ pub fn sweep_figure(summary: &Summary) -> Figure {
             .collect();
         curves.push(Curve {
             points: line,
-            colour: Colour {
-                rgb: (23, 190, 207),
-                opacity: 1.0,
-            },
+            colour: series(names.len()),
             label: format!("free volume, fitted γ = {gamma:.3}"),
             dashed: true,
             markers: false,
@@ -103,10 +93,16 @@ pub fn sweep_figure(summary: &Summary) -> Figure {
         .map(|(_, r)| r.d_eff_over_d0_ci95[1])
         .chain(pts.iter().flat_map(|(_, r)| r.models.values().copied()))
         .fold(1.0_f64, f64::max);
+    let direction = summary
+        .points
+        .first()
+        .map(|r| r.direction.clone())
+        .filter(|d| !d.is_empty())
+        .map_or_else(String::new, |d| format!(", {d}"));
     Figure {
-        title: summary.title.clone(),
-        x_label: summary.keys[0].clone(),
-        y_label: "D_eff / D0".into(),
+        title: format!("{}: D_eff/D0{direction}", summary.title),
+        x_label: axis_label(&summary.keys[0]),
+        y_label: "D_eff/D0".into(),
         x_range: [lo - pad, hi + pad],
         y_range: [0.0, ymax * 1.08],
         x_log: false,
@@ -116,14 +112,62 @@ pub fn sweep_figure(summary: &Summary) -> Figure {
                 .iter()
                 .map(|(x, r)| (*x, r.d_eff_over_d0_ci95[0], r.d_eff_over_d0_ci95[1]))
                 .collect(),
-            colour: Colour {
-                rgb: (31, 119, 180),
-                opacity: 0.2,
-            },
+            colour: MEASURED.with_opacity(0.2),
             label: "95 % interval".into(),
         }],
         hlines: vec![],
         curves,
+    }
+}
+
+/// A swept key as an axis label with its symbol and unit, e.g.
+/// "obstacles.volume_fraction" → "obstacle volume fraction φ" and
+/// "species.bead.radius_nm" → "bead radius a / nm".
+pub fn axis_label(key: &str) -> String {
+    let known = [
+        ("obstacles.volume_fraction", "obstacle volume fraction φ"),
+        ("fibres.volume_fraction", "fibre volume fraction φ_f"),
+        ("obstacles.radius_nm", "obstacle radius b / nm"),
+        ("fibres.radius_nm", "fibre radius r_f / nm"),
+        ("obstacles.count", "number of obstacles"),
+        ("geometry.pore_radius_nm", "pore radius r_p / nm"),
+        ("medium.temperature_K", "temperature T / K"),
+        ("medium.viscosity_Pa_s", "viscosity η / (Pa s)"),
+        ("integrator.dt_s", "time step Δt / s"),
+        ("integrator.steps", "steps"),
+    ];
+    if let Some((_, label)) = known.iter().find(|(k, _)| *k == key) {
+        return (*label).to_string();
+    }
+    let parts: Vec<&str> = key.split('.').collect();
+    let last = parts.last().copied().unwrap_or(key);
+    let units = [
+        ("_m2_per_s", "m²/s"),
+        ("_mol_per_m3", "mol/m³"),
+        ("_Pa_s", "Pa s"),
+        ("_nm", "nm"),
+        ("_s", "s"),
+        ("_K", "K"),
+    ];
+    let (stem, unit) = units
+        .iter()
+        .find_map(|(suffix, unit)| last.strip_suffix(suffix).map(|s| (s, Some(*unit))))
+        .unwrap_or((last, None));
+    // A species key names the species: "species.bead.radius_nm" → "bead radius".
+    let owner = if parts.len() == 3 && parts[0] == "species" {
+        format!("{} ", parts[1])
+    } else {
+        String::new()
+    };
+    let symbol = match stem {
+        "radius" if !owner.is_empty() => " a",
+        "count" => " N",
+        _ => "",
+    };
+    let name = format!("{owner}{}{symbol}", stem.replace('_', " "));
+    match unit {
+        Some(u) => format!("{name} / {u}"),
+        None => name,
     }
 }
 
@@ -165,8 +209,8 @@ pub fn summary_table(summary: &Summary) -> String {
         out.push_str(&format!("  {k:>w$}"));
     }
     out.push_str(&format!(
-        "  {:>5}  {:>9}  {:>19}  {:>6}  {:>19}  {:>8}",
-        "seeds", "D_eff/D0", "95 % interval", "α", "fit window / s", "fit"
+        "  {:>5}  {:>26}  {:>6}  {:>19}  {:>8}",
+        "seeds", "D_eff/D0 [95 % interval]", "α", "fit window / s", "fit"
     ));
     for (i, _) in names.iter().enumerate() {
         out.push_str(&format!("  {:>8}", format!("model {}", i + 1)));
@@ -178,16 +222,15 @@ pub fn summary_table(summary: &Summary) -> String {
             out.push_str(&format!("  {v:>w$}"));
         }
         out.push_str(&format!(
-            "  {:>5}  {:>9.4}  [{:>8.4}, {:>8.4}]  {:>6.3}",
+            "  {:>5}  {:>26}  {:>6.3}  {:>19}  {:>8}",
             r.seeds,
-            r.d_eff_over_d0,
-            r.d_eff_over_d0_ci95[0],
-            r.d_eff_over_d0_ci95[1],
-            r.alpha_long
-        ));
-        out.push_str(&format!(
-            "  {:>19}  {:>8}",
-            format!("{:.2e}–{:.2e}", r.fit_window_s[0], r.fit_window_s[1]),
+            crate::format::with_interval(r.d_eff_over_d0, r.d_eff_over_d0_ci95),
+            r.alpha_long,
+            format!(
+                "{}–{}",
+                crate::format::sig(r.fit_window_s[0], 3),
+                crate::format::sig(r.fit_window_s[1], 3)
+            ),
             if r.apparent { "APPARENT" } else { "ok" }
         ));
         for n in &names {

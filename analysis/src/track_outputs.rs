@@ -29,14 +29,14 @@ use crate::tracks::{TracksError, TracksReport};
 /// µm²/s in one nm²/s.
 const UM2_PER_NM2: f64 = 1e-6;
 
-/// Colours of successive species in the histogram.
-const PALETTE: [(u8, u8, u8); 5] = [
-    (31, 119, 180),
-    (230, 120, 20),
-    (44, 160, 44),
-    (148, 103, 189),
-    (214, 39, 40),
-];
+/// Colour of species `i` in the histogram: the house palette.
+fn species_colour(i: usize) -> Colour {
+    if i == 0 {
+        crate::plot::MEASURED
+    } else {
+        crate::plot::series(i - 1)
+    }
+}
 
 /// Text of one table field: the shortest exact form, empty when undefined.
 fn field(v: Option<f64>) -> String {
@@ -144,10 +144,7 @@ pub fn d_histogram_figure(report: &TracksReport) -> Figure {
         points.push((hi, 0.0));
         curves.push(Curve {
             points,
-            colour: Colour {
-                rgb: PALETTE[i % PALETTE.len()],
-                opacity: 1.0,
-            },
+            colour: species_colour(i),
             label: format!("{name} ({} tracks)", values.len()),
             dashed: false,
             markers: false,
@@ -158,10 +155,7 @@ pub fn d_histogram_figure(report: &TracksReport) -> Figure {
         if let Some(d0) = d0 {
             curves.push(Curve {
                 points: vec![(*d0, 0.0), (*d0, 1.08 * top)],
-                colour: Colour {
-                    rgb: PALETTE[i % PALETTE.len()],
-                    opacity: 0.8,
-                },
+                colour: species_colour(i).with_opacity(0.8),
                 label: format!("true D0 of {name}"),
                 dashed: true,
                 markers: false,

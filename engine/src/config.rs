@@ -999,7 +999,14 @@ impl RawScenario {
             Some(c) => positive(file, "output.checkpoint_interval_s", c)?,
         };
         let output = OutputSpec {
-            file: self.output.file.as_ref().map(PathBuf::from),
+            // Relative to the scenario file, as every other path in it.
+            file: self.output.file.as_ref().map(PathBuf::from).map(|path| {
+                if path.is_relative() {
+                    file.parent().map(|d| d.join(&path)).unwrap_or(path)
+                } else {
+                    path
+                }
+            }),
             record_every_steps,
             precision,
             checkpoint_interval_s,

@@ -5,6 +5,7 @@ mod bad_input;
 mod confined;
 mod file_format;
 mod free;
+mod outputs;
 mod results;
 mod resume;
 mod support;
