@@ -5,7 +5,23 @@ use std::path::Path;
 use std::process::ExitCode;
 use thicket_analysis::estimators::{analyze, AnalyzeOptions};
 
-/// Analyses a trajectory and prints a table or JSON; optional plots.
+/// Suffixes of the files `--plot PREFIX` may write for a trajectory.
+const PLOT_FILES: [&str; 11] = [
+    "_msd.svg",
+    "_msd.png",
+    "_alpha.svg",
+    "_alpha.png",
+    "_msd.csv",
+    "_van_hove.csv",
+    "_van_hove.svg",
+    "_van_hove.png",
+    "_profile.csv",
+    "_profile.svg",
+    "_profile.png",
+];
+
+/// Analyses a trajectory and prints a table or JSON; optional plots
+/// (existing files are refused unless `force`).
 pub fn analyze_trajectory(
     file: &Path,
     species: Option<&str>,
@@ -14,7 +30,27 @@ pub fn analyze_trajectory(
     d0: Option<f64>,
     plot: Option<&Path>,
     as_json: bool,
+    force: bool,
 ) -> Result<ExitCode> {
+    // Every file --plot may write is checked before anything is written.
+    if let (Some(prefix), false) = (plot, force) {
+        let taken: Vec<String> = PLOT_FILES
+            .iter()
+            .map(|suffix| {
+                let mut name = prefix.as_os_str().to_owned();
+                name.push(suffix);
+                std::path::PathBuf::from(name)
+            })
+            .filter(|p| p.exists())
+            .map(|p| p.display().to_string())
+            .collect();
+        anyhow::ensure!(
+            taken.is_empty(),
+            "--plot {}: {} exist already; pass --force to overwrite them, or choose another prefix",
+            prefix.display(),
+            taken.join(", ")
+        );
+    }
     // Recycled particles make an MSD meaningless in a membrane: its own report instead.
     if crate::confined::is_membrane(file) {
         anyhow::ensure!(
@@ -22,7 +58,7 @@ pub fn analyze_trajectory(
             "{}: --window and --d0 set an MSD fit, which a membrane file does not get (its D0 is stored); leave them out",
             file.display()
         );
-        crate::confined::membrane_report(file, species, plot, as_json)?;
+        crate::confined::membrane_report(file, species, plot, as_json, force)?;
         return Ok(ExitCode::SUCCESS);
     }
     let mut options = AnalyzeOptions {
@@ -46,7 +82,7 @@ pub fn analyze_trajectory(
     }
     let analysis = analyze(file, species, &options)?;
     let report = &analysis.report;
-    let partition = crate::confined::partition_report(file, species, plot)?;
+    let partition = crate::confined::partition_report(file, species, plot, force)?;
     if as_json {
         let mut value = serde_json::to_value(report)?;
         if let (Some(p), Some(map)) = (&partition, value.as_object_mut()) {

@@ -15,9 +15,10 @@ pub fn profile_csv_path(prefix: &Path) -> PathBuf {
     PathBuf::from(name)
 }
 
-/// Refuses a `--plot` prefix whose profile CSV exists (nothing is written then).
-fn check_free(prefix: Option<&Path>) -> Result<()> {
-    if let Some(p) = prefix.map(profile_csv_path) {
+/// Refuses a `--plot` prefix whose profile CSV exists unless `force`
+/// (nothing is written then).
+fn check_free(prefix: Option<&Path>, force: bool) -> Result<()> {
+    if let Some(p) = prefix.map(profile_csv_path).filter(|_| !force) {
         anyhow::ensure!(
             !p.exists(),
             "{} exists already; remove it or choose another --plot prefix",
@@ -38,14 +39,19 @@ pub fn membrane_report(
     species: Option<&str>,
     plot: Option<&Path>,
     as_json: bool,
+    force: bool,
 ) -> Result<()> {
-    check_free(plot)?;
+    check_free(plot, force)?;
     let mut report = analyze_membrane(file, species)
         .with_context(|| format!("analysing membrane file {}", file.display()))?;
     if let Some(prefix) = plot {
         let path = profile_csv_path(prefix);
         report.write_profile_csv(&path)?;
         report.profile_csv = Some(path);
+        let fig = thicket_analysis::curves::membrane_profile_figure(&report);
+        for p in thicket_analysis::curves::write_profile_plot(prefix, &fig)? {
+            eprintln!("wrote {}", p.display());
+        }
     }
     if as_json {
         println!("{}", serde_json::to_string_pretty(&report)?);
@@ -62,6 +68,7 @@ pub fn partition_report(
     file: &Path,
     species: Option<&str>,
     plot: Option<&Path>,
+    force: bool,
 ) -> Result<Option<PartitionAnalysis>> {
     let Some(mut report) = analyze_partition(file, species)
         .with_context(|| format!("measuring the partition coefficient in {}", file.display()))?
@@ -69,10 +76,14 @@ pub fn partition_report(
         return Ok(None);
     };
     if let Some(prefix) = plot {
-        check_free(Some(prefix))?;
+        check_free(Some(prefix), force)?;
         let path = profile_csv_path(prefix);
         report.write_profile_csv(&path)?;
         report.profile_csv = Some(path);
+        let fig = thicket_analysis::curves::partition_profile_figure(&report);
+        for p in thicket_analysis::curves::write_profile_plot(prefix, &fig)? {
+            eprintln!("wrote {}", p.display());
+        }
     }
     Ok(Some(report))
 }

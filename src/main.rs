@@ -185,7 +185,7 @@ struct TrackCsvArgs {
     /// Write the per-track table (CSV) here (default with --plot PREFIX: PREFIX_tracks.csv).
     #[arg(long, value_name = "FILE")]
     tracks_table: Option<PathBuf>,
-    /// Overwrite an existing per-track table and histogram.
+    /// Overwrite existing plots and tables (with a trajectory too: --plot files).
     #[arg(long)]
     force: bool,
 }
@@ -202,7 +202,6 @@ impl TrackCsvArgs {
             (self.exposure.is_some(), "--exposure"),
             (self.skip_rows.is_some(), "--skip-rows"),
             (self.tracks_table.is_some(), "--tracks-table"),
-            (self.force, "--force"),
         ]
         .into_iter()
         .filter_map(|(on, name)| on.then_some(name))
@@ -278,7 +277,7 @@ fn main() -> ExitCode {
             window,
             d0,
             axes,
-            track_csv: _,
+            track_csv,
         } => analyze::analyze_trajectory(
             &file,
             species.as_deref(),
@@ -287,6 +286,7 @@ fn main() -> ExitCode {
             d0,
             plot.as_deref(),
             json,
+            track_csv.force,
         ),
         Command::Sweep {
             sweep,

@@ -259,3 +259,134 @@ pub fn van_hove_figure(c: &Curves, report: &Report) -> Option<Figure> {
         curves,
     })
 }
+
+/// The density profile of a slit, pore or obstacle file over the reference
+/// density, with its 95 % band and the edge of the space open to centres.
+pub fn partition_profile_figure(p: &crate::profile::PartitionAnalysis) -> Figure {
+    let prof = &p.profile;
+    let points: Vec<(f64, f64)> = prof
+        .x_nm
+        .iter()
+        .copied()
+        .zip(prof.density_over_reference.iter().copied())
+        .collect();
+    let band = prof
+        .x_nm
+        .iter()
+        .zip(prof.density_over_reference.iter().zip(&prof.ci95))
+        .map(|(&x, (&y, &h))| (x, y - h, y + h))
+        .collect();
+    let xmax = prof.x_nm.last().copied().unwrap_or(1.0) + 0.5 * prof.bin_nm;
+    let ymax = prof
+        .density_over_reference
+        .iter()
+        .zip(&prof.ci95)
+        .map(|(y, h)| y + h)
+        .filter(|v| v.is_finite())
+        .fold(1.0f64, f64::max);
+    let coordinate = match prof.coordinate.as_str() {
+        "z_nm" => "height z across the gap / nm",
+        "rho_nm" => "distance ρ from the pore axis / nm",
+        _ => "distance to the nearest obstacle surface / nm",
+    };
+    Figure {
+        title: format!(
+            "density profile of '{}' ({}), measured K = {}",
+            p.species,
+            p.geometry,
+            match p.partition.ci95 {
+                Some(ci) => crate::format::with_interval(p.partition.value, ci),
+                None => crate::format::sig(p.partition.value, 4),
+            }
+        ),
+        x_label: coordinate.into(),
+        y_label: "density / reference density".into(),
+        x_range: [0.0, xmax],
+        x_log: false,
+        y_range: [0.0, ymax * 1.15],
+        x_spans: vec![],
+        bands: vec![crate::plot::Band {
+            points: band,
+            colour: crate::plot::MEASURED.with_opacity(0.2),
+            label: "95 % interval (groups of particles)".into(),
+        }],
+        hlines: vec![crate::plot::HLine {
+            y: 1.0,
+            colour: crate::plot::series(0),
+            label: "uniform open space (steric equilibrium)".into(),
+        }],
+        curves: vec![Curve {
+            points,
+            colour: crate::plot::MEASURED,
+            label: "measured".into(),
+            dashed: false,
+            markers: true,
+            line: true,
+        }],
+    }
+}
+
+/// c(z)/c_feed across a membrane, with its 95 % band and the slab shaded.
+pub fn membrane_profile_figure(m: &crate::membrane::MembraneAnalysis) -> Figure {
+    let prof = &m.profile;
+    let points: Vec<(f64, f64)> = prof
+        .z_nm
+        .iter()
+        .copied()
+        .zip(prof.c_over_feed.iter().copied())
+        .collect();
+    let band = prof
+        .z_nm
+        .iter()
+        .zip(prof.c_over_feed.iter().zip(&prof.c_over_feed_ci95))
+        .map(|(&z, (&c, &h))| (z, c - h, c + h))
+        .collect();
+    let zmax = prof.z_nm.last().copied().unwrap_or(1.0) + 0.5 * prof.bin_nm;
+    let ymax = prof
+        .c_over_feed
+        .iter()
+        .zip(&prof.c_over_feed_ci95)
+        .map(|(c, h)| c + h)
+        .filter(|v| v.is_finite())
+        .fold(1.0f64, f64::max);
+    Figure {
+        title: format!("concentration across the membrane, '{}'", m.species),
+        x_label: "z / nm".into(),
+        y_label: "c(z) / c_feed".into(),
+        x_range: [0.0, zmax],
+        x_log: false,
+        y_range: [0.0, ymax * 1.15],
+        x_spans: vec![(
+            prof.pore_region_nm,
+            crate::plot::series(3).with_opacity(0.2),
+            "membrane (pores)".into(),
+        )],
+        bands: vec![crate::plot::Band {
+            points: band,
+            colour: crate::plot::MEASURED.with_opacity(0.2),
+            label: "95 % interval (blocks of frames)".into(),
+        }],
+        hlines: vec![],
+        curves: vec![Curve {
+            points,
+            colour: crate::plot::MEASURED,
+            label: "c(z)/c_feed per box cross-section".into(),
+            dashed: false,
+            markers: false,
+            line: true,
+        }],
+    }
+}
+
+/// Writes `PREFIX_profile.svg` and `.png` for `fig`; returns their paths.
+///
+/// # Errors
+/// [`ErrorKind::Output`] if a file cannot be written.
+pub fn write_profile_plot(prefix: &Path, fig: &Figure) -> Result<Vec<PathBuf>> {
+    let base = prefix.display().to_string();
+    let svg = PathBuf::from(format!("{base}_profile.svg"));
+    write_new(&svg, &crate::plot::render_svg(fig))?;
+    let png = PathBuf::from(format!("{base}_profile.png"));
+    crate::plot::render_png(fig, &png, crate::plot::png_font_available())?;
+    Ok(vec![svg, png])
+}

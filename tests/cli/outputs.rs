@@ -98,6 +98,15 @@ fn tick_labels_sit_where_their_values_belong() {
         ],
     ));
     ok(&thicket(dir.path(), &["analyze", "f.h5", "--plot", "f"]));
+    // Plots are never overwritten without --force, and a refusal writes nothing.
+    let before = std::fs::read(dir.path().join("f_msd.png")).unwrap();
+    let again = thicket(dir.path(), &["analyze", "f.h5", "--plot", "f"]);
+    assert!(!again.status.success() && stderr(&again).contains("f_msd.svg"));
+    assert_eq!(std::fs::read(dir.path().join("f_msd.png")).unwrap(), before);
+    ok(&thicket(
+        dir.path(),
+        &["analyze", "f.h5", "--plot", "f", "--force"],
+    ));
     for name in ["f_msd", "f_alpha"] {
         let svg = std::fs::read_to_string(dir.path().join(format!("{name}.svg"))).unwrap();
         let ticks = svg_ticks(&svg);
