@@ -122,9 +122,9 @@ enum Command {
     Sweep {
         /// Sweep file (TOML): scenario, seeds, [grid] of keys and values, [set] fixed overrides.
         sweep: PathBuf,
-        /// Output folder (summary.csv, summary.json, sweep.svg/png, points/, runs/).
-        #[arg(long, default_value = "sweep-out")]
-        out: PathBuf,
+        /// Output folder (summary.csv, summary.json, sweep.svg/png, points/, runs/); default: the sweep file's name without .toml, in the current folder.
+        #[arg(long)]
+        out: Option<PathBuf>,
         /// Run only every N-th run starting at the I-th (1-based), e.g. 2/8 for a job array.
         #[arg(long, value_name = "I/N")]
         shard: Option<String>,
@@ -294,7 +294,13 @@ fn main() -> ExitCode {
             shard,
             merge,
             force,
-        } => sweep::sweep(&sweep, &out, shard.as_deref(), merge, force),
+        } => {
+            // By default the folder is named after the sweep file, in the current folder.
+            let out = out.unwrap_or_else(|| {
+                PathBuf::from(sweep.file_stem().unwrap_or_else(|| "sweep".as_ref()))
+            });
+            sweep::sweep(&sweep, &out, shard.as_deref(), merge, force)
+        }
         Command::Validate { quick, json } => validate::validate(quick, json),
         Command::Demo { out, force } => demo::demo(&out, force),
         Command::Tracks {
