@@ -4,6 +4,8 @@ mod analysis;
 mod bad_input;
 mod file_format;
 mod free;
+#[path = "../outside/mod.rs"]
+mod outside;
 mod resume;
 mod support;
 mod threads;

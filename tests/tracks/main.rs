@@ -5,4 +5,6 @@ mod bad_input;
 mod bleaching;
 mod files;
 mod focal;
+#[path = "../outside/mod.rs"]
+mod outside;
 mod support;

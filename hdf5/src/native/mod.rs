@@ -363,11 +363,7 @@ impl Location {
                 .iter()
                 .map(|a| a.name.clone())
                 .collect()),
-            Backing::Read(r) => Ok(self
-                .reader_attrs(r)?
-                .into_iter()
-                .map(|a| a.name)
-                .collect()),
+            Backing::Read(r) => Ok(self.reader_attrs(r)?.into_iter().map(|a| a.name).collect()),
         }
     }
 
@@ -379,7 +375,11 @@ impl Location {
         let missing = || Error::from(format!("attribute {name} of {} does not exist", self.path));
         match &self.back {
             Backing::Write(w) => {
-                if lock(w).objects[self.id].attrs.iter().any(|a| a.name == name) {
+                if lock(w).objects[self.id]
+                    .attrs
+                    .iter()
+                    .any(|a| a.name == name)
+                {
                     Ok(Attribute {
                         owner: self.clone(),
                         name: name.to_owned(),
@@ -574,7 +574,10 @@ impl Attribute {
                         .iter()
                         .map(|s| {
                             T::from_text(s).ok_or_else(|| {
-                                Error::from(format!("cannot convert {desc} to {}", T::type_descriptor()))
+                                Error::from(format!(
+                                    "cannot convert {desc} to {}",
+                                    T::type_descriptor()
+                                ))
                             })
                         })
                         .collect(),
@@ -939,7 +942,11 @@ fn selection(sel: &[SliceInfoElem], dims: &[u64]) -> Result<Vec<(u64, u64, bool)
                 i as u64
             }
         };
-        let bad = || Error::from(format!("selection {e:?} is outside axis {axis} of extent {d}"));
+        let bad = || {
+            Error::from(format!(
+                "selection {e:?} is outside axis {axis} of extent {d}"
+            ))
+        };
         match e {
             SliceInfoElem::Index(i) => {
                 let i = fix(i);
@@ -1061,7 +1068,10 @@ impl Dataset {
             return Err(Error::from("not a dataset"));
         };
         if new.len() != ds.dims.len()
-            || new.iter().zip(&ds.maxdims).any(|(n, m)| m.is_some_and(|m| *n > m))
+            || new
+                .iter()
+                .zip(&ds.maxdims)
+                .any(|(n, m)| m.is_some_and(|m| *n > m))
         {
             return Err(Error::from(format!(
                 "unable to resize {} to {new:?}: the maximum is {:?}",
@@ -1069,7 +1079,12 @@ impl Dataset {
             )));
         }
         if let Layout::Chunked { chunk, chunks } = &mut ds.layout {
-            chunks.retain(|c, _| c.iter().zip(chunk.iter()).zip(&new).all(|((c, k), n)| c * k < *n));
+            chunks.retain(|c, _| {
+                c.iter()
+                    .zip(chunk.iter())
+                    .zip(&new)
+                    .all(|((c, k), n)| c * k < *n)
+            });
         }
         ds.dims = new;
         w.touch();
@@ -1140,8 +1155,8 @@ impl Dataset {
     /// As [`Dataset::write`].
     pub fn write_raw<T: H5Type>(&self, values: &[T]) -> Result<()> {
         let shape: Vec<usize> = self.shape();
-        let view = ArrayView::from_shape(IxDyn(&shape), values)
-            .map_err(|e| Error::from(e.to_string()))?;
+        let view =
+            ArrayView::from_shape(IxDyn(&shape), values).map_err(|e| Error::from(e.to_string()))?;
         self.write(view)
     }
 
@@ -1158,11 +1173,7 @@ impl Dataset {
         let ds = self.reader()?;
         let dims: Vec<u64> = ds.shape().to_vec();
         let sel = selection(sel.as_ref(), &dims)?;
-        let out_shape: Vec<usize> = sel
-            .iter()
-            .filter(|s| !s.2)
-            .map(|s| s.1 as usize)
-            .collect();
+        let out_shape: Vec<usize> = sel.iter().filter(|s| !s.2).map(|s| s.1 as usize).collect();
         let arr = read_box::<T>(&ds, &sel)?;
         arr.into_shape_with_order(IxDyn(&out_shape))
             .map_err(|e| Error::from(e.to_string()))?
@@ -1337,7 +1348,11 @@ fn write_box(w: &mut Writer, id: ObjId, start: &[u64], counts: &[u64], bytes: &[
                     ..
                 }) = &mut w.objects[id].kind
                 {
-                    let coords = origin.iter().zip(chunk.iter()).map(|(o, c)| o / c).collect();
+                    let coords = origin
+                        .iter()
+                        .zip(chunk.iter())
+                        .map(|(o, c)| o / c)
+                        .collect();
                     chunks.insert(coords, a);
                 }
                 w.touch();

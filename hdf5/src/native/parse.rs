@@ -181,12 +181,7 @@ impl State<'_> {
         Ok(id)
     }
 
-    fn btree(
-        &mut self,
-        addr: u64,
-        chunk: &[u64],
-        out: &mut BTreeMap<Vec<u64>, u64>,
-    ) -> Result<()> {
+    fn btree(&mut self, addr: u64, chunk: &[u64], out: &mut BTreeMap<Vec<u64>, u64>) -> Result<()> {
         let rank = chunk.len();
         let key = 8 + 8 * (rank + 1);
         let size = 24 + 64 * 8 + 65 * key;
@@ -204,7 +199,8 @@ impl State<'_> {
             if level == 0 {
                 let coords = (0..rank)
                     .map(|d| {
-                        let off = u64::from_le_bytes(k[8 + 8 * d..16 + 8 * d].try_into().expect("8"));
+                        let off =
+                            u64::from_le_bytes(k[8 + 8 * d..16 + 8 * d].try_into().expect("8"));
                         off / chunk[d].max(1)
                     })
                     .collect();

@@ -292,8 +292,7 @@ macro_rules! fixed_string {
                         b.len()
                     )));
                 }
-                let s = std::str::from_utf8(b)
-                    .map_err(|_| StringError("not text".into()))?;
+                let s = std::str::from_utf8(b).map_err(|_| StringError("not text".into()))?;
                 if stringify!($variant) == "FixedAscii" && !s.is_ascii() {
                     return Err(StringError("not ASCII".into()));
                 }
@@ -444,7 +443,11 @@ pub(crate) fn decode<T: H5Type>(bytes: &[u8], stored: &TypeDescriptor) -> Result
         .map(|b| {
             let n = match stored {
                 TypeDescriptor::Integer(_) => {
-                    let mut w = if b[size - 1] & 0x80 != 0 { [0xffu8; 16] } else { [0u8; 16] };
+                    let mut w = if b[size - 1] & 0x80 != 0 {
+                        [0xffu8; 16]
+                    } else {
+                        [0u8; 16]
+                    };
                     w[..size].copy_from_slice(b);
                     Some(Number::Int(i128::from_le_bytes(w)))
                 }
@@ -455,7 +458,8 @@ pub(crate) fn decode<T: H5Type>(bytes: &[u8], stored: &TypeDescriptor) -> Result
                 }
                 TypeDescriptor::Float(FloatSize::U4) => Some(Number::Float(f32::from_le_bytes(
                     b.try_into().expect("4 bytes"),
-                ) as f64)),
+                )
+                    as f64)),
                 TypeDescriptor::Float(FloatSize::U8) => Some(Number::Float(f64::from_le_bytes(
                     b.try_into().expect("8 bytes"),
                 ))),

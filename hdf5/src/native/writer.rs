@@ -147,7 +147,6 @@ impl Writer {
         self.file.write_all_at(bytes, addr).map_err(Error::from)
     }
 
-
     /// Writes the metadata afresh and repoints the superblock to it.
     pub fn commit(&mut self) -> Result<()> {
         if !self.dirty {
@@ -225,7 +224,6 @@ impl Writer {
         self.dirty = true;
         Ok(())
     }
-
 }
 
 impl Drop for Writer {
@@ -289,7 +287,12 @@ pub(crate) fn datatype_bytes(dt: &TypeDescriptor) -> Result<Vec<u8>> {
 
 /// Dataspace message body (version 2); `maxdims` None writes none.
 fn dataspace_bytes(dims: &[u64], maxdims: Option<&[Option<u64>]>) -> Vec<u8> {
-    let mut b = vec![2, dims.len() as u8, u8::from(maxdims.is_some() && !dims.is_empty()), 0];
+    let mut b = vec![
+        2,
+        dims.len() as u8,
+        u8::from(maxdims.is_some() && !dims.is_empty()),
+        0,
+    ];
     if !dims.is_empty() {
         b[3] = 1;
     }
@@ -365,14 +368,22 @@ struct Msg {
     body: Vec<u8>,
 }
 
-fn messages(obj: &Obj, refcount: u32, btree: u64, addr_of: &dyn Fn(ObjId) -> u64) -> Result<Vec<Msg>> {
+fn messages(
+    obj: &Obj,
+    refcount: u32,
+    btree: u64,
+    addr_of: &dyn Fn(ObjId) -> u64,
+) -> Result<Vec<Msg>> {
     let mut out = Vec::new();
     match &obj.kind {
         Kind::Group { links } => {
             let mut li = vec![0u8, 0];
             li.extend_from_slice(&UNDEF.to_le_bytes());
             li.extend_from_slice(&UNDEF.to_le_bytes());
-            out.push(Msg { kind: 0x02, body: li });
+            out.push(Msg {
+                kind: 0x02,
+                body: li,
+            });
             out.push(Msg {
                 kind: 0x0A,
                 body: vec![0, 0],
@@ -382,7 +393,10 @@ fn messages(obj: &Obj, refcount: u32, btree: u64, addr_of: &dyn Fn(ObjId) -> u64
                 l.push(name.len() as u8);
                 l.extend_from_slice(name.as_bytes());
                 l.extend_from_slice(&addr_of(*target).to_le_bytes());
-                out.push(Msg { kind: 0x06, body: l });
+                out.push(Msg {
+                    kind: 0x06,
+                    body: l,
+                });
             }
         }
         Kind::Dataset(ds) => {
@@ -419,13 +433,19 @@ fn messages(obj: &Obj, refcount: u32, btree: u64, addr_of: &dyn Fn(ObjId) -> u64
                     l.extend_from_slice(&(element_size(ds) as u32).to_le_bytes());
                 }
             }
-            out.push(Msg { kind: 0x08, body: l });
+            out.push(Msg {
+                kind: 0x08,
+                body: l,
+            });
         }
     }
     if refcount > 1 {
         let mut r = vec![0u8];
         r.extend_from_slice(&refcount.to_le_bytes());
-        out.push(Msg { kind: 0x16, body: r });
+        out.push(Msg {
+            kind: 0x16,
+            body: r,
+        });
     }
     for a in &obj.attrs {
         out.push(Msg {
@@ -572,7 +592,11 @@ fn btree_bytes(ds: &Ds, at: u64) -> (Vec<u8>, u64) {
         for (i, g) in groups.iter().enumerate() {
             let addr = first_addr + (i * size) as u64;
             let left = if i == 0 { UNDEF } else { addr - size as u64 };
-            let right = if i + 1 == count { UNDEF } else { addr + size as u64 };
+            let right = if i + 1 == count {
+                UNDEF
+            } else {
+                addr + size as u64
+            };
             let mut n = Vec::with_capacity(size);
             n.extend_from_slice(b"TREE");
             n.extend_from_slice(&[1, height]);
