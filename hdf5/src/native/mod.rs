@@ -235,7 +235,10 @@ impl File {
     /// Missing files and files that are not HDF5.
     pub fn open<P: AsRef<Path>>(path: P) -> Result<Self> {
         let p = path.as_ref();
-        let r = hdf5_reader::Hdf5File::open(p)
+        // A small chunk cache, as the C library keeps (1 MiB per dataset): our
+        // readers go through a file once, window by window.
+        let options = hdf5_reader::OpenOptions::default().with_chunk_cache_bytes(8 << 20);
+        let r = hdf5_reader::Hdf5File::open_with_options(p, options)
             .map_err(|e| Error::from(format!("unable to open file {}: {e}", p.display())))?;
         Ok(File {
             root: Group(Location {
