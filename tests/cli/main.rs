@@ -6,6 +6,8 @@ mod confined;
 mod file_format;
 mod free;
 mod outputs;
+#[path = "../outside/mod.rs"]
+mod outside;
 mod results;
 mod resume;
 mod support;

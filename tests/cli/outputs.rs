@@ -162,7 +162,9 @@ fn pandas_reads_the_tables_as_they_are() {
     ));
     let files = ["sw/summary.csv", "c_msd.csv", "c_van_hove.csv"].map(|f| dir.path().join(f));
     let args: Vec<&str> = files.iter().map(|p| p.to_str().unwrap()).collect();
-    let r = python_json("pandas_check.py", &args);
+    let Some(r) = python_json("pandas_check.py", &args) else {
+        return;
+    };
     let summary = &r[args[0]];
     assert_eq!(summary["rows"], 2);
     for col in [

@@ -30,7 +30,9 @@ fn demo(dir: &std::path::Path, extra: &[&str]) -> std::path::PathBuf {
 fn demo_csv_and_h5_read_back_in_python() {
     let dir = tempdir();
     let csv = demo(dir.path(), &[]);
-    let r = python(&["csv", csv.to_str().unwrap()]);
+    let Some(r) = python(&["csv", csv.to_str().unwrap()]) else {
+        return;
+    };
     assert_eq!(
         r["header"],
         serde_json::json!(["track_id", "frame", "time_s", "x_nm", "y_nm"])
@@ -49,7 +51,9 @@ fn demo_csv_and_h5_read_back_in_python() {
     );
     assert!(r["rows"].as_u64().unwrap() > 1000, "{r}");
 
-    let h = python(&["h5", dir.path().join("tracks.h5").to_str().unwrap()]);
+    let Some(h) = python(&["h5", dir.path().join("tracks.h5").to_str().unwrap()]) else {
+        return;
+    };
     assert_eq!(h["detections"], r["rows"]);
     assert_eq!(h["tracks"], r["tracks"]);
     assert_eq!(h["species"], serde_json::json!(["cluster", "probe"]));
@@ -191,13 +195,15 @@ fn same_seed_same_files_and_reimaging_a_trajectory() {
         "again.csv",
     ];
     ok(&thicket(a.path(), &args));
-    let r = python(&["csv", a.path().join("again.csv").to_str().unwrap()]);
-    assert_eq!(
-        r["header"],
-        serde_json::json!(["track_id", "frame", "time_s", "x_nm", "y_nm", "z_nm"])
-    );
-    let h = python(&["h5", a.path().join("again.h5").to_str().unwrap()]);
-    assert!((h["camera"]["exposure_s"].as_f64().unwrap() - 0.005).abs() < 1e-15);
+    if let Some(r) = python(&["csv", a.path().join("again.csv").to_str().unwrap()]) {
+        assert_eq!(
+            r["header"],
+            serde_json::json!(["track_id", "frame", "time_s", "x_nm", "y_nm", "z_nm"])
+        );
+    }
+    if let Some(h) = python(&["h5", a.path().join("again.h5").to_str().unwrap()]) {
+        assert!((h["camera"]["exposure_s"].as_f64().unwrap() - 0.005).abs() < 1e-15);
+    }
 
     // A trajectory of another scenario is refused.
     let args = [

@@ -6,4 +6,6 @@ mod bleaching;
 mod files;
 mod focal;
 mod import;
+#[path = "../outside/mod.rs"]
+mod outside;
 mod support;
