@@ -167,16 +167,17 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
         .as_ref()
         .map(|c| {
             format!(
-                "; the camera keeps {} frames of {:e} s",
-                c.frames, c.frame_interval_s
+                "; the camera keeps {} frames of {} s",
+                c.frames,
+                thicket_analysis::format::short(c.frame_interval_s)
             )
         })
         .unwrap_or_default();
     println!(
-        "  time       Δt = {:e} s × {} steps = {:e} s, {} recorded positions per particle{camera}",
-        scenario.dt_s,
+        "  time       Δt = {} s × {} steps = {} s, {} recorded positions per particle{camera}",
+        thicket_analysis::format::short(scenario.dt_s),
         scenario.steps,
-        scenario.steps as f64 * scenario.dt_s,
+        thicket_analysis::format::short(scenario.steps as f64 * scenario.dt_s),
         scenario.frames()
     );
     for r in &regimes {
@@ -336,8 +337,10 @@ fn confinement_report(scenario: &Scenario) -> Result<Option<ConfinementReport>> 
     }
     if let Shape::Membrane(m) = &g.shape {
         lines.push(format!(
-            "           baths: top {} mol/m³, bottom {} mol/m³; tracers do not interact, so the particle count only sets the statistics and fluxes are scaled to these concentrations; steady-state window from {:e} s",
-            m.top_concentration_mol_per_m3, m.bottom_concentration_mol_per_m3, g.flux_after_s
+            "           baths: top {} mol/m³, bottom {} mol/m³; tracers do not interact, so the particle count only sets the statistics and fluxes are scaled to these concentrations; steady-state window from {} s",
+            m.top_concentration_mol_per_m3,
+            m.bottom_concentration_mol_per_m3,
+            thicket_analysis::format::short(g.flux_after_s)
         ));
     }
     let geometry = json!({

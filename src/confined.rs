@@ -46,6 +46,10 @@ pub fn membrane_report(
         .with_context(|| format!("analysing membrane file {}", file.display()))?;
     if let Some(prefix) = plot {
         let path = profile_csv_path(prefix);
+        if force && path.exists() {
+            // --force was checked by the caller: the profile may be replaced.
+            std::fs::remove_file(&path).with_context(|| format!("replacing {}", path.display()))?;
+        }
         report.write_profile_csv(&path)?;
         report.profile_csv = Some(path);
         let fig = thicket_analysis::curves::membrane_profile_figure(&report);
@@ -78,6 +82,10 @@ pub fn partition_report(
     if let Some(prefix) = plot {
         check_free(Some(prefix), force)?;
         let path = profile_csv_path(prefix);
+        if force && path.exists() {
+            // --force was checked by the caller: the profile may be replaced.
+            std::fs::remove_file(&path).with_context(|| format!("replacing {}", path.display()))?;
+        }
         report.write_profile_csv(&path)?;
         report.profile_csv = Some(path);
         let fig = thicket_analysis::curves::partition_profile_figure(&report);

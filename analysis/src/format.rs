@@ -23,6 +23,26 @@ pub fn sig(v: f64, sig: usize) -> String {
     }
 }
 
+/// A number for text at up to 6 significant figures with trailing zeros
+/// dropped, for inputs and exact derived values: 0.001 → "0.001",
+/// 3.0000000000000004 → "3", 1e-9 → "1e-9".
+pub fn short(v: f64) -> String {
+    let text = sig(v, 6);
+    let (mantissa, exponent) = match text.split_once('e') {
+        Some((m, e)) => (m.to_string(), format!("e{e}")),
+        None => (text.clone(), String::new()),
+    };
+    let mantissa = if mantissa.contains('.') {
+        mantissa
+            .trim_end_matches('0')
+            .trim_end_matches('.')
+            .to_string()
+    } else {
+        mantissa
+    };
+    format!("{mantissa}{exponent}")
+}
+
 /// A value and its 95 % interval for text, rounded together to two
 /// significant figures of the interval's half-width: "0.640 [0.611, 0.669]".
 pub fn with_interval(v: f64, ci: [f64; 2]) -> String {
@@ -96,6 +116,15 @@ mod tests {
         assert_eq!(sig(0.0, 3), "0");
         assert_eq!(sig(123456.0, 3), "1.23e5");
         assert_eq!(sig(0.6398, 3), "0.640");
+    }
+
+    #[test]
+    fn short_numbers_drop_trailing_zeros() {
+        assert_eq!(short(0.001), "0.001");
+        assert_eq!(short(3.0000000000000004), "3");
+        assert_eq!(short(1e-9), "1e-9");
+        assert_eq!(short(2.5e-10), "2.5e-10");
+        assert_eq!(short(300000.0), "3e5");
     }
 
     #[test]

@@ -36,7 +36,8 @@ pub const FONT_CANDIDATES: &[&str] = &[
 ];
 
 const FAMILY: &str = "sans-serif";
-const WIDTH: u32 = 800;
+/// Width of the plotting area, px; the legend adds a column to its right.
+const PLOT_WIDTH: u32 = 700;
 const HEIGHT: u32 = 500;
 
 /// An RGB colour with opacity.
@@ -357,6 +358,9 @@ pub fn msd_figure(msd: &Msd, report: &Report) -> Figure {
         .fold(0.0, f64::max);
     if let Some(d0) = report.d0_m2_per_s {
         ymax = ymax.max(d2 * d0);
+        for ratio in report.models.values() {
+            ymax = ymax.max(d2 * d0 * ratio);
+        }
     }
     ymax = ymax.max(d2 * report.d_eff_ci95_m2_per_s[1]);
     let e = decade(ymax * 1e12);
@@ -426,6 +430,16 @@ pub fn msd_figure(msd: &Msd, report: &Report) -> Figure {
             },
         ],
     };
+    // The models' prediction of this D_eff, as the line the MSD/τ plateau would reach.
+    if let Some(d0) = report.d0_m2_per_s {
+        for (i, (name, ratio)) in report.models.iter().enumerate() {
+            fig.hlines.push(HLine {
+                y: d2 * d0 * ratio * scale,
+                colour: series(i + 1),
+                label: format!("model: {name}"),
+            });
+        }
+    }
     if let Some(d0) = report.d0_m2_per_s {
         fig.hlines.push(HLine {
             y: d2 * d0 * scale,
@@ -522,9 +536,45 @@ fn escape(s: &str) -> String {
 
 /// Renders a figure as SVG text.
 pub fn render_svg(fig: &Figure) -> String {
-    let (w, h) = (f64::from(WIDTH), f64::from(HEIGHT));
-    let (left, right, top, bottom) = (80.0, 20.0, 40.0, 60.0);
-    let (pw, ph) = (w - left - right, h - top - bottom);
+    // A long title splits at " — " into a title and a smaller subtitle line.
+    let (title, subtitle) = match fig.title.split_once(" — ") {
+        Some((t, sub)) => (t, Some(sub)),
+        None => (fig.title.as_str(), None),
+    };
+    // (colour, label, filled box, dashed line)
+    let mut entries: Vec<(Colour, &str, bool, bool)> = Vec::new();
+    entries.extend(
+        fig.curves
+            .iter()
+            .map(|c| (c.colour, c.label.as_str(), false, c.dashed)),
+    );
+    entries.extend(
+        fig.hlines
+            .iter()
+            .map(|l| (l.colour, l.label.as_str(), false, true)),
+    );
+    entries.extend(
+        fig.bands
+            .iter()
+            .map(|b| (b.colour, b.label.as_str(), true, false)),
+    );
+    entries.extend(
+        fig.x_spans
+            .iter()
+            .map(|(_, c, l)| (*c, l.as_str(), true, false)),
+    );
+    // Wide enough for the longest label (about 6.6 px a character at 12 px).
+    let legend_w = entries
+        .iter()
+        .map(|e| e.1.chars().count())
+        .max()
+        .map_or(0.0, |n| 40.0 + 6.6 * n as f64)
+        .clamp(120.0, 520.0);
+    let (left, top, bottom) = (80.0, if subtitle.is_some() { 56.0 } else { 40.0 }, 60.0);
+    let pw = f64::from(PLOT_WIDTH);
+    let w = left + pw + 24.0 + legend_w + 10.0;
+    let h = f64::from(HEIGHT);
+    let ph = h - top - bottom;
     let fx = |x: f64| if fig.x_log { x.log10() } else { x };
     let (lx0, lx1) = (fx(fig.x_range[0]), fx(fig.x_range[1]));
     let [y0, y1] = fig.y_range;
@@ -533,7 +583,7 @@ pub fn render_svg(fig: &Figure) -> String {
     let mut s = String::new();
     let _ = writeln!(
         s,
-        r#"<svg xmlns="http://www.w3.org/2000/svg" width="{WIDTH}" height="{HEIGHT}" viewBox="0 0 {WIDTH} {HEIGHT}" font-family="sans-serif">"#
+        r#"<svg xmlns="http://www.w3.org/2000/svg" width="{w:.0}" height="{h:.0}" viewBox="0 0 {w:.0} {h:.0}" font-family="sans-serif">"#
     );
     let _ = writeln!(s, r#"<rect width="100%" height="100%" fill="white"/>"#);
     let _ = writeln!(
@@ -699,8 +749,16 @@ pub fn render_svg(fig: &Figure) -> String {
         s,
         r#"<text x="{0}" y="24" font-size="16" text-anchor="middle">{1}</text>"#,
         left + pw / 2.0,
-        escape(&fig.title)
+        escape(title)
     );
+    if let Some(sub) = subtitle {
+        let _ = writeln!(
+            s,
+            r#"<text x="{0}" y="42" font-size="12" text-anchor="middle">{1}</text>"#,
+            left + pw / 2.0,
+            escape(sub)
+        );
+    }
     let _ = writeln!(
         s,
         r#"<text x="{0}" y="{1}" font-size="14" text-anchor="middle">{2}</text>"#,
@@ -714,37 +772,8 @@ pub fn render_svg(fig: &Figure) -> String {
         top + ph / 2.0,
         escape(&fig.y_label)
     );
-    // Legend, top right inside the plot.
-    // (colour, label, filled box, dashed line)
-    let mut entries: Vec<(Colour, &str, bool, bool)> = Vec::new();
-    entries.extend(
-        fig.curves
-            .iter()
-            .map(|c| (c.colour, c.label.as_str(), false, c.dashed)),
-    );
-    entries.extend(
-        fig.hlines
-            .iter()
-            .map(|l| (l.colour, l.label.as_str(), false, true)),
-    );
-    entries.extend(
-        fig.bands
-            .iter()
-            .map(|b| (b.colour, b.label.as_str(), true, false)),
-    );
-    entries.extend(
-        fig.x_spans
-            .iter()
-            .map(|(_, c, l)| (*c, l.as_str(), true, false)),
-    );
-    // Wide enough for the longest label (about 6.6 px a character at 12 px).
-    let legend_w = entries
-        .iter()
-        .map(|e| e.1.chars().count())
-        .max()
-        .map_or(0.0, |n| 40.0 + 6.6 * n as f64)
-        .clamp(120.0, pw * 0.7);
-    let (lx, mut ly) = (left + pw - legend_w - 8.0, top + 12.0);
+    // Legend, in its own column right of the plot.
+    let (lx, mut ly) = (left + pw + 30.0, top + 12.0);
     let _ = writeln!(
         s,
         r##"<rect x="{0}" y="{1}" width="{legend_w:.1}" height="{2}" fill="white" fill-opacity="0.85" stroke="#999"/>"##,
@@ -865,7 +894,8 @@ pub fn render_png(fig: &Figure, path: &Path, text: bool) -> Result<()> {
         *options.fontdb_mut() = font_database().clone();
     }
     let tree = usvg::Tree::from_str(&svg, &options).map_err(|e| output_error(path, e))?;
-    let mut pixmap = tiny_skia::Pixmap::new(WIDTH, HEIGHT)
+    let size = tree.size().to_int_size();
+    let mut pixmap = tiny_skia::Pixmap::new(size.width(), size.height())
         .ok_or_else(|| output_error(path, "cannot allocate the image"))?;
     resvg::render(&tree, tiny_skia::Transform::default(), &mut pixmap.as_mut());
     pixmap.save_png(path).map_err(|e| output_error(path, e))

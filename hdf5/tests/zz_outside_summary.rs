@@ -39,7 +39,7 @@ fn outside_checks_summary() {
     }
     let _ = writeln!(
         err,
-        "outside checks (h5py, numpy, scipy, h5dump): {ran} ran, {} skipped",
+        "outside checks (h5py, numpy, scipy, pandas, h5dump): {ran} ran, {} skipped",
         skipped.len()
     );
     let ci = std::env::var("CI").is_ok_and(|v| v == "true" || v == "1");
