@@ -20,18 +20,39 @@ const PLOT_FILES: [&str; 11] = [
     "_profile.png",
 ];
 
+/// What `thicket analyze FILE.h5` is asked to do.
+pub struct TrajectoryArgs<'a> {
+    /// The trajectory.
+    pub file: &'a Path,
+    /// Species (default: the first tracer).
+    pub species: Option<&'a str>,
+    /// `--window T0,T1`.
+    pub window: Option<&'a str>,
+    /// `--axes`.
+    pub axes: Option<&'a str>,
+    /// `--d0`.
+    pub d0: Option<f64>,
+    /// `--plot PREFIX`.
+    pub plot: Option<&'a Path>,
+    /// `--json`.
+    pub as_json: bool,
+    /// `--force`: replace existing plot files.
+    pub force: bool,
+}
+
 /// Analyses a trajectory and prints a table or JSON; optional plots
 /// (existing files are refused unless `force`).
-pub fn analyze_trajectory(
-    file: &Path,
-    species: Option<&str>,
-    window: Option<&str>,
-    axes: Option<&str>,
-    d0: Option<f64>,
-    plot: Option<&Path>,
-    as_json: bool,
-    force: bool,
-) -> Result<ExitCode> {
+pub fn analyze_trajectory(args: &TrajectoryArgs) -> Result<ExitCode> {
+    let TrajectoryArgs {
+        file,
+        species,
+        window,
+        axes,
+        d0,
+        plot,
+        as_json,
+        force,
+    } = *args;
     // Every file --plot may write is checked before anything is written.
     if let (Some(prefix), false) = (plot, force) {
         let taken: Vec<String> = PLOT_FILES

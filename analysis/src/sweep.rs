@@ -282,7 +282,7 @@ fn model_curves(sweep: &Sweep) -> Vec<ModelCurve> {
     } else {
         numbers.iter().map(|n| n.0).fold(f64::MAX, f64::min)
     };
-    if !(hi > lo) {
+    if hi.is_nan() || lo.is_nan() || hi <= lo {
         return Vec::new();
     }
     let mut xs: Vec<f64> = (0..CURVE_POINTS)
