@@ -433,20 +433,8 @@ pub fn renkin_hindrance(lambda: f64) -> ModelResult<f64> {
 /// # Errors
 /// λ outside [0, 0.95], the range of their fit.
 pub fn dechadilok_deen_hindrance(lambda: f64) -> ModelResult<f64> {
-    if !(0.0..=DECHADILOK_DEEN_MAX_LAMBDA).contains(&lambda) {
-        return Err(ModelError::OutOfRange {
-            name: "size ratio lambda = a/r_pore",
-            value: lambda,
-            allowed: "[0, 0.95] (Dechadilok-Deen fit range)",
-        });
-    }
-    let l = lambda;
-    // λ ln λ → 0 as λ → 0.
-    let log_term = if l == 0.0 {
-        0.0
-    } else {
-        9.0 / 8.0 * l * l.ln()
-    };
+    let l = dechadilok_deen_lambda("size ratio lambda = a/r_pore", lambda)?;
+    let log_term = lambda_log_lambda(l, 9.0 / 8.0);
     let polynomial = l
         * (-1.56034
             + l * (0.528155
@@ -1140,6 +1128,28 @@ mod membrane_tests {
     }
 }
 
+/// λ checked against the range of Dechadilok & Deen's fits, [0, 0.95].
+fn dechadilok_deen_lambda(name: &'static str, lambda: f64) -> ModelResult<f64> {
+    if (0.0..=DECHADILOK_DEEN_MAX_LAMBDA).contains(&lambda) {
+        Ok(lambda)
+    } else {
+        Err(ModelError::OutOfRange {
+            name,
+            value: lambda,
+            allowed: "[0, 0.95] (Dechadilok-Deen fit range)",
+        })
+    }
+}
+
+/// c·λ ln λ, which tends to 0 as λ → 0.
+fn lambda_log_lambda(lambda: f64, c: f64) -> f64 {
+    if lambda == 0.0 {
+        0.0
+    } else {
+        c * lambda * lambda.ln()
+    }
+}
+
 /// Dechadilok & Deen (2006) diffusive hindrance factor H = Φ · ⟨K_d⟩ for a
 /// slit of half-width h, λ = a/h (REFERENCES.md, from memory):
 /// H = 1 + (9/16)λ ln λ − 1.19358λ + 0.4285λ³ − 0.3192λ⁴ + 0.08428λ⁵,
@@ -1148,20 +1158,8 @@ mod membrane_tests {
 /// # Errors
 /// λ outside [0, 0.95], the range of their fit.
 pub fn dechadilok_deen_slit_hindrance(lambda: f64) -> ModelResult<f64> {
-    if !(0.0..=DECHADILOK_DEEN_MAX_LAMBDA).contains(&lambda) {
-        return Err(ModelError::OutOfRange {
-            name: "size ratio lambda = a/h",
-            value: lambda,
-            allowed: "[0, 0.95] (Dechadilok-Deen fit range)",
-        });
-    }
-    let l = lambda;
-    // λ ln λ → 0 as λ → 0.
-    let log_term = if l == 0.0 {
-        0.0
-    } else {
-        9.0 / 16.0 * l * l.ln()
-    };
+    let l = dechadilok_deen_lambda("size ratio lambda = a/h", lambda)?;
+    let log_term = lambda_log_lambda(l, 9.0 / 16.0);
     Ok(1.0 + log_term + l * (-1.19358 + l * l * (0.4285 + l * (-0.3192 + 0.08428 * l))))
 }
 
