@@ -245,6 +245,19 @@ fn check_against(
             ckpt.state.len()
         )));
     }
+    // Generous bounds: a stored position is inside the box (wrapped or between walls).
+    let edges = scenario.sim_box.edges_nm;
+    if let Some(i) = ckpt
+        .state
+        .positions
+        .iter()
+        .position(|p| (0..3).any(|k| !(-edges[k]..=2.0 * edges[k]).contains(&p[k])))
+    {
+        return Err(fail(format!(
+            "particle {i} is at {:?} nm, far outside the box {edges:?} nm",
+            ckpt.state.positions[i]
+        )));
+    }
     let step = ckpt.state.step;
     if step > scenario.steps {
         return Err(fail(format!(

@@ -267,6 +267,10 @@ fn damaged_checkpoints_are_refused_and_change_no_file() {
     nan[particles..particles + 8].copy_from_slice(&f64::NAN.to_le_bytes());
     reseal(&mut nan);
     cases.push(("non-finite position", nan, "non-finite position"));
+    let mut far = body.to_vec();
+    far[particles..particles + 8].copy_from_slice(&1e12f64.to_le_bytes());
+    reseal(&mut far);
+    cases.push(("position outside the box", far, "outside the box"));
     // One particle fewer, consistently sized and sealed.
     let mut fewer = Vec::new();
     fewer.extend_from_slice(&body[..24]);
