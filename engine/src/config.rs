@@ -261,7 +261,7 @@ pub struct RawOutput {
     /// "f32" (default) or "f64" for stored positions.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub precision: Option<String>,
-    /// Wall-clock seconds between checkpoints (default 60).
+    /// Wall-clock seconds between checkpoints, which flush the trajectory too (default 5).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub checkpoint_interval_s: Option<f64>,
 }
@@ -995,7 +995,7 @@ impl RawScenario {
             }
         };
         let checkpoint_interval_s = match self.output.checkpoint_interval_s {
-            None => 60.0,
+            None => 5.0,
             Some(c) => positive(file, "output.checkpoint_interval_s", c)?,
         };
         let output = OutputSpec {

@@ -55,6 +55,14 @@ pub enum EngineError {
         /// Output path.
         file: PathBuf,
     },
+    /// Another run holds the output's lock.
+    #[error("{}: another thicket run (pid {holder}) is writing this file; wait for it to end or stop it; --force does not override a running run", file.display())]
+    OutputLocked {
+        /// Output path.
+        file: PathBuf,
+        /// Process id recorded in the lock file, as text.
+        holder: String,
+    },
     /// The output folder does not exist or is not writable.
     #[error("{}: cannot write the output file: {reason}", file.display())]
     OutputNotWritable {

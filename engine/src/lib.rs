@@ -10,6 +10,7 @@ pub mod crowders;
 pub mod error;
 pub mod fibres;
 pub mod geometry;
+pub mod lock;
 pub mod medium;
 pub mod mobility;
 pub mod neighbors;

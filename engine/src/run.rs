@@ -5,8 +5,9 @@ use crate::config::Scenario;
 use crate::confined::{sidecar_path, ConfinedRun};
 use crate::error::{EngineError, Result};
 use crate::integrate::{Dynamics, State};
+use crate::lock::OutputLock;
 use crate::obstacles::FixedObstacles;
-use crate::trajectory::{checkpoint_path, Checkpoint, TrajectoryWriter};
+use crate::trajectory::{checkpoint_path, recorded_steps, Checkpoint, TrajectoryWriter};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::Instant;
@@ -61,6 +62,9 @@ pub fn run(
     // Obstacles come from the seed, so a resumed run rebuilds the same medium;
     // placed before any file is touched, so a failed placement leaves files alone.
     let obstacles = FixedObstacles::build(scenario)?;
+    check_parent(out)?;
+    // Held to the end: a second run on this output (with --force or --resume) is refused.
+    let _lock = OutputLock::acquire(out)?;
     // Walls, pores and membranes have their own kernels and measurements (confined.rs).
     let mut confined = scenario
         .geometry
@@ -82,7 +86,6 @@ pub fn run(
                 reason: e.to_string(),
             })?;
         }
-        check_parent(out)?;
         let _ = std::fs::remove_file(&ckpt_path);
         let state = match (&dynamics, &confined) {
             (Some(d), _) => d.initial_state(scenario)?,
@@ -121,6 +124,13 @@ pub fn run(
         }
         .save(&ckpt_path)
     };
+    if !options.resume {
+        // From the first frame on, a killed run can be resumed.
+        if let Some(c) = &confined {
+            c.save(&ckpt_path, state.step)?;
+        }
+        save(&state, &writer)?;
+    }
     progress(state.step, scenario.steps);
     while state.step < scenario.steps {
         if stop.load(Ordering::Relaxed) {
@@ -210,12 +220,85 @@ fn resume_state(
             ),
         });
     }
-    if ckpt.state.len() != scenario.particle_count() {
-        return Err(EngineError::Resume {
-            file: ckpt_path.to_path_buf(),
-            reason: "the checkpoint holds a different number of particles".into(),
-        });
-    }
+    check_against(&ckpt, scenario, out, ckpt_path)?;
     let writer = TrajectoryWriter::reopen(out, scenario, ckpt.frames as usize)?;
     Ok((ckpt.state, writer))
+}
+
+/// Cross-checks a checkpoint against the scenario and the trajectory before
+/// anything is changed: particle count, step, frame count and the recorded
+/// steps must all agree.
+fn check_against(
+    ckpt: &Checkpoint,
+    scenario: &Scenario,
+    out: &Path,
+    ckpt_path: &Path,
+) -> Result<()> {
+    let fail = |reason: String| EngineError::Resume {
+        file: ckpt_path.to_path_buf(),
+        reason: format!("{reason}; no file was changed"),
+    };
+    let n = scenario.particle_count();
+    if ckpt.state.len() != n {
+        return Err(fail(format!(
+            "the checkpoint holds {} particles but the scenario has {n}",
+            ckpt.state.len()
+        )));
+    }
+    // Generous bounds: a stored position is inside the box (wrapped or between walls).
+    let edges = scenario.sim_box.edges_nm;
+    if let Some(i) = ckpt
+        .state
+        .positions
+        .iter()
+        .position(|p| (0..3).any(|k| !(-edges[k]..=2.0 * edges[k]).contains(&p[k])))
+    {
+        return Err(fail(format!(
+            "particle {i} is at {:?} nm, far outside the box {edges:?} nm",
+            ckpt.state.positions[i]
+        )));
+    }
+    let step = ckpt.state.step;
+    if step > scenario.steps {
+        return Err(fail(format!(
+            "the checkpoint is at step {step}, past the scenario's {} steps",
+            scenario.steps
+        )));
+    }
+    // A frame is recorded at step 0 and at every multiple of record_every_steps.
+    let record = scenario.output.record_every_steps;
+    let expected = step / record + 1;
+    if ckpt.frames != expected {
+        return Err(fail(format!(
+            "the checkpoint says {} frames but step {step} with a frame every {record} steps means {expected}",
+            ckpt.frames
+        )));
+    }
+    let frames = expected as usize;
+    for ((have, steps), s) in recorded_steps(out, scenario)?.iter().zip(&scenario.species) {
+        if *have < frames || steps.len() < frames {
+            return Err(EngineError::Resume {
+                file: out.to_path_buf(),
+                reason: format!(
+                    "species `{}` has {} frames on disk but the checkpoint {} expects {frames}; the file is not the one the checkpoint belongs to; no file was changed",
+                    s.name,
+                    have.min(&steps.len()),
+                    ckpt_path.display()
+                ),
+            });
+        }
+        if let Some(k) = (0..frames).find(|&k| steps[k] != (k as u64 * record) as i64) {
+            return Err(EngineError::Resume {
+                file: out.to_path_buf(),
+                reason: format!(
+                    "species `{}` frame {k} is at step {} but the checkpoint {} expects step {}; no file was changed",
+                    s.name,
+                    steps[k],
+                    ckpt_path.display(),
+                    k as u64 * record
+                ),
+            });
+        }
+    }
+    Ok(())
 }

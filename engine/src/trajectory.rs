@@ -468,7 +468,24 @@ pub fn checkpoint_path(trajectory: &Path) -> PathBuf {
     PathBuf::from(s)
 }
 
-const CHECKPOINT_MAGIC: &[u8; 8] = b"THKTCK01";
+const CHECKPOINT_MAGIC: &[u8; 8] = b"THKTCK02";
+/// Magic of the format before checksums, recognised only to say so.
+const CHECKPOINT_MAGIC_V1: &[u8; 8] = b"THKTCK01";
+/// Header: magic, frames, step, particle count, scenario length.
+const CHECKPOINT_HEADER: usize = 8 + 4 * 8;
+/// Bytes per particle: position (3 × f64), image (3 × i32), generator (4 × u64).
+const CHECKPOINT_PER_PARTICLE: usize = 24 + 12 + 32;
+
+/// FNV-1a, 64-bit: detects truncation and flipped bytes in a checkpoint
+/// (not an authenticity check; the file is our own).
+fn fnv1a64(bytes: &[u8]) -> u64 {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for &b in bytes {
+        h ^= u64::from(b);
+        h = h.wrapping_mul(0x0000_0100_0000_01b3);
+    }
+    h
+}
 
 /// Exact run state at a step, with the frames already in the trajectory.
 #[derive(Debug, Clone, PartialEq)]
@@ -483,7 +500,7 @@ pub struct Checkpoint {
 
 impl Checkpoint {
     /// Writes atomically (temporary file, then rename), so a kill mid-write
-    /// leaves the previous checkpoint intact.
+    /// leaves the previous checkpoint intact; a checksum ends the file.
     ///
     /// # Errors
     /// I/O failures.
@@ -493,7 +510,9 @@ impl Checkpoint {
             source,
         };
         let n = self.state.len();
-        let mut buf = Vec::with_capacity(64 + self.resolved_toml.len() + n * 68);
+        let mut buf = Vec::with_capacity(
+            CHECKPOINT_HEADER + self.resolved_toml.len() + n * CHECKPOINT_PER_PARTICLE + 8,
+        );
         buf.extend_from_slice(CHECKPOINT_MAGIC);
         for v in [
             self.frames,
@@ -519,17 +538,29 @@ impl Checkpoint {
                 buf.extend_from_slice(&w.to_le_bytes());
             }
         }
+        let sum = fnv1a64(&buf);
+        buf.extend_from_slice(&sum.to_le_bytes());
         let tmp = path.with_extension("ckpt.tmp");
         let mut f = std::fs::File::create(&tmp).map_err(io)?;
         f.write_all(&buf).map_err(io)?;
         f.sync_all().map_err(io)?;
-        std::fs::rename(&tmp, path).map_err(io)
+        std::fs::rename(&tmp, path).map_err(io)?;
+        // The rename itself reaches the disk only with its folder.
+        if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
+            if let Ok(d) = std::fs::File::open(dir) {
+                let _ = d.sync_all();
+            }
+        }
+        Ok(())
     }
 
-    /// Reads a checkpoint written by [`Checkpoint::save`].
+    /// Reads a checkpoint written by [`Checkpoint::save`], checking its
+    /// checksum, sizes, finite positions and generator states before
+    /// allocating or returning anything.
     ///
     /// # Errors
-    /// [`EngineError::Resume`] when missing, truncated or not a checkpoint.
+    /// [`EngineError::Resume`] naming the checkpoint when it is missing,
+    /// truncated, damaged or not a checkpoint.
     pub fn load(path: &Path) -> Result<Self> {
         let fail = |reason: String| EngineError::Resume {
             file: path.to_path_buf(),
@@ -543,37 +574,65 @@ impl Checkpoint {
                     "no readable checkpoint ({e}); only a run that was interrupted can be resumed"
                 ))
             })?;
-        let mut r = Reader {
-            bytes: &bytes,
-            at: 0,
+        let damaged = |what: &str| {
+            fail(format!(
+                "the checkpoint is damaged ({what}); the trajectory is left as it is; start the run again with --force"
+            ))
         };
-        if r.take(8) != Some(CHECKPOINT_MAGIC.as_slice()) {
-            return Err(fail("the file is not a thicket checkpoint".into()));
+        match bytes.get(..8) {
+            Some(m) if m == CHECKPOINT_MAGIC.as_slice() => {}
+            Some(m) if m == CHECKPOINT_MAGIC_V1.as_slice() => {
+                return Err(fail(
+                    "the checkpoint was written by an older thicket without checksums; start the run again with --force".into(),
+                ))
+            }
+            _ => return Err(fail("the file is not a thicket checkpoint".into())),
         }
-        let short = || fail("the checkpoint is truncated".into());
+        if bytes.len() < CHECKPOINT_HEADER + 8 {
+            return Err(damaged("truncated"));
+        }
+        let (body, tail) = bytes.split_at(bytes.len() - 8);
+        let stored = u64::from_le_bytes(tail.try_into().expect("8 bytes"));
+        if fnv1a64(body) != stored {
+            return Err(damaged("checksum mismatch: truncated or altered"));
+        }
+        let mut r = Reader { bytes: body, at: 8 };
+        let short = || damaged("truncated");
         let frames = r.u64().ok_or_else(short)?;
         let step = r.u64().ok_or_else(short)?;
-        let n = r.u64().ok_or_else(short)? as usize;
-        let len = r.u64().ok_or_else(short)? as usize;
+        let n = r.u64().ok_or_else(short)?;
+        let len = r.u64().ok_or_else(short)?;
+        let len = usize::try_from(len).map_err(|_| short())?;
         let toml = r.take(len).ok_or_else(short)?;
-        let resolved_toml = String::from_utf8(toml.to_vec())
-            .map_err(|_| fail("the checkpoint's scenario is not text".into()))?;
-        if bytes.len() != r.at + n * (24 + 12 + 32) {
-            return Err(short());
-        }
+        let resolved_toml =
+            String::from_utf8(toml.to_vec()).map_err(|_| damaged("the scenario is not text"))?;
+        // Sizes are checked against the bytes present before any allocation.
+        let n = usize::try_from(n)
+            .ok()
+            .filter(|&n| n.checked_mul(CHECKPOINT_PER_PARTICLE) == Some(body.len() - r.at))
+            .ok_or_else(|| damaged("its particle count does not match its size"))?;
         let mut positions = Vec::with_capacity(n);
-        for _ in 0..n {
-            positions.push([r.f64(), r.f64(), r.f64()].map(|v| v.unwrap_or(0.0)));
+        for i in 0..n {
+            let p = [r.f64(), r.f64(), r.f64()].map(|v| v.unwrap_or(f64::NAN));
+            if !p.iter().all(|x| x.is_finite()) {
+                return Err(damaged(&format!("particle {i} has a non-finite position")));
+            }
+            positions.push(p);
         }
         let mut images = Vec::with_capacity(n);
         for _ in 0..n {
             images.push([r.i32(), r.i32(), r.i32()].map(|v| v.unwrap_or(0)));
         }
         let mut rngs = Vec::with_capacity(n);
-        for _ in 0..n {
-            rngs.push(ParticleRng::from_state(
-                [r.u64(), r.u64(), r.u64(), r.u64()].map(|v| v.unwrap_or(1)),
-            ));
+        for i in 0..n {
+            let words = [r.u64(), r.u64(), r.u64(), r.u64()].map(|v| v.unwrap_or(0));
+            // xoshiro256 never leaves the all-zero state, so it cannot come from a run.
+            if words == [0; 4] {
+                return Err(damaged(&format!(
+                    "particle {i} has an all-zero generator state"
+                )));
+            }
+            rngs.push(ParticleRng::from_state(words));
         }
         Ok(Self {
             frames,
@@ -586,6 +645,36 @@ impl Checkpoint {
             },
         })
     }
+}
+
+/// Frames and recorded steps of a trajectory, read without changing it:
+/// per species, the length of `position/value` and the `position/step` values.
+///
+/// # Errors
+/// [`EngineError::Resume`] when the file or a dataset cannot be read.
+pub fn recorded_steps(path: &Path, scenario: &Scenario) -> Result<Vec<(usize, Vec<i64>)>> {
+    let fail = |reason: String| EngineError::Resume {
+        file: path.to_path_buf(),
+        reason,
+    };
+    let file = File::open(path).map_err(|e| fail(format!("the trajectory cannot be read: {e}")))?;
+    let mut out = Vec::new();
+    for s in &scenario.species {
+        let base = format!("particles/{}/position", s.name);
+        let value = file
+            .dataset(&format!("{base}/value"))
+            .map_err(|e| fail(format!("dataset /{base}/value is missing: {e}")))?;
+        let steps: Vec<i64> = file
+            .dataset(&format!("{base}/step"))
+            .and_then(|d| d.read_raw::<i64>())
+            .map_err(|e| {
+                fail(format!(
+                    "dataset /{base}/step is missing or unreadable: {e}"
+                ))
+            })?;
+        out.push((value.shape().first().copied().unwrap_or(0), steps));
+    }
+    Ok(out)
 }
 
 struct Reader<'a> {

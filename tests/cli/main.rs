@@ -3,6 +3,7 @@
 mod analysis;
 mod bad_input;
 mod confined;
+mod crash;
 mod file_format;
 mod free;
 mod outputs;
