@@ -11,6 +11,7 @@ pub mod error;
 pub mod fibres;
 pub mod geometry;
 pub mod medium;
+pub mod memory;
 pub mod mobility;
 pub mod neighbors;
 pub mod obstacles;
