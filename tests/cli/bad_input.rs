@@ -621,3 +621,37 @@ fn an_oversized_sweep_grid_is_refused() {
         "{err}"
     );
 }
+
+/// An edited grid used to reuse the old points' results (keyed by index and seed only).
+#[test]
+fn an_edited_sweep_grid_reruns_the_changed_points() {
+    let d = tempdir();
+    std::fs::write(d.path().join("s.toml"), BASE).unwrap();
+    let sweep = |radius: &str| {
+        std::fs::write(
+            d.path().join("sw.toml"),
+            format!("scenario = \"s.toml\"\n[grid]\n\"species.0.radius_nm\" = [{radius}]\n[set]\n\"integrator.steps\" = 2000\n\"output.record_every_steps\" = 20\n"),
+        )
+        .unwrap();
+        ok(&thicket(d.path(), &["sweep", "sw.toml", "--out", "o"]));
+        let text = std::fs::read_to_string(d.path().join("o/points/p0000_s1.json")).unwrap();
+        serde_json::from_str::<serde_json::Value>(&text).unwrap()
+    };
+    let json = d.path().join("o/points/p0000_s1.json");
+    let first = sweep("2.0");
+    let written = std::fs::metadata(&json).unwrap().modified().unwrap();
+    std::thread::sleep(std::time::Duration::from_millis(20));
+    let again = sweep("2.0");
+    assert_eq!(first, again);
+    let rewritten = std::fs::metadata(&json).unwrap().modified().unwrap();
+    assert_eq!(
+        written, rewritten,
+        "an unchanged point is reused, not rerun"
+    );
+    let edited = sweep("4.0");
+    assert_ne!(first["scenario_hash"], edited["scenario_hash"]);
+    assert_eq!(edited["values"]["species.0.radius_nm"], 4.0);
+    // Stokes–Einstein: D0 ∝ 1/a, so doubling the radius halves D0 (exact).
+    let ratio = first["d0_m2_per_s"].as_f64().unwrap() / edited["d0_m2_per_s"].as_f64().unwrap();
+    assert!((ratio - 2.0).abs() < 1e-9, "D0 ratio {ratio}");
+}
