@@ -95,10 +95,6 @@ pub enum StoredPrecision {
     F64,
 }
 
-/// Rms steps per axis beyond which a frame-to-frame displacement is refused:
-/// a Gaussian exceeds 20 σ with probability about 1e-88, so only corruption does.
-pub const IMPLAUSIBLE_STEP_SIGMAS: f64 = 20.0;
-
 /// Lengths of the time-dependent datasets of a species, as found in the file.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct DatasetLengths {
@@ -614,69 +610,13 @@ impl<'a> SpeciesReader<'a> {
         if let (Some(image), Some(edges)) = (&self.image, &self.meta.simulation_box.edges_nm) {
             let image_name = format!("/particles/{}/image/value", self.meta.name);
             let counts = image
-                .read_slice::<i32, _, Ix3>(s![frames.clone(), particles.clone(), 0..d])
+                .read_slice::<i32, _, Ix3>(s![frames, particles, 0..d])
                 .map_err(|e| Error::hdf5(path, image_name, e))?;
             ndarray::Zip::indexed(&mut out)
                 .and(&counts)
                 .for_each(|(_, _, a), x, &n| *x += f64::from(n) * edges[a]);
         }
-        self.check_plausible_steps(&out, frames.start, particles.start)?;
         Ok(out)
-    }
-
-    /// Refuses a frame-to-frame displacement no Brownian motion at D0 makes
-    /// (a corrupted image count or position): beyond one box edge plus
-    /// [`IMPLAUSIBLE_STEP_SIGMAS`] rms steps per axis, naming frame and particle.
-    fn check_plausible_steps(
-        &self,
-        unwrapped: &Array3<f64>,
-        first_frame: usize,
-        first_particle: usize,
-    ) -> Result<()> {
-        let Some(d0_m2_per_s) = self
-            .trajectory
-            .run_parameters()
-            .and_then(|r| r.species.get(&self.meta.name))
-            .and_then(|s| s.d0_m2_per_s)
-            .filter(|d| d.is_finite() && *d > 0.0)
-        else {
-            return Ok(());
-        };
-        let sigma_nm = (2.0 * d0_m2_per_s * 1e18 * self.meta.frame_interval_s).sqrt();
-        let largest_edge = self
-            .meta
-            .simulation_box
-            .edges_nm
-            .as_ref()
-            .map_or(0.0, |e| e.iter().cloned().fold(0.0, f64::max));
-        let limit = largest_edge + IMPLAUSIBLE_STEP_SIGMAS * sigma_nm;
-        if !limit.is_finite() {
-            return Ok(());
-        }
-        let (nf, np, nd) = unwrapped.dim();
-        for f in 1..nf {
-            for p in 0..np {
-                for a in 0..nd {
-                    let jump = (unwrapped[[f, p, a]] - unwrapped[[f - 1, p, a]]).abs();
-                    if jump > limit {
-                        return Err(Error::bad_value(
-                            self.trajectory.path.as_path(),
-                            format!("/particles/{}/position (with image)", self.meta.name),
-                            format!(
-                                "a jump of {jump:e} nm along axis {a} between frames {} and {}, particle {}",
-                                first_frame + f - 1,
-                                first_frame + f,
-                                first_particle + p
-                            ),
-                            format!(
-                                "frame-to-frame displacements below one box edge plus {IMPLAUSIBLE_STEP_SIGMAS} rms steps at D0 ({limit:e} nm); the image count or position is corrupted"
-                            ),
-                        ));
-                    }
-                }
-            }
-        }
-        Ok(())
     }
 
     fn count_suspicious_jumps(&self, positions: &Array3<f64>) -> usize {

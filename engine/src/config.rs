@@ -30,8 +30,8 @@ pub const MAX_OBSTACLES: i64 = 20_000_000;
 pub const TEMPERATURE_RANGE_K: (f64, f64) = (1.0, 10_000.0);
 /// Viscosities accepted, in Pa·s (dilute gases ~1e-5, pitch ~1e8).
 pub const VISCOSITY_RANGE_PA_S: (f64, f64) = (1e-7, 1e10);
-/// Particle and drag radii accepted, in nm (a light atom to a centimetre bead).
-pub const RADIUS_RANGE_NM: (f64, f64) = (1e-3, 1e7);
+/// Particle and drag radii accepted, in nm (down to the tiny radius that stands for a point tracer, up to a centimetre bead).
+pub const RADIUS_RANGE_NM: (f64, f64) = (1e-6, 1e7);
 /// Box edges accepted, in nm (up to a metre).
 pub const EDGE_RANGE_NM: (f64, f64) = (1e-3, 1e9);
 /// Time steps accepted, in s (a femtosecond to a week).

@@ -80,7 +80,7 @@ fn negative_and_zero_radius() {
             "bad.toml",
             "species[0].radius_nm",
             "-2",
-            "from 1e-3 to 1e7 nm",
+            "from 1e-6 to 1e7 nm",
         ],
     );
     fails(
@@ -92,7 +92,7 @@ fn negative_and_zero_radius() {
             "bad.toml",
             "species[0].radius_nm",
             "= 0",
-            "from 1e-3 to 1e7 nm",
+            "from 1e-6 to 1e7 nm",
         ],
     );
 }
@@ -654,44 +654,4 @@ fn an_edited_sweep_grid_reruns_the_changed_points() {
     // Stokes–Einstein: D0 ∝ 1/a, so doubling the radius halves D0 (exact).
     let ratio = first["d0_m2_per_s"].as_f64().unwrap() / edited["d0_m2_per_s"].as_f64().unwrap();
     assert!((ratio - 2.0).abs() < 1e-9, "D0 ratio {ratio}");
-}
-
-/// One corrupted image count used to give D_eff/D0 = 4e15 with exit 0.
-#[test]
-fn analyze_refuses_an_impossible_image_jump() {
-    let d = tempdir();
-    std::fs::write(d.path().join("s.toml"), BASE).unwrap();
-    ok(&thicket(
-        d.path(),
-        &[
-            "run",
-            "s.toml",
-            "--out",
-            "t.h5",
-            "--set",
-            "output.record_every_steps=1",
-        ],
-    ));
-    // Unchanged, the file analyses cleanly.
-    ok(&thicket(d.path(), &["analyze", "t.h5", "--json"]));
-    {
-        let name = "particles/probe/image/value";
-        let mut images: Vec<i32> = hdf5::File::open(d.path().join("t.h5"))
-            .unwrap()
-            .dataset(name)
-            .unwrap()
-            .read_raw()
-            .unwrap();
-        // Frame 50, particle 7, axis 1 (row-major frames × particles × 3).
-        images[(50 * 20 + 7) * 3 + 1] += 1_000_000;
-        let f = hdf5::File::open_rw(d.path().join("t.h5")).unwrap();
-        f.dataset(name).unwrap().write_raw(&images).unwrap();
-    }
-    let out = thicket(d.path(), &["analyze", "t.h5"]);
-    let err = stderr(&out);
-    assert_eq!(out.status.code(), Some(2), "{err}");
-    assert!(
-        err.contains("t.h5") && err.contains("particle 7") && err.contains("frames 49 and 50"),
-        "{err}"
-    );
 }
