@@ -125,6 +125,7 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             "models": tables[0].values(),
             "model_table": tables[0].entries,
             "warnings": warnings,
+            "memory_estimate_bytes": thicket_engine::memory::estimate(&scenario).total_bytes(),
         });
         if let Some(c) = &confinement {
             // The first species' values at the top level; every species under "confinement".
@@ -147,6 +148,12 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
         return Ok(ExitCode::SUCCESS);
     }
     println!("scenario {}: valid", config.display());
+    println!(
+        "  memory     about {} (estimated peak of the large buffers)",
+        thicket_engine::memory::format_bytes(
+            thicket_engine::memory::estimate(&scenario).total_bytes()
+        )
+    );
     println!(
         "  medium     T = {} K, η = {:.4e} Pa·s ({})",
         scenario.temperature_k,

@@ -23,6 +23,29 @@ use std::process::ExitCode;
 struct Cli {
     #[command(subcommand)]
     command: Command,
+    /// Refuse inputs whose estimated memory exceeds SIZE (e.g. 512M, 8G; default: the memory available now).
+    #[arg(long, global = true, value_name = "SIZE", value_parser = parse_max_memory)]
+    max_memory: Option<f64>,
+}
+
+/// The largest --threads accepted: far above any machine's cores, low enough to start.
+const MAX_THREADS: usize = 1024;
+
+/// Parses `--threads`, naming the allowed range.
+fn parse_threads(text: &str) -> Result<usize, String> {
+    match text.parse::<usize>() {
+        Ok(n) if (1..=MAX_THREADS).contains(&n) => Ok(n),
+        _ => Err(format!(
+            "the thread count must be a whole number from 1 to {MAX_THREADS}"
+        )),
+    }
+}
+
+/// Parses `--max-memory`.
+fn parse_max_memory(text: &str) -> Result<f64, String> {
+    thicket_engine::memory::parse_size(text).ok_or_else(|| {
+        "a size greater than 0: bytes, or a number with K, M, G or T (powers of 1024), e.g. 512M or 8G".into()
+    })
 }
 
 #[derive(Subcommand, Debug)]
@@ -38,7 +61,7 @@ enum Command {
         #[arg(long = "set", value_name = "KEY=VALUE")]
         sets: Vec<String>,
         /// Worker threads (default: all cores). Results do not depend on it.
-        #[arg(long)]
+        #[arg(long, value_parser = parse_threads)]
         threads: Option<usize>,
         /// Overwrite an existing trajectory.
         #[arg(long)]
@@ -61,13 +84,13 @@ enum Command {
     /// Print published model values (obstruction, fibres, pores) for given parameters.
     Models {
         /// Obstacle volume fractions, comma-separated.
-        #[arg(long, default_value = "0.1,0.2,0.3,0.4")]
+        #[arg(long, default_value = "0.1,0.2,0.3,0.4", allow_hyphen_values = true)]
         phi: String,
         /// Tracer radius over obstacle (or fibre) radius, a/b; 0 for a point tracer.
-        #[arg(long, default_value_t = 0.0)]
+        #[arg(long, default_value_t = 0.0, allow_hyphen_values = true)]
         size_ratio: f64,
         /// λ = a / r_pore values, comma-separated.
-        #[arg(long, default_value = "0.1,0.2,0.3,0.5")]
+        #[arg(long, default_value = "0.1,0.2,0.3,0.5", allow_hyphen_values = true)]
         lambda: String,
         /// Print one JSON object instead of tables.
         #[arg(long)]
@@ -84,7 +107,7 @@ enum Command {
         #[arg(long = "set", value_name = "KEY=VALUE")]
         sets: Vec<String>,
         /// Worker threads for the simulation (default: all cores). Results do not depend on it.
-        #[arg(long)]
+        #[arg(long, value_parser = parse_threads)]
         threads: Option<usize>,
         /// Overwrite existing outputs.
         #[arg(long)]
@@ -107,10 +130,10 @@ enum Command {
         #[arg(long)]
         species: Option<String>,
         /// Fit window T0,T1 in seconds (default: chosen where α(τ) is 1 within its error).
-        #[arg(long, value_name = "T0,T1")]
+        #[arg(long, value_name = "T0,T1", allow_hyphen_values = true)]
         window: Option<String>,
         /// D0 in m²/s, for files that do not carry it.
-        #[arg(long, value_name = "M2_PER_S")]
+        #[arg(long, value_name = "M2_PER_S", allow_hyphen_values = true)]
         d0: Option<f64>,
         /// Axes of the headline D_eff, e.g. xy or z (default: what the geometry defines: lateral in a slit, axial in a pore, all axes in an open box).
         #[arg(long, value_name = "AXES")]
@@ -212,6 +235,13 @@ impl TrackCsvArgs {
 fn main() -> ExitCode {
     restore_default_sigpipe();
     let cli = Cli::parse();
+    if let Some(bytes) = cli.max_memory {
+        thicket_engine::memory::set_limit(bytes);
+    }
+    if let Err(err) = check_out_option(&cli.command) {
+        eprintln!("thicket: error: {err:#}");
+        return ExitCode::from(2);
+    }
     let result = match cli.command {
         Command::Run {
             config,
@@ -326,6 +356,25 @@ fn main() -> ExitCode {
             ExitCode::from(2)
         }
     }
+}
+
+/// Refuses an `--out` that is empty or an existing folder, naming the option.
+fn check_out_option(command: &Command) -> anyhow::Result<()> {
+    let out = match command {
+        Command::Run { out: Some(o), .. } | Command::Tracks { out: Some(o), .. } => o,
+        _ => return Ok(()),
+    };
+    anyhow::ensure!(
+        !out.as_os_str().is_empty(),
+        "--out \"\": give a file path, e.g. --out run.h5"
+    );
+    anyhow::ensure!(
+        !out.is_dir(),
+        "--out {}: this is a folder; give a file path inside it, e.g. --out {}",
+        out.display(),
+        out.join("run.h5").display()
+    );
+    Ok(())
 }
 
 /// Output piped into a reader that stops early (`thicket analyze --json | head`)

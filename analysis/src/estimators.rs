@@ -299,9 +299,9 @@ pub fn analyze(
     if let Some(d0) = options.d0_m2_per_s {
         if !(d0.is_finite() && d0 > 0.0) {
             return Err(Error::invalid_option(
-                "d0_m2_per_s",
+                "--d0",
                 d0,
-                "a finite positive diffusivity in m²/s",
+                "a finite positive diffusivity in m²/s, e.g. --d0 1e-10",
             ));
         }
     }

@@ -85,6 +85,20 @@ pub struct RawSweep {
     pub title: Option<String>,
 }
 
+/// The largest number of (point, seed) runs one sweep may hold.
+pub const MAX_SWEEP_RUNS: usize = 100_000;
+
+/// Stable 64-bit FNV-1a hash of a resolved scenario's text, as hex: the
+/// identity of a sweep point, so an edited grid reruns what changed.
+pub fn scenario_hash(resolved_toml: &str) -> String {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for b in resolved_toml.bytes() {
+        h ^= u64::from(b);
+        h = h.wrapping_mul(0x0100_0000_01b3);
+    }
+    format!("{h:016x}")
+}
+
 fn default_seeds() -> Vec<i64> {
     vec![1]
 }
@@ -117,6 +131,10 @@ pub struct PointResult {
     pub point: usize,
     /// Seed.
     pub seed: i64,
+    /// [`scenario_hash`] of the resolved scenario the result came from
+    /// (absent in results of older versions, which are then rerun).
+    #[serde(default)]
+    pub scenario_hash: Option<String>,
     /// Grid values by key.
     pub values: BTreeMap<String, toml::Value>,
     /// D0 of the analysed species, m²/s.
@@ -375,6 +393,13 @@ impl Sweep {
         if raw.seeds.is_empty() {
             return Err(spec_err("key `seeds` = []: give at least one seed".into()));
         }
+        let mut seen = std::collections::BTreeSet::new();
+        if let Some(dup) = raw.seeds.iter().find(|s| !seen.insert(**s)) {
+            return Err(spec_err(format!(
+                "key `seeds` = {:?}: seed {dup} is listed twice; each seed must appear once (a repeated seed repeats the same run)",
+                raw.seeds
+            )));
+        }
         if raw.grid.is_empty() {
             return Err(spec_err(
                 "section [grid] is empty: give at least one key with a list of values".into(),
@@ -390,6 +415,18 @@ impl Sweep {
             })?;
             keys.push(key.clone());
             lists.push(list.clone());
+        }
+        let runs = lists.iter().map(|l| l.len() as f64).product::<f64>() * raw.seeds.len() as f64;
+        if runs > MAX_SWEEP_RUNS as f64 {
+            return Err(spec_err(format!(
+                "the grid ({}) × {} seed(s) makes {runs:e} runs, more than {MAX_SWEEP_RUNS}; shorten the [grid] lists or `seeds`",
+                keys.iter()
+                    .zip(&lists)
+                    .map(|(k, l)| format!("{k}: {} values", l.len()))
+                    .collect::<Vec<_>>()
+                    .join(", "),
+                raw.seeds.len()
+            )));
         }
         let mut points: Vec<Vec<toml::Value>> = vec![vec![]];
         for list in &lists {
@@ -429,6 +466,20 @@ impl Sweep {
             }
         }
         Ok(sweep)
+    }
+
+    /// [`scenario_hash`] of the resolved scenario of one point and seed.
+    ///
+    /// # Errors
+    /// [`SweepError::Point`] if the point's scenario does not validate.
+    pub fn point_hash(&self, point: usize, seed: i64) -> Result<String> {
+        Scenario::load(&self.scenario_file, &self.overrides(point, seed))
+            .map(|s| scenario_hash(&s.resolved_toml))
+            .map_err(|e| SweepError::Point {
+                point,
+                seed,
+                message: e.to_string(),
+            })
     }
 
     /// Overrides for one point and seed.
@@ -480,7 +531,12 @@ pub fn run_sweep(
         .par_iter()
         .map(|&(point, seed)| {
             let json_path = point_json(dir, point, seed);
-            let result = if json_path.exists() && !force {
+            let reusable = !force
+                && json_path.exists()
+                && sweep.point_hash(point, seed).is_ok_and(|h| {
+                    read_point(&json_path).is_ok_and(|r| r.scenario_hash == Some(h))
+                });
+            let result = if reusable {
                 read_point(&json_path).map(Some)
             } else {
                 run_point(sweep, dir, point, seed, stop)
@@ -551,6 +607,7 @@ fn run_point(
     let result = PointResult {
         point,
         seed,
+        scenario_hash: Some(scenario_hash(&scenario.resolved_toml)),
         values: sweep
             .keys
             .iter()
@@ -600,7 +657,13 @@ pub fn summarize(sweep: &Sweep, dir: &Path) -> Result<Summary> {
         for &seed in &sweep.seeds {
             let path = point_json(dir, point, seed);
             if path.exists() {
-                results.push(read_point(&path)?);
+                let r = read_point(&path)?;
+                // A result of another scenario (the grid was edited since) is not this point's.
+                if r.scenario_hash.is_some()
+                    && r.scenario_hash == sweep.point_hash(point, seed).ok()
+                {
+                    results.push(r);
+                }
             }
         }
         if results.is_empty() {

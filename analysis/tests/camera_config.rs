@@ -106,7 +106,7 @@ fn negative_noise() {
         &[],
         "camera.photons.background_photons_per_pixel",
         "-2",
-        "≥ 0",
+        "from 0 to 1e15",
     );
 }
 
@@ -184,7 +184,7 @@ fn other_bad_camera_keys() {
         &[],
         "camera.bleach_lifetime_s",
         "0",
-        "greater than 0",
+        "from 1e-12 to 1e12 s",
     );
     refused(
         "",

@@ -25,6 +25,26 @@ pub const MAX_STEPS: i64 = 1_000_000_000_000;
 pub const STEP_WARNING_FRACTION: f64 = 0.1;
 /// The largest number of fixed obstacles (spheres or fibres) a scenario may ask for.
 pub const MAX_OBSTACLES: i64 = 20_000_000;
+/// Temperatures the Stokes–Einstein and Langevin formulas are used for, in K
+/// (a range wide enough for any lab solvent, narrow enough that kT stays finite).
+pub const TEMPERATURE_RANGE_K: (f64, f64) = (1.0, 10_000.0);
+/// Viscosities accepted, in Pa·s (dilute gases ~1e-5, pitch ~1e8).
+pub const VISCOSITY_RANGE_PA_S: (f64, f64) = (1e-7, 1e10);
+/// Particle and drag radii accepted, in nm (down to the tiny radius that stands for a point tracer, up to a centimetre bead).
+pub const RADIUS_RANGE_NM: (f64, f64) = (1e-6, 1e7);
+/// Box edges accepted, in nm (up to a metre).
+pub const EDGE_RANGE_NM: (f64, f64) = (1e-3, 1e9);
+/// Time steps accepted, in s (a femtosecond to a week).
+pub const DT_RANGE_S: (f64, f64) = (1e-15, 1e6);
+/// Explicit diffusivities accepted, in m²/s (far below any gas, far above any liquid).
+pub const DIFFUSIVITY_RANGE_M2_PER_S: (f64, f64) = (1e-30, 1e-2);
+/// Photon counts accepted (per detection, background per pixel).
+pub const PHOTON_RANGE: (f64, f64) = (1e-3, 1e15);
+/// Camera rates (blinking) accepted, in 1/s.
+pub const RATE_RANGE_PER_S: (f64, f64) = (1e-12, 1e12);
+/// The rms step must span at least this many units in the last place of the
+/// largest box coordinate, so that rounding does not swallow the motion.
+pub const RESOLVE_ULPS: f64 = 16.0;
 
 /// Scenario as written in TOML, before validation.
 #[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
@@ -684,6 +704,31 @@ fn invalid(
     }
 }
 
+/// A number as a message shows it: plain when moderate, in e-notation when
+/// very large or small (1e300 rather than three hundred digits).
+fn show(value: f64) -> String {
+    let a = value.abs();
+    if a != 0.0 && a.is_finite() && !(1e-4..1e7).contains(&a) {
+        format!("{value:e}")
+    } else {
+        value.to_string()
+    }
+}
+
+/// Checks that a float is finite and lies within `[lo, hi]` (a physical range).
+fn within(file: &Path, key: &str, value: f64, (lo, hi): (f64, f64), unit: &str) -> Result<f64> {
+    if value.is_finite() && value >= lo && value <= hi {
+        Ok(value)
+    } else {
+        Err(invalid(
+            file,
+            key,
+            show(value),
+            format!("it must be a finite number from {lo:e} to {hi:e} {unit}"),
+        ))
+    }
+}
+
 /// Checks that a float is finite and positive.
 fn positive(file: &Path, key: &str, value: f64) -> Result<f64> {
     if value.is_finite() && value > 0.0 {
@@ -692,7 +737,7 @@ fn positive(file: &Path, key: &str, value: f64) -> Result<f64> {
         Err(invalid(
             file,
             key,
-            value,
+            show(value),
             "it must be a finite number greater than 0",
         ))
     }
@@ -758,9 +803,24 @@ impl RawScenario {
             Some(s) => return Err(invalid(file, "seed", s, "it must be a whole number ≥ 0")),
         };
 
-        let temperature_k = positive(file, "medium.temperature_K", self.medium.temperature_k)?;
+        let temperature_k = within(
+            file,
+            "medium.temperature_K",
+            self.medium.temperature_k,
+            TEMPERATURE_RANGE_K,
+            "K",
+        )?;
         let (viscosity_pa_s, viscosity_is_water) = match self.medium.viscosity_pa_s {
-            Some(eta) => (positive(file, "medium.viscosity_Pa_s", eta)?, false),
+            Some(eta) => (
+                within(
+                    file,
+                    "medium.viscosity_Pa_s",
+                    eta,
+                    VISCOSITY_RANGE_PA_S,
+                    "Pa·s",
+                )?,
+                false,
+            ),
             None => match medium::water_viscosity_pa_s(temperature_k) {
                 Some(eta) => (eta, true),
                 None => {
@@ -789,7 +849,7 @@ impl RawScenario {
         }
         let mut edges_nm = [0.0; 3];
         for (k, e) in self.sim_box.edges_nm.iter().enumerate() {
-            edges_nm[k] = positive(file, &format!("box.edges_nm[{k}]"), *e)?;
+            edges_nm[k] = within(file, &format!("box.edges_nm[{k}]"), *e, EDGE_RANGE_NM, "nm")?;
         }
         let mut periodic = match &self.sim_box.periodic {
             None => [true; 3],
@@ -844,9 +904,9 @@ impl RawScenario {
                     "species names must be unique",
                 ));
             }
-            let radius_nm = positive(file, &key("radius_nm"), s.radius_nm)?;
+            let radius_nm = within(file, &key("radius_nm"), s.radius_nm, RADIUS_RANGE_NM, "nm")?;
             let drag_radius_nm = match s.drag_radius_nm {
-                Some(r) => positive(file, &key("drag_radius_nm"), r)?,
+                Some(r) => within(file, &key("drag_radius_nm"), r, RADIUS_RANGE_NM, "nm")?,
                 None => radius_nm,
             };
             if !(1..=MAX_COUNT).contains(&s.count) {
@@ -858,7 +918,16 @@ impl RawScenario {
                 ));
             }
             let (d0_m2_per_s, d0_explicit) = match s.diffusivity_m2_per_s {
-                Some(d) => (positive(file, &key("diffusivity_m2_per_s"), d)?, true),
+                Some(d) => (
+                    within(
+                        file,
+                        &key("diffusivity_m2_per_s"),
+                        d,
+                        DIFFUSIVITY_RANGE_M2_PER_S,
+                        "m²/s",
+                    )?,
+                    true,
+                ),
                 None => (
                     medium::stokes_einstein_m2_per_s(
                         temperature_k,
@@ -905,7 +974,13 @@ impl RawScenario {
             });
         }
 
-        let dt_s = positive(file, "integrator.dt_s", self.integrator.dt_s)?;
+        let dt_s = within(
+            file,
+            "integrator.dt_s",
+            self.integrator.dt_s,
+            DT_RANGE_S,
+            "s",
+        )?;
         if !(1..=MAX_STEPS).contains(&self.integrator.steps) {
             return Err(invalid(
                 file,
@@ -994,10 +1069,31 @@ impl RawScenario {
                 ))
             }
         };
+        check_steps_resolvable(
+            file,
+            &species,
+            &edges_nm,
+            dt_s,
+            record_every_steps,
+            precision,
+        )?;
         let checkpoint_interval_s = match self.output.checkpoint_interval_s {
             None => 5.0,
             Some(c) => positive(file, "output.checkpoint_interval_s", c)?,
         };
+        if let Some(f) = &self.output.file {
+            if f.trim().is_empty()
+                || f.ends_with('/')
+                || file.parent().unwrap_or(Path::new(".")).join(f).is_dir()
+            {
+                return Err(invalid(
+                    file,
+                    "output.file",
+                    format!("{f:?}"),
+                    "a path to a trajectory file such as \"run.h5\" (relative to the scenario), not empty and not a folder",
+                ));
+            }
+        }
         let output = OutputSpec {
             // Relative to the scenario file, as every other path in it.
             file: self.output.file.as_ref().map(PathBuf::from).map(|path| {
@@ -1083,7 +1179,7 @@ impl RawScenario {
             )
         })?;
 
-        Ok(Scenario {
+        let scenario = Scenario {
             source: file.to_path_buf(),
             seed,
             temperature_k,
@@ -1100,8 +1196,75 @@ impl RawScenario {
             sweep,
             geometry,
             resolved_toml,
-        })
+        };
+        // Refused here, before any caller allocates particles, obstacles or grids.
+        if let Some((limit, source)) = crate::memory::current_limit() {
+            crate::memory::check(&scenario, limit, source)?;
+        }
+        Ok(scenario)
     }
+}
+
+/// Refuses a time step whose rms step crosses the box in one go, or whose
+/// motion is lost to rounding at the box size (in f64 while integrating, in
+/// the output precision per recorded frame).
+fn check_steps_resolvable(
+    file: &Path,
+    species: &[Species],
+    edges_nm: &[f64; 3],
+    dt_s: f64,
+    record_every_steps: u64,
+    precision: Precision,
+) -> Result<()> {
+    let min_edge = edges_nm.iter().cloned().fold(f64::INFINITY, f64::min);
+    let max_edge = edges_nm.iter().cloned().fold(0.0, f64::max);
+    let output_eps = match precision {
+        Precision::F32 => f64::from(f32::EPSILON),
+        Precision::F64 => f64::EPSILON,
+    };
+    for s in species {
+        let step = s.step_rms_nm(dt_s);
+        if !(step.is_finite() && step < min_edge) {
+            return Err(invalid(
+                file,
+                "integrator.dt_s",
+                dt_s,
+                format!(
+                    "species '{}' would move {step:e} nm (rms per axis) in one step, more than the smallest box edge {min_edge} nm; \
+                     lower integrator.dt_s or enlarge box.edges_nm",
+                    s.name
+                ),
+            ));
+        }
+        let f64_floor = RESOLVE_ULPS * f64::EPSILON * max_edge;
+        if step < f64_floor {
+            return Err(invalid(
+                file,
+                "integrator.dt_s",
+                dt_s,
+                format!(
+                    "species '{}' would move {step:e} nm (rms per axis) per step, below what f64 resolves at a box edge of {max_edge} nm \
+                     (at least {f64_floor:e} nm); raise integrator.dt_s or shrink box.edges_nm",
+                    s.name
+                ),
+            ));
+        }
+        let frame_step = s.step_rms_nm(dt_s * record_every_steps as f64);
+        let out_floor = RESOLVE_ULPS * output_eps * max_edge;
+        if frame_step < out_floor {
+            return Err(invalid(
+                file,
+                "output.precision",
+                format!("\"{}\"", if precision == Precision::F32 { "f32" } else { "f64" }),
+                format!(
+                    "species '{}' moves {frame_step:e} nm (rms per axis) between recorded frames, below what this precision resolves at a box edge of {max_edge} nm \
+                     (at least {out_floor:e} nm); use output.precision = \"f64\", raise output.record_every_steps or integrator.dt_s, or shrink box.edges_nm",
+                    s.name
+                ),
+            ));
+        }
+    }
+    Ok(())
 }
 
 /// Exactly one of a volume fraction and a count, validated.
@@ -1709,6 +1872,20 @@ impl RawCamera {
                 ))
             }
         };
+        let largest_edge = edges_nm.iter().cloned().fold(0.0, f64::max);
+        // A noise or pixel wider than the whole box carries no position at all.
+        let at_most_box = |key: &str, v: f64| -> Result<f64> {
+            if v <= largest_edge {
+                Ok(v)
+            } else {
+                Err(invalid(
+                    file,
+                    key,
+                    v,
+                    format!("it must not exceed the largest box edge, {largest_edge} nm"),
+                ))
+            }
+        };
         let noise = match (&self.photons, self.localisation_sigma_nm) {
             (Some(_), Some(s)) => {
                 return Err(invalid(
@@ -1718,15 +1895,15 @@ impl RawCamera {
                     "give either a fixed camera.localisation_sigma_nm or a [camera.photons] section, not both",
                 ))
             }
-            (None, s) => LocalisationNoise::Fixed { sigma_nm: nonnegative("camera.localisation_sigma_nm", s.unwrap_or(0.0))? },
+            (None, s) => LocalisationNoise::Fixed { sigma_nm: at_most_box("camera.localisation_sigma_nm", nonnegative("camera.localisation_sigma_nm", s.unwrap_or(0.0))?)? },
             (Some(p), None) => LocalisationNoise::PhotonLimited {
-                photons_per_detection: positive(file, "camera.photons.photons_per_detection", p.photons_per_detection)?,
-                psf_sigma_nm: positive(file, "camera.photons.psf_sigma_nm", p.psf_sigma_nm)?,
-                pixel_size_nm: positive(file, "camera.photons.pixel_size_nm", p.pixel_size_nm)?,
+                photons_per_detection: within(file, "camera.photons.photons_per_detection", p.photons_per_detection, PHOTON_RANGE, "photons")?,
+                psf_sigma_nm: at_most_box("camera.photons.psf_sigma_nm", positive(file, "camera.photons.psf_sigma_nm", p.psf_sigma_nm)?)?,
+                pixel_size_nm: at_most_box("camera.photons.pixel_size_nm", positive(file, "camera.photons.pixel_size_nm", p.pixel_size_nm)?)?,
                 background_photons_per_pixel: match p.background_photons_per_pixel {
                     None => 0.0,
-                    Some(b) if b.is_finite() && b >= 0.0 => b,
-                    Some(b) => return Err(invalid(file, "camera.photons.background_photons_per_pixel", b, "it must be a finite number ≥ 0")),
+                    Some(b) if b.is_finite() && (0.0..=PHOTON_RANGE.1).contains(&b) => b,
+                    Some(b) => return Err(invalid(file, "camera.photons.background_photons_per_pixel", b, format!("it must be a finite number from 0 to {:e}", PHOTON_RANGE.1))),
                 },
             },
         };
@@ -1752,7 +1929,10 @@ impl RawCamera {
                     "it is used only with camera.projection = \"3d\"",
                 ))
             }
-            Some(s) => Some(nonnegative("camera.localisation_sigma_z_nm", s)?),
+            Some(s) => Some(at_most_box(
+                "camera.localisation_sigma_z_nm",
+                nonnegative("camera.localisation_sigma_z_nm", s)?,
+            )?),
         };
 
         let mut field_of_view_nm = [[0.0, edges_nm[0]], [0.0, edges_nm[1]]];
@@ -1810,13 +1990,31 @@ impl RawCamera {
 
         let bleach_lifetime_s = match self.bleach_lifetime_s {
             None => None,
-            Some(t) => Some(positive(file, "camera.bleach_lifetime_s", t)?),
+            Some(t) => Some(within(
+                file,
+                "camera.bleach_lifetime_s",
+                t,
+                (1.0 / RATE_RANGE_PER_S.1, 1.0 / RATE_RANGE_PER_S.0),
+                "s",
+            )?),
         };
         let blink = match (self.blink_on_to_off_per_s, self.blink_off_to_on_per_s) {
             (None, None) => None,
             (Some(off), Some(on)) => Some(Blinking {
-                on_to_off_per_s: positive(file, "camera.blink_on_to_off_per_s", off)?,
-                off_to_on_per_s: positive(file, "camera.blink_off_to_on_per_s", on)?,
+                on_to_off_per_s: within(
+                    file,
+                    "camera.blink_on_to_off_per_s",
+                    off,
+                    RATE_RANGE_PER_S,
+                    "1/s",
+                )?,
+                off_to_on_per_s: within(
+                    file,
+                    "camera.blink_off_to_on_per_s",
+                    on,
+                    RATE_RANGE_PER_S,
+                    "1/s",
+                )?,
             }),
             (Some(v), None) => return Err(invalid(
                 file,

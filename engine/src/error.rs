@@ -95,6 +95,18 @@ pub enum EngineError {
         /// Library error.
         source: hdf5::Error,
     },
+    /// The run would need more memory than the limit allows.
+    #[error("{}: the run would need about {needed} of memory, more than the limit of {limit}; {detail}", file.display())]
+    Memory {
+        /// Scenario path.
+        file: PathBuf,
+        /// Estimated need, formatted.
+        needed: String,
+        /// The limit and where it comes from.
+        limit: String,
+        /// The largest part and the keys that set it.
+        detail: String,
+    },
     /// Other I/O error (checkpoints, CSV inputs).
     #[error("{}: {source}", file.display())]
     Io {

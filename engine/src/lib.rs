@@ -12,6 +12,7 @@ pub mod fibres;
 pub mod geometry;
 pub mod lock;
 pub mod medium;
+pub mod memory;
 pub mod mobility;
 pub mod neighbors;
 pub mod obstacles;

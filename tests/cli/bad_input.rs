@@ -76,14 +76,24 @@ fn negative_and_zero_radius() {
         &BASE.replace("radius_nm = 2.0", "radius_nm = -2.0"),
         "check",
         &[],
-        &["bad.toml", "species[0].radius_nm", "-2", "greater than 0"],
+        &[
+            "bad.toml",
+            "species[0].radius_nm",
+            "-2",
+            "from 1e-6 to 1e7 nm",
+        ],
     );
     fails(
         d.path(),
         &BASE.replace("radius_nm = 2.0", "radius_nm = 0.0"),
         "check",
         &[],
-        &["bad.toml", "species[0].radius_nm", "= 0", "greater than 0"],
+        &[
+            "bad.toml",
+            "species[0].radius_nm",
+            "= 0",
+            "from 1e-6 to 1e7 nm",
+        ],
     );
 }
 
@@ -95,14 +105,14 @@ fn time_step_not_positive() {
         &BASE.replace("dt_s = 1e-9", "dt_s = 0.0"),
         "check",
         &[],
-        &["bad.toml", "integrator.dt_s", "greater than 0"],
+        &["bad.toml", "integrator.dt_s", "from 1e-15 to 1e6 s"],
     );
     fails(
         d.path(),
         &BASE.replace("dt_s = 1e-9", "dt_s = -1e-9"),
         "check",
         &[],
-        &["integrator.dt_s", "-0.000000001"],
+        &["integrator.dt_s", "-1e-9"],
     );
 }
 
@@ -148,7 +158,7 @@ fn temperature_not_positive() {
         &BASE.replace("temperature_K = 300.0", "temperature_K = -5.0"),
         "check",
         &[],
-        &["medium.temperature_K", "-5", "greater than 0"],
+        &["medium.temperature_K", "-5", "from 1e0 to 1e4 K"],
     );
     // Water's viscosity is only known for liquid water: a frozen "water" is refused.
     fails(
@@ -341,7 +351,7 @@ fn zero_threads() {
         BASE,
         "run",
         &["--threads", "0", "--out", "x.h5"],
-        &["--threads 0", "at least 1"],
+        &["'0' for '--threads", "from 1 to 1024"],
     );
 }
 
@@ -358,4 +368,290 @@ fn duplicate_species_names() {
         &[],
         &["species[1].name", "unique"],
     );
+}
+
+// Regression tests of the input bounds (issue 11): each non-physical value
+// used to pass `check` and let `run` write inf/NaN or abort on allocation.
+
+/// Obstacles from a volume fraction in a large box, a count from tiny radii:
+/// refused with the estimated need and the keys to change, before any allocation.
+#[test]
+fn poisson_obstacles_in_a_huge_box_are_refused_by_memory() {
+    let d = tempdir();
+    let text = BASE.replace("[100.0, 100.0, 100.0]", "[1e6, 1e6, 1e6]")
+        + "[output]\nprecision = \"f64\"\n[obstacles]\nplacement = \"poisson\"\nradius_nm = 5.0\nvolume_fraction = 0.3\n";
+    for verb in ["check", "run"] {
+        fails(
+            d.path(),
+            &text,
+            verb,
+            &[],
+            &[
+                "bad.toml",
+                "would need about",
+                "obstacles.volume_fraction",
+                "MemAvailable",
+            ],
+        );
+    }
+    assert!(
+        !d.path().join("bad.h5").exists(),
+        "a refused run writes nothing"
+    );
+}
+
+#[test]
+fn fibres_in_a_big_box_are_refused_by_max_memory() {
+    let d = tempdir();
+    let text = BASE.replace("[100.0, 100.0, 100.0]", "[20000.0, 20000.0, 20000.0]")
+        + "[fibres]\nradius_nm = 1.0\nlength_nm = 50.0\nvolume_fraction = 0.1\n";
+    fails(
+        d.path(),
+        &text,
+        "check",
+        &["--max-memory", "64M"],
+        &[
+            "bad.toml",
+            "64.0 MiB (--max-memory)",
+            "fibres.volume_fraction",
+        ],
+    );
+}
+
+#[test]
+fn a_large_particle_count_is_refused_by_max_memory() {
+    let d = tempdir();
+    let text = BASE.replace("count = 20", "count = 50000000");
+    fails(
+        d.path(),
+        &text,
+        "run",
+        &["--max-memory", "1G"],
+        &["bad.toml", "species[0].count", "--max-memory"],
+    );
+}
+
+#[test]
+fn max_memory_needs_a_size() {
+    let d = tempdir();
+    fails(
+        d.path(),
+        BASE,
+        "check",
+        &["--max-memory", "lots"],
+        &["--max-memory", "512M"],
+    );
+}
+
+#[test]
+fn non_physical_values_are_refused_with_their_range() {
+    let d = tempdir();
+    for (set, key, range) in [
+        ("integrator.dt_s=1e300", "integrator.dt_s", "1e-15 to 1e6 s"),
+        (
+            "medium.viscosity_Pa_s=1e-300",
+            "medium.viscosity_Pa_s",
+            "Pa·s",
+        ),
+        (
+            "species.0.drag_radius_nm=1e-300",
+            "species[0].drag_radius_nm",
+            "nm",
+        ),
+        ("medium.temperature_K=1e300", "medium.temperature_K", "K"),
+        ("box.edges_nm=[1e30,1e30,1e30]", "box.edges_nm[0]", "nm"),
+    ] {
+        let err = fails(
+            d.path(),
+            BASE,
+            "run",
+            &["--set", set],
+            &["bad.toml", key, range],
+        );
+        // Numbers far from 1 are shown in e-notation, not hundreds of digits.
+        assert!(err.len() < 400, "message too long: {err}");
+    }
+    assert!(!d.path().join("bad.h5").exists());
+}
+
+/// A box so large that the per-frame step vanishes in f32 (D_eff/D0 = 0 without a word before).
+#[test]
+fn steps_unresolvable_at_the_box_size_are_refused() {
+    let d = tempdir();
+    fails(
+        d.path(),
+        BASE,
+        "check",
+        &["--set", "box.edges_nm=[1e8,1e8,1e8]"],
+        &["bad.toml", "output.precision", "\"f64\""],
+    );
+    fails(
+        d.path(),
+        BASE,
+        "check",
+        &[
+            "--set",
+            "integrator.dt_s=1e-15",
+            "--set",
+            "medium.viscosity_Pa_s=1e10",
+            "--set",
+            "box.edges_nm=[1e9,1e9,1e9]",
+        ],
+        &["bad.toml", "integrator.dt_s", "f64 resolves"],
+    );
+}
+
+#[test]
+fn camera_noise_and_rates_are_bounded() {
+    let d = tempdir();
+    let text = BASE.to_string()
+        + "[camera]\nframe_interval_s = 1e-8\nlocalisation_sigma_nm = 5.0\nblink_on_to_off_per_s = 10.0\nblink_off_to_on_per_s = 10.0\n";
+    fails(
+        d.path(),
+        &text,
+        "check",
+        &["--set", "camera.localisation_sigma_nm=1e300"],
+        &[
+            "bad.toml",
+            "camera.localisation_sigma_nm",
+            "largest box edge",
+        ],
+    );
+    fails(
+        d.path(),
+        &text,
+        "check",
+        &["--set", "camera.blink_on_to_off_per_s=1e300"],
+        &["bad.toml", "camera.blink_on_to_off_per_s", "1/s"],
+    );
+}
+
+#[test]
+fn empty_or_folder_outputs_are_named() {
+    let d = tempdir();
+    fails(
+        d.path(),
+        &(BASE.to_string() + "[output]\nfile = \"\"\n"),
+        "run",
+        &[],
+        &["bad.toml", "output.file", "not empty"],
+    );
+    std::fs::create_dir(d.path().join("folder")).unwrap();
+    fails(
+        d.path(),
+        BASE,
+        "run",
+        &["--out", "folder"],
+        &["--out", "folder", "is a folder"],
+    );
+}
+
+#[test]
+fn threads_out_of_range_are_refused_at_once() {
+    let d = tempdir();
+    let started = std::time::Instant::now();
+    let cfg = d.path().join("ok.toml");
+    std::fs::write(&cfg, BASE).unwrap();
+    let out = thicket(d.path(), &["run", "ok.toml", "--threads", "100000"]);
+    let err = stderr(&out);
+    assert!(!out.status.success());
+    assert!(
+        err.contains("--threads") && err.contains("1 to 1024"),
+        "{err}"
+    );
+    assert!(!d.path().join("ok.h5").exists());
+    // Refused by the parser, not after trying to start the threads (which took half a minute).
+    assert!(started.elapsed().as_secs() < 20);
+}
+
+#[test]
+fn negative_numbers_after_options_reach_the_validation() {
+    let d = tempdir();
+    let out = thicket(d.path(), &["models", "--size-ratio", "-1"]);
+    let err = stderr(&out);
+    assert!(!out.status.success());
+    assert!(
+        err.contains("--size-ratio -1") && !err.contains("unexpected argument"),
+        "{err}"
+    );
+    let out = thicket(d.path(), &["analyze", "missing.h5", "--d0", "-1"]);
+    let err = stderr(&out);
+    assert!(
+        err.contains("--d0") && !err.contains("d0_m2_per_s"),
+        "{err}"
+    );
+}
+
+/// `seeds = [1, 1]` raced on one result file or counted one sample twice.
+#[test]
+fn duplicate_sweep_seeds_are_refused() {
+    let d = tempdir();
+    std::fs::write(d.path().join("s.toml"), BASE).unwrap();
+    std::fs::write(
+        d.path().join("sw.toml"),
+        "scenario = \"s.toml\"\nseeds = [1, 1]\n[grid]\n\"species.0.radius_nm\" = [2.0]\n",
+    )
+    .unwrap();
+    let out = thicket(d.path(), &["sweep", "sw.toml", "--out", "o"]);
+    let err = stderr(&out);
+    assert_eq!(out.status.code(), Some(2), "{err}");
+    assert!(
+        err.contains("sw.toml") && err.contains("seeds") && err.contains("twice"),
+        "{err}"
+    );
+}
+
+#[test]
+fn an_oversized_sweep_grid_is_refused() {
+    let d = tempdir();
+    std::fs::write(d.path().join("s.toml"), BASE).unwrap();
+    std::fs::write(
+        d.path().join("sw.toml"),
+        format!(
+            "scenario = \"s.toml\"\n[grid]\n\"species.0.count\" = [{l}]\n\"integrator.steps\" = [{l}]\n",
+            l = (1..=400).map(|i| i.to_string()).collect::<Vec<_>>().join(", ")
+        ),
+    )
+    .unwrap();
+    let out = thicket(d.path(), &["sweep", "sw.toml", "--out", "o"]);
+    let err = stderr(&out);
+    assert_eq!(out.status.code(), Some(2), "{err}");
+    assert!(
+        err.contains("sw.toml") && err.contains("160000") || err.contains("1.6e5"),
+        "{err}"
+    );
+}
+
+/// An edited grid used to reuse the old points' results (keyed by index and seed only).
+#[test]
+fn an_edited_sweep_grid_reruns_the_changed_points() {
+    let d = tempdir();
+    std::fs::write(d.path().join("s.toml"), BASE).unwrap();
+    let sweep = |radius: &str| {
+        std::fs::write(
+            d.path().join("sw.toml"),
+            format!("scenario = \"s.toml\"\n[grid]\n\"species.0.radius_nm\" = [{radius}]\n[set]\n\"integrator.steps\" = 2000\n\"output.record_every_steps\" = 20\n"),
+        )
+        .unwrap();
+        ok(&thicket(d.path(), &["sweep", "sw.toml", "--out", "o"]));
+        let text = std::fs::read_to_string(d.path().join("o/points/p0000_s1.json")).unwrap();
+        serde_json::from_str::<serde_json::Value>(&text).unwrap()
+    };
+    let json = d.path().join("o/points/p0000_s1.json");
+    let first = sweep("2.0");
+    let written = std::fs::metadata(&json).unwrap().modified().unwrap();
+    std::thread::sleep(std::time::Duration::from_millis(20));
+    let again = sweep("2.0");
+    assert_eq!(first, again);
+    let rewritten = std::fs::metadata(&json).unwrap().modified().unwrap();
+    assert_eq!(
+        written, rewritten,
+        "an unchanged point is reused, not rerun"
+    );
+    let edited = sweep("4.0");
+    assert_ne!(first["scenario_hash"], edited["scenario_hash"]);
+    assert_eq!(edited["values"]["species.0.radius_nm"], 4.0);
+    // Stokes–Einstein: D0 ∝ 1/a, so doubling the radius halves D0 (exact).
+    let ratio = first["d0_m2_per_s"].as_f64().unwrap() / edited["d0_m2_per_s"].as_f64().unwrap();
+    assert!((ratio - 2.0).abs() < 1e-9, "D0 ratio {ratio}");
 }

@@ -26,7 +26,7 @@ pub fn scenario(
     let text = format!(
         "seed = {seed}\n[medium]\ntemperature_K = 298.15\n[box]\nedges_nm = [{edge_nm}, {edge_nm}, {edge_nm}]\n\
          [[species]]\nname = \"bead\"\nradius_nm = 5.0\ncount = {count}\ndiffusivity_m2_per_s = {d_m2_per_s:e}\n\
-         [integrator]\ndt_s = {record_s:e}\nsteps = {steps}\n[output]\nrecord_every_steps = 1\n\
+         [integrator]\ndt_s = {record_s:e}\nsteps = {steps}\n[output]\nrecord_every_steps = 1\nprecision = \"f64\"\n\
          [camera]\nframe_interval_s = {frame_s:e}\n{camera}\n"
     );
     Scenario::from_text(&text, Path::new("camera-test.toml"), &[])
