@@ -312,7 +312,9 @@ pub fn analyze(
         .as_ref()
         .and_then(crate::sweep::default_species)
         .filter(|name| trajectory.species_names().iter().any(|n| n == name));
-    let reader = trajectory.species(species.or(default_species.as_deref()))?;
+    let mut reader = trajectory.species(species.or(default_species.as_deref()))?;
+    // No particle of an MSD analysis jumps: a wrong image count would inflate D_eff without bound.
+    reader.check_image_jumps(true);
     let meta = reader.meta().clone();
     let mut warnings = Vec::new();
     if species.is_none() && trajectory.species_names().len() > 1 {

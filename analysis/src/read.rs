@@ -148,6 +148,7 @@ pub struct SpeciesReader<'a> {
     value: hdf5::Dataset,
     image: Option<hdf5::Dataset>,
     meta: SpeciesMeta,
+    check_jumps: bool,
 }
 
 /// Unwrapped positions of a contiguous range of particles over all usable frames.
@@ -477,6 +478,7 @@ impl<'a> SpeciesReader<'a> {
                 precision,
                 d0_m2_per_s,
             },
+            check_jumps: false,
         })
     }
 
@@ -532,6 +534,9 @@ impl<'a> SpeciesReader<'a> {
         let frames = 0..self.meta.frames;
         let positions_nm = self.read_hyperslab(frames, particles.clone())?;
         let suspicious_jumps = self.count_suspicious_jumps(&positions_nm);
+        if self.check_jumps {
+            self.refuse_implausible_jumps(&positions_nm, particles.start)?;
+        }
         Ok(ParticleBlock {
             first_particle: particles.start,
             positions_nm,
@@ -617,6 +622,54 @@ impl<'a> SpeciesReader<'a> {
                 .for_each(|(_, _, a), x, &n| *x += f64::from(n) * edges[a]);
         }
         Ok(out)
+    }
+
+    /// Refuse unwrapped frame-to-frame jumps that no Brownian motion makes
+    /// (by default off): more than half a periodic edge and more than ten
+    /// rms displacements at D0 in one frame, the mark of a wrong image count.
+    /// For analyses whose particles never jump (not membranes, whose baths
+    /// re-insert particles).
+    pub fn check_image_jumps(&mut self, on: bool) {
+        self.check_jumps = on;
+    }
+
+    fn refuse_implausible_jumps(&self, positions: &Array3<f64>, first: usize) -> Result<()> {
+        let b = &self.meta.simulation_box;
+        let (Some(edges), true) = (b.edges_nm.as_ref(), self.meta.has_images) else {
+            return Ok(());
+        };
+        // D0 in nm²/s gives the rms step per frame; without it, half an edge alone.
+        let sigma = self.meta.d0_m2_per_s.map_or(0.0, |d0| {
+            (2.0 * d0 * 1e18 * self.meta.frame_interval_s).sqrt()
+        });
+        for (a, edge) in edges.iter().enumerate().take(self.meta.dims) {
+            if !b.periodic.get(a).copied().unwrap_or(false) {
+                continue;
+            }
+            let limit = (0.5 * edge).max(10.0 * sigma);
+            for p in 0..positions.shape()[1] {
+                let series = positions.slice(s![.., p, a]);
+                if let Some((f, w)) = series
+                    .windows(2)
+                    .into_iter()
+                    .enumerate()
+                    .find(|(_, w)| (w[1] - w[0]).abs() > limit)
+                {
+                    return Err(Error::bad_value(
+                        &self.trajectory.path,
+                        format!("/particles/{}/image/value", self.meta.name),
+                        format!(
+                            "a jump of {:.4e} nm along axis {a} between frames {f} and {} of particle {} (more than half the periodic edge {edge} nm and ten rms steps at D0): a wrong image count",
+                            w[1] - w[0],
+                            f + 1,
+                            first + p
+                        ),
+                        "image counts that change by the particle's crossings of the box only",
+                    ));
+                }
+            }
+        }
+        Ok(())
     }
 
     fn count_suspicious_jumps(&self, positions: &Array3<f64>) -> usize {

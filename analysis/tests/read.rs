@@ -306,3 +306,42 @@ fn non_uniform_frame_times_are_refused() {
     );
     assert!(e.to_string().contains("at frame 1"), "{e}");
 }
+
+/// Regression (#11): one corrupted image count made D_eff/D0 = 4e15 with
+/// exit 0. An MSD analysis now refuses the file, naming the frame and the
+/// particle; the intact file analyses normally (D_eff near the walk's D, an
+/// outside value: the Gaussian walks' own diffusivity).
+#[test]
+fn a_corrupted_image_count_is_refused_with_its_frame_and_particle() {
+    use thicket_analysis::error::ErrorKind;
+    use thicket_analysis::estimators::{analyze, AnalyzeOptions};
+    let dir = tempfile::tempdir().unwrap();
+    let edges = [200.0, 200.0, 200.0];
+    let unwrapped = gaussian_walks(11, 120, 40, 1e6, 1e-3);
+    let (wrapped, mut images) = wrap(&unwrapped, edges);
+    let intact = dir.path().join("intact.h5");
+    let mut spec = Spec::new("tracer", &wrapped, 1e-3);
+    spec.images = Some(&images);
+    spec.edges_nm = edges;
+    spec.parameters = Some((1e-12, 120));
+    write_h5md(&intact, &spec);
+    let ok = analyze(&intact, None, &AnalyzeOptions::default()).unwrap();
+    assert!((ok.report.d_eff_m2_per_s / 1e-12 - 1.0).abs() < 0.3);
+
+    images[[57, 13, 1]] += 1000;
+    let broken = dir.path().join("broken.h5");
+    let mut spec = Spec::new("tracer", &wrapped, 1e-3);
+    spec.images = Some(&images);
+    spec.edges_nm = edges;
+    spec.parameters = Some((1e-12, 120));
+    write_h5md(&broken, &spec);
+    let err = analyze(&broken, None, &AnalyzeOptions::default()).unwrap_err();
+    assert!(matches!(err.kind(), ErrorKind::BadValue { .. }), "{err}");
+    let text = err.to_string();
+    assert!(
+        text.contains("image/value")
+            && text.contains("frames 56 and 57")
+            && text.contains("particle 13"),
+        "{text}"
+    );
+}
