@@ -6,6 +6,7 @@ mod confined;
 mod crash;
 mod file_format;
 mod free;
+mod golden;
 mod outputs;
 #[path = "../outside/mod.rs"]
 mod outside;
