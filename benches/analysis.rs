@@ -10,7 +10,7 @@ use std::path::Path;
 use std::sync::atomic::AtomicBool;
 use std::time::Instant;
 use thicket_analysis::estimators::{analyze_file, AnalyzeOptions};
-use thicket_engine::run::{run, RunOptions};
+use thicket_engine::run::driver::{run, RunOptions};
 use thicket_engine::Scenario;
 
 fn peak_rss_mib() -> f64 {

@@ -10,7 +10,7 @@
 
 use std::path::Path;
 use std::time::Instant;
-use thicket_engine::confined::Confinement;
+use thicket_engine::step::confined::Confinement;
 use thicket_engine::Scenario;
 
 const COUNT: usize = 200_000;

@@ -17,7 +17,7 @@ use std::sync::atomic::AtomicBool;
 use std::time::Instant;
 use thicket_analysis::camera::image_trajectory;
 use thicket_analysis::tracks::{covariance_estimate, msd_fit_estimate, TrackSet};
-use thicket_engine::run::{run, RunOptions};
+use thicket_engine::run::driver::{run, RunOptions};
 use thicket_engine::Scenario;
 
 const PARTICLES: usize = 500;

@@ -6,8 +6,9 @@ use std::path::Path;
 use std::process::ExitCode;
 use thicket_analysis::model_table::{scenario_model_table, ModelTable};
 use thicket_analysis::run_length::{long_time_regime, RegimeEstimate};
-use thicket_engine::geometry::Shape;
-use thicket_engine::obstacles::{Estimate, FixedObstacles, ObstacleSpec, Region};
+use thicket_engine::obstacles::spheres::{Estimate, FixedObstacles, Region};
+use thicket_engine::scenario::media::ObstacleSpec;
+use thicket_engine::space::shape::Shape;
 use thicket_engine::Scenario;
 
 /// Monte Carlo points behind each printed fraction: a standard error of at most 5e-4.
@@ -125,7 +126,7 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             "models": tables[0].values(),
             "model_table": tables[0].entries,
             "warnings": warnings,
-            "memory_estimate_bytes": thicket_engine::memory::estimate(&scenario).total_bytes(),
+            "memory_estimate_bytes": thicket_engine::scenario::memory::estimate(&scenario).total_bytes(),
         });
         if let Some(c) = &confinement {
             // The first species' values at the top level; every species under "confinement".
@@ -150,8 +151,8 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
     println!("scenario {}: valid", config.display());
     println!(
         "  memory     about {} (estimated peak of the large buffers)",
-        thicket_engine::memory::format_bytes(
-            thicket_engine::memory::estimate(&scenario).total_bytes()
+        thicket_engine::scenario::memory::format_bytes(
+            thicket_engine::scenario::memory::estimate(&scenario).total_bytes()
         )
     );
     println!(

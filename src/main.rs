@@ -43,7 +43,7 @@ fn parse_threads(text: &str) -> Result<usize, String> {
 
 /// Parses `--max-memory`.
 fn parse_max_memory(text: &str) -> Result<f64, String> {
-    thicket_engine::memory::parse_size(text).ok_or_else(|| {
+    thicket_engine::scenario::memory::parse_size(text).ok_or_else(|| {
         "a size greater than 0: bytes, or a number with K, M, G or T (powers of 1024), e.g. 512M or 8G".into()
     })
 }
@@ -236,7 +236,7 @@ fn main() -> ExitCode {
     restore_default_sigpipe();
     let cli = Cli::parse();
     if let Some(bytes) = cli.max_memory {
-        thicket_engine::memory::set_limit(bytes);
+        thicket_engine::scenario::memory::set_limit(bytes);
     }
     if let Err(err) = check_out_option(&cli.command) {
         eprintln!("thicket: error: {err:#}");

@@ -6,7 +6,7 @@ use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::Arc;
-use thicket_engine::run::{RunOptions, RunOutcome};
+use thicket_engine::run::driver::{RunOptions, RunOutcome};
 use thicket_engine::Scenario;
 
 /// Exit code after an interrupt (128 + SIGINT, the shell convention).
@@ -61,7 +61,7 @@ pub fn run(
         force,
         resume,
     };
-    let outcome = thicket_engine::run::run(&scenario, &options, &stop, &mut |step, _| {
+    let outcome = thicket_engine::run::driver::run(&scenario, &options, &stop, &mut |step, _| {
         bar.set_position(step)
     })?;
     bar.finish_and_clear();
@@ -97,7 +97,7 @@ fn print_membrane_results(scenario: &Scenario, out: &Path) {
     let is_membrane = scenario
         .geometry
         .as_ref()
-        .is_some_and(|g| matches!(g.shape, thicket_engine::geometry::Shape::Membrane(_)));
+        .is_some_and(|g| matches!(g.shape, thicket_engine::space::shape::Shape::Membrane(_)));
     if !is_membrane {
         return;
     }

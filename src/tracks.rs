@@ -21,7 +21,7 @@ use thicket_analysis::track_outputs::{d_histogram_paths, write_d_histogram, writ
 use thicket_analysis::tracks::{
     analyze_track_table, read_truth, truth_path_for, TrackAnalysisOptions, TracksError,
 };
-use thicket_engine::run::{RunOptions, RunOutcome};
+use thicket_engine::run::driver::{RunOptions, RunOutcome};
 use thicket_engine::Scenario;
 
 /// Exit code after an interrupt (128 + SIGINT, the shell convention).
@@ -93,9 +93,10 @@ pub fn tracks(args: &TracksArgs) -> Result<ExitCode> {
             force: args.force,
             resume: false,
         };
-        let outcome = thicket_engine::run::run(&scenario, &options, &stop, &mut |step, _| {
-            bar.set_position(step)
-        })?;
+        let outcome =
+            thicket_engine::run::driver::run(&scenario, &options, &stop, &mut |step, _| {
+                bar.set_position(step)
+            })?;
         bar.finish_and_clear();
         if let RunOutcome::Interrupted { step, .. } = outcome {
             eprintln!(

@@ -43,11 +43,12 @@ use crate::tracks::{CameraSummary, SpeciesTruth, Track, TrackSet, TracksError};
 use hdf5::File;
 use ndarray::{s, Array3, ArrayView3, Ix3};
 use std::path::Path;
-use thicket_engine::config::{
-    Blinking, CameraSpec, LocalisationNoise, Projection, RawScenario, Scenario, SimBox,
+use thicket_engine::base::rng::{standard_normal, ParticleRng};
+use thicket_engine::scenario::config::{
+    Blinking, CameraSpec, LocalisationNoise, Projection, RawScenario, Scenario,
 };
-use thicket_engine::geometry::Shape;
-use thicket_engine::rng::{standard_normal, ParticleRng};
+use thicket_engine::space::shape::Shape;
+use thicket_engine::space::sim_box::SimBox;
 
 /// Memory for one window of recorded positions (plus image counts) read from
 /// the trajectory: large enough that HDF5 calls are few, small enough for a laptop.
@@ -882,7 +883,7 @@ fn read_fixed_text(a: &hdf5::Attribute) -> hdf5::Result<String> {
 /// # Errors
 /// [`TracksError::NoCamera`] when the scenario has no `[camera]`.
 pub fn image_free_in_memory(scenario: &Scenario, window: usize) -> Result<TrackSet, TracksError> {
-    use thicket_engine::integrate::{advance_free, kinetics, State};
+    use thicket_engine::step::kernels::{advance_free, kinetics, State};
     let camera = Camera::new(scenario)?;
     let mut kin = kinetics(scenario);
     // Only the first species is simulated and imaged.

@@ -5,10 +5,10 @@
 
 use std::ops::Range;
 use std::path::Path;
-use thicket_engine::confined::{Confinement, Counts};
-use thicket_engine::integrate::{Dynamics, State};
-use thicket_engine::neighbors::{min_image_distance2, CellList, VerletList};
-use thicket_engine::obstacles::FixedObstacles;
+use thicket_engine::obstacles::spheres::FixedObstacles;
+use thicket_engine::space::neighbors::{min_image_distance2, CellList, VerletList};
+use thicket_engine::step::confined::{Confinement, Counts};
+use thicket_engine::step::kernels::{Dynamics, State};
 use thicket_engine::{EngineError, Scenario};
 
 /// A validated scenario from TOML text (`name` labels its errors).

@@ -8,8 +8,8 @@
 //! free axes gives a number that describes nothing.
 
 use serde::Serialize;
-use thicket_engine::fibres::Orientation;
-use thicket_engine::geometry::Shape;
+use thicket_engine::scenario::media::Orientation;
+use thicket_engine::space::shape::Shape;
 use thicket_engine::Scenario;
 
 const AXIS_NAMES: [&str; 3] = ["x", "y", "z"];

@@ -41,8 +41,8 @@ use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use serde::Serialize;
-use thicket_engine::confined::{Confinement, MEMBRANE_COLUMNS};
-use thicket_engine::geometry::{per_nm3_to_mol_per_m3, Membrane, PoreLayout, Shape};
+use thicket_engine::space::shape::{per_nm3_to_mol_per_m3, Membrane, PoreLayout, Shape};
+use thicket_engine::step::confined::{Confinement, MEMBRANE_COLUMNS};
 use thicket_engine::Scenario;
 
 use crate::blocks::{

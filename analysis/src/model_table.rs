@@ -11,10 +11,11 @@ use crate::models;
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 use std::f64::consts::PI;
-use thicket_engine::confined::mean_parallel_mobility;
-use thicket_engine::fibres::Orientation;
-use thicket_engine::geometry::{PoreLayout, Shape};
-use thicket_engine::obstacles::{FixedObstacles, Generator, ObstacleSpec, Region};
+use thicket_engine::obstacles::spheres::{FixedObstacles, Region};
+use thicket_engine::scenario::media::Orientation;
+use thicket_engine::scenario::media::{Generator, ObstacleSpec};
+use thicket_engine::space::shape::{PoreLayout, Shape};
+use thicket_engine::step::confined::mean_parallel_mobility;
 use thicket_engine::Scenario;
 
 /// A tracer counts as point-like when its radius is at most this fraction
@@ -531,8 +532,8 @@ pub fn scenario_model_table(scenario: &Scenario, species: &str) -> ModelTable {
 /// Permeability predictions of a membrane for one species, m/s.
 fn membrane_models(
     scenario: &Scenario,
-    tracer: &thicket_engine::config::Species,
-    m: &thicket_engine::geometry::Membrane,
+    tracer: &thicket_engine::scenario::config::Species,
+    m: &thicket_engine::space::shape::Membrane,
     lambda: f64,
 ) -> Vec<ModelValue> {
     let _ = scenario;

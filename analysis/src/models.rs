@@ -12,7 +12,7 @@
 //! The wall mobility corrections live in the engine (it needs them at run
 //! time) and are re-exported here, so each formula is written once.
 
-pub use thicket_engine::mobility::{
+pub use thicket_engine::space::mobility::{
     bevan_prieve_perpendicular, brenner_perpendicular, brenner_perpendicular_value_and_gradient,
     d_bevan_prieve_perpendicular_dz, d_brenner_perpendicular_dz, d_faxen_parallel_dz,
     d_lubrication_perpendicular_dz, d_perpendicular_dz, faxen_parallel, lubrication_perpendicular,

@@ -30,9 +30,10 @@ use std::f64::consts::PI;
 use std::path::{Path, PathBuf};
 
 use serde::Serialize;
-use thicket_engine::geometry::Shape;
-use thicket_engine::obstacles::{FixedObstacles, Generator, ObstacleSpec};
-use thicket_engine::rng::ParticleRng;
+use thicket_engine::base::rng::ParticleRng;
+use thicket_engine::obstacles::spheres::FixedObstacles;
+use thicket_engine::scenario::media::{Generator, ObstacleSpec};
+use thicket_engine::space::shape::Shape;
 use thicket_engine::Scenario;
 
 use crate::blocks::{Interval, MIN_BLOCKS};

@@ -30,7 +30,7 @@ pub fn scenario_of(
 /// One line naming a scenario and its point, for plot titles and tables:
 /// the scenario file, the species, and what crowds or confines it.
 pub fn scenario_line(scenario: &Scenario, species: &str) -> String {
-    use thicket_engine::obstacles::{ObstacleSpec, RadiusDistribution, Target};
+    use thicket_engine::scenario::media::{ObstacleSpec, RadiusDistribution, Target};
     let file = scenario
         .source
         .file_name()

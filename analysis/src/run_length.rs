@@ -21,7 +21,7 @@
 use crate::model_table::scenario_model_table;
 use serde::Serialize;
 use std::f64::consts::PI;
-use thicket_engine::obstacles::{FixedObstacles, Region};
+use thicket_engine::obstacles::spheres::{FixedObstacles, Region};
 use thicket_engine::Scenario;
 
 /// τ_c = this × (D0/D_eff − 1) × ℓ²/D0 (rule of thumb, see the module docs).

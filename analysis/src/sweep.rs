@@ -13,7 +13,7 @@ use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::sync::atomic::AtomicBool;
-use thicket_engine::run::{run, RunOptions, RunOutcome};
+use thicket_engine::run::driver::{run, RunOptions, RunOutcome};
 use thicket_engine::Scenario;
 
 /// Errors of a sweep, naming the file and key concerned.

@@ -483,12 +483,12 @@ impl TrackSet {
             .create_group("parameters")
             .and_then(|p| p.create_group("thicket"))
             .map_err(e("/parameters/thicket"))?;
-        thicket_engine::trajectory::write_str_attr(&params, "scenario", &self.scenario_toml)
+        thicket_engine::io::trajectory::write_str_attr(&params, "scenario", &self.scenario_toml)
             .map_err(e("/parameters/thicket"))?;
-        thicket_engine::trajectory::write_str_attr(
+        thicket_engine::io::trajectory::write_str_attr(
             &params,
             "version",
-            thicket_engine::trajectory::VERSION,
+            thicket_engine::io::trajectory::VERSION,
         )
         .map_err(e("/parameters/thicket"))?;
         file.flush().map_err(e("/"))
@@ -512,7 +512,7 @@ fn write_column<T: hdf5::H5Type>(
     if !data.is_empty() {
         ds.write(data)?;
     }
-    thicket_engine::trajectory::write_str_attr(&ds, "unit", unit)
+    thicket_engine::io::trajectory::write_str_attr(&ds, "unit", unit)
 }
 
 /// Appends the decimal digits of `n`.

@@ -358,15 +358,15 @@ fn tracks_do_not_depend_on_the_read_window() {
 #[test]
 fn file_path_matches_memory_and_any_thread_split() {
     let mut sc = scenario(35, 600, 1e-12, 3000.0, 0.001, 0.01, 20, "exposure_s = 0.005\nlocalisation_sigma_nm = 10.0\nfocal_depth_nm = 600.0\nbleach_lifetime_s = 0.5");
-    sc.output.precision = thicket_engine::config::Precision::F64;
+    sc.output.precision = thicket_engine::scenario::config::Precision::F64;
     let dir = tempfile::tempdir().expect("temp folder");
     let traj = dir.path().join("t.h5");
-    let opts = thicket_engine::run::RunOptions {
+    let opts = thicket_engine::run::driver::RunOptions {
         out: traj.clone(),
         force: false,
         resume: false,
     };
-    thicket_engine::run::run(
+    thicket_engine::run::driver::run(
         &sc,
         &opts,
         &std::sync::atomic::AtomicBool::new(false),
@@ -425,12 +425,12 @@ labelled_species = ["solute"]
         .expect("valid membrane scene");
     let dir = tempfile::tempdir().expect("temp folder");
     let traj = dir.path().join("m.h5");
-    let opts = thicket_engine::run::RunOptions {
+    let opts = thicket_engine::run::driver::RunOptions {
         out: traj.clone(),
         force: false,
         resume: false,
     };
-    thicket_engine::run::run(
+    thicket_engine::run::driver::run(
         &sc,
         &opts,
         &std::sync::atomic::AtomicBool::new(false),

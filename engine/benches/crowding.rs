@@ -8,11 +8,11 @@
 
 use std::path::Path;
 use std::time::Instant;
-use thicket_engine::crowders::Sweep;
-use thicket_engine::integrate::{advance_obstructed, Dynamics, State};
-use thicket_engine::neighbors::{Blocker, BruteForce, ObstacleGrid, ObstacleKdTree};
-use thicket_engine::obstacles::FixedObstacles;
-use thicket_engine::rng::ParticleRng;
+use thicket_engine::base::rng::ParticleRng;
+use thicket_engine::obstacles::spheres::FixedObstacles;
+use thicket_engine::scenario::media::Sweep;
+use thicket_engine::space::neighbors::{Blocker, BruteForce, ObstacleGrid, ObstacleKdTree};
+use thicket_engine::step::kernels::{advance_obstructed, Dynamics, State};
 use thicket_engine::Scenario;
 
 /// Rounds of interleaved timings.

@@ -2,24 +2,25 @@
 //! crowded and confined media.
 //!
 //! The engine moves particles and writes trajectories; it never reads
-//! trajectories back (that is `thicket-analysis`).
+//! trajectories back (that is `thicket-analysis`). Its layers, each a
+//! folder, import only the ones listed before them (ARCHITECTURE.md;
+//! checked by `engine/tests/architecture.rs`):
+//!
+//! 1. [`base`]: errors, random streams, water's properties.
+//! 2. [`space`]: the box, confining shapes, wall mobilities, bodies and neighbour searches.
+//! 3. [`scenario`]: the TOML scenario, raw and validated, and its memory estimate.
+//! 4. [`obstacles`]: placing fixed spheres and fibres.
+//! 5. [`step`]: the step pipeline (displacement, boundary, contact) and the crowd.
+//! 6. [`io`]: the trajectory file, the checkpoint and the output lock.
+//! 7. [`run`]: the run driver and its observers.
 
-pub mod config;
-pub mod confined;
-pub mod crowders;
-pub mod error;
-pub mod fibres;
-pub mod geometry;
-pub mod lock;
-pub mod medium;
-pub mod memory;
-pub mod mobility;
-pub mod neighbors;
+pub mod base;
+pub mod io;
 pub mod obstacles;
-pub mod rng;
-
-pub use config::Scenario;
-pub use error::{EngineError, Result};
-pub mod integrate;
 pub mod run;
-pub mod trajectory;
+pub mod scenario;
+pub mod space;
+pub mod step;
+
+pub use base::error::{EngineError, Result};
+pub use scenario::Scenario;

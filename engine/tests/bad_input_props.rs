@@ -5,7 +5,7 @@
 
 use proptest::prelude::*;
 use std::path::Path;
-use thicket_engine::memory;
+use thicket_engine::scenario::memory;
 use thicket_engine::Scenario;
 
 const BASE: &str = r#"seed = 3

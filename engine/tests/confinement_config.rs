@@ -2,8 +2,8 @@
 //! an error naming the file, the key, the value and what is allowed.
 
 use std::path::{Path, PathBuf};
-use thicket_engine::geometry::Shape;
-use thicket_engine::mobility::PerpendicularModel;
+use thicket_engine::space::mobility::PerpendicularModel;
+use thicket_engine::space::shape::Shape;
 use thicket_engine::Scenario;
 
 fn text(edges: &str, radius: f64, geometry: &str) -> String {

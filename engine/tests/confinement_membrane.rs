@@ -11,9 +11,9 @@ use thicket_analysis::models::{
     dechadilok_deen_hindrance, membrane_steric_permeability_over_d0, partition_cylinder,
     renkin_hindrance,
 };
-use thicket_engine::confined::MembraneMeter;
-use thicket_engine::geometry::Shape;
-use thicket_engine::rng::ParticleRng;
+use thicket_engine::base::rng::ParticleRng;
+use thicket_engine::space::shape::Shape;
+use thicket_engine::step::confined::MembraneMeter;
 use thicket_engine::Scenario;
 
 /// Partition run: pore radius 10 nm through a slab 20 nm thick, reservoirs
@@ -143,7 +143,7 @@ fn permeability(
     count: usize,
     relax: u64,
     measure: u64,
-) -> (thicket_engine::confined::MembraneSummary, Scenario) {
+) -> (thicket_engine::step::confined::MembraneSummary, Scenario) {
     let every = 1000;
     let geometry = format!(
         "kind = \"membrane\"\nthickness_nm = {PERM_L}\npore_radius_nm = {PERM_R}\nwall_hydrodynamics = {hydro}\n\

@@ -17,11 +17,11 @@ mod confinement_support;
 
 use confinement_support::*;
 use std::path::Path;
-use thicket_engine::confined::Confinement;
-use thicket_engine::integrate::{Dynamics, State};
-use thicket_engine::neighbors::ObstacleGrid;
-use thicket_engine::obstacles::FixedObstacles;
-use thicket_engine::rng::ParticleRng;
+use thicket_engine::base::rng::ParticleRng;
+use thicket_engine::obstacles::spheres::FixedObstacles;
+use thicket_engine::space::neighbors::ObstacleGrid;
+use thicket_engine::step::confined::Confinement;
+use thicket_engine::step::kernels::{Dynamics, State};
 use thicket_engine::Scenario;
 
 /// Pearson chi-square critical value, 19 degrees of freedom, upper tail
@@ -316,7 +316,7 @@ fn crowders_stay_inside_a_cylindrical_pore_without_overlaps() {
     );
     // The pore holds φ = 600·(4/3)π a³ / (π r² L) ≈ 0.31 of its volume: contacts are frequent.
     let crowd = dynamics.crowd().expect("a crowd");
-    let overlap = thicket_engine::crowders::find_overlap_brute_force(
+    let overlap = thicket_engine::step::crowd::find_overlap_brute_force(
         &state.positions,
         crowd.radii_nm(),
         crowd.crowders(),
@@ -425,7 +425,7 @@ fn obstacles_fill_the_pore_at_the_fraction_asked_for() {
     let s = parse(text);
     let o = FixedObstacles::build(&s).unwrap();
     let Some(g) = &s.geometry else { unreachable!() };
-    let thicket_engine::geometry::Shape::Membrane(m) = &g.shape else {
+    let thicket_engine::space::shape::Shape::Membrane(m) = &g.shape else {
         panic!("a membrane")
     };
     assert!(!o.spheres.is_empty());

@@ -6,7 +6,7 @@
 mod confinement_support;
 
 use confinement_support::*;
-use thicket_engine::confined::mean_parallel_mobility;
+use thicket_engine::step::confined::mean_parallel_mobility;
 use thicket_engine::Scenario;
 
 /// Pore radius and tracer radius (λ = 0.2), nm.

@@ -7,7 +7,7 @@ mod confinement_support;
 
 use confinement_support::*;
 use std::sync::atomic::{AtomicBool, Ordering};
-use thicket_engine::run::{run, RunOptions, RunOutcome};
+use thicket_engine::run::driver::{run, RunOptions, RunOutcome};
 use thicket_engine::Scenario;
 
 /// One scenario of each kind, with and without wall hydrodynamics.

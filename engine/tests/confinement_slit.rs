@@ -7,8 +7,8 @@ mod confinement_support;
 
 use confinement_support::*;
 use std::sync::OnceLock;
-use thicket_engine::confined::mean_parallel_mobility;
-use thicket_engine::integrate::State;
+use thicket_engine::step::confined::mean_parallel_mobility;
+use thicket_engine::step::kernels::State;
 
 /// Radius a (nm) and gap W = 6a: centres span z/a from 1 to 5.
 const A: f64 = 1.0;

@@ -12,9 +12,9 @@ use crowding_support::*;
 use rayon::prelude::*;
 use std::f64::consts::PI;
 use thicket_analysis::models;
-use thicket_engine::integrate::Dynamics;
-use thicket_engine::neighbors::blocked_brute_force;
-use thicket_engine::obstacles::FixedObstacles;
+use thicket_engine::obstacles::spheres::FixedObstacles;
+use thicket_engine::space::neighbors::blocked_brute_force;
+use thicket_engine::step::kernels::Dynamics;
 
 /// Point-like tracers (a = 1e-4 nm) among random non-overlapping spheres of
 /// radius 1 nm at volume fraction `phi`, rms step `sigma` nm per axis.
@@ -317,8 +317,8 @@ fn tracers_never_end_inside_obstacles() {
 // make the same decisions, and the result does not depend on the threads.
 #[test]
 fn obstructed_kernel_is_path_and_thread_independent() {
-    use thicket_engine::integrate::advance_obstructed;
-    use thicket_engine::neighbors::{BruteForce, ObstacleGrid, ObstacleKdTree};
+    use thicket_engine::space::neighbors::{BruteForce, ObstacleGrid, ObstacleKdTree};
+    use thicket_engine::step::kernels::advance_obstructed;
     let text = spheres_text(0.3, 0.05, 400, 12.0, 3);
     let sc = scenario(&text);
     let (o, dynamics, start) = prepare(&sc);
@@ -376,7 +376,7 @@ fn placements_reach_their_targets() {
         // Whole obstacles: within half the largest obstacle's volume of the target.
         let largest = o.spheres.radii_nm.iter().cloned().fold(0.0, f64::max);
         assert!((phi - target).abs() <= 0.5 * 4.0 / 3.0 * PI * largest.powi(3) / v + 1e-12, "{obstacles}: φ = {phi}");
-        assert_eq!(thicket_engine::obstacles::find_sphere_overlap(&o.spheres, &sc.sim_box), None, "{obstacles}");
+        assert_eq!(thicket_engine::obstacles::spheres::find_sphere_overlap(&o.spheres, &sc.sim_box), None, "{obstacles}");
         assert!(o.spheres.radii_nm.iter().all(|&r| r <= 4.0), "truncation ignored");
         // Non-overlapping: the achieved fraction is exact.
         assert_eq!(o.volume_fraction(&sc.sim_box, 10, 1).standard_error, 0.0);
@@ -395,7 +395,7 @@ fn placements_reach_their_targets() {
         "Poisson covered {covered:?}"
     );
     assert!(
-        thicket_engine::obstacles::find_sphere_overlap(&o.spheres, &sc.sim_box).is_some(),
+        thicket_engine::obstacles::spheres::find_sphere_overlap(&o.spheres, &sc.sim_box).is_some(),
         "Poisson spheres should overlap somewhere"
     );
     // A commensurate simple cubic lattice: 10 cells of 4 nm, radius 1.5 nm.

@@ -9,11 +9,13 @@ mod crowding_support;
 
 use crowding_support::*;
 use thicket_analysis::models;
-use thicket_engine::crowders::{find_overlap_brute_force, Sweep};
-use thicket_engine::integrate::{reflect, Kinetics, State};
-use thicket_engine::neighbors::{blocked_brute_force, min_image_distance2};
-use thicket_engine::obstacles::FixedObstacles;
-use thicket_engine::rng::standard_normal;
+use thicket_engine::base::rng::standard_normal;
+use thicket_engine::obstacles::spheres::FixedObstacles;
+use thicket_engine::scenario::media::Sweep;
+use thicket_engine::space::neighbors::{blocked_brute_force, min_image_distance2};
+use thicket_engine::space::sim_box::reflect;
+use thicket_engine::step::crowd::find_overlap_brute_force;
+use thicket_engine::step::kernels::{Kinetics, State};
 use thicket_engine::Scenario;
 
 /// Equal crowders of diameter 1 nm at volume fraction `phi`, rms step `sigma` nm.

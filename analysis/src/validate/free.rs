@@ -5,8 +5,8 @@ use super::{check, Area, Group, Mode, Outcome};
 use crate::estimators::{analyze, AnalyzeOptions};
 use std::path::Path;
 use std::sync::atomic::AtomicBool;
-use thicket_engine::medium::{stokes_einstein_m2_per_s, water_viscosity_pa_s};
-use thicket_engine::run::{run, RunOptions};
+use thicket_engine::base::medium::{stokes_einstein_m2_per_s, water_viscosity_pa_s};
+use thicket_engine::run::driver::{run, RunOptions};
 use thicket_engine::Scenario;
 
 /// Two-sided 95 % normal quantile: converts the report's interval to an SE.

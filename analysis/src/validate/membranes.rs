@@ -6,9 +6,9 @@ use super::{check, Area, Group, Mode, Outcome};
 use crate::direct::{advance_confined, mean_se};
 use crate::models::{membrane_steric_permeability_over_d0, partition_cylinder};
 use std::path::Path;
-use thicket_engine::confined::MembraneMeter;
-use thicket_engine::geometry::Shape;
-use thicket_engine::rng::ParticleRng;
+use thicket_engine::base::rng::ParticleRng;
+use thicket_engine::space::shape::Shape;
+use thicket_engine::step::confined::MembraneMeter;
 
 pub(super) fn groups() -> Vec<Group> {
     vec![

@@ -8,7 +8,7 @@ use crate::direct::{mean_se, prepare, record, scenario_from_text};
 use crate::models;
 use rayon::prelude::*;
 use std::path::Path;
-use thicket_engine::obstacles::FixedObstacles;
+use thicket_engine::obstacles::spheres::FixedObstacles;
 use thicket_engine::Scenario;
 
 pub(super) fn groups() -> Vec<Group> {

@@ -7,7 +7,7 @@ use super::{check, Area, Comparison, Group, Mode, Outcome};
 use crate::direct::{advance_confined, chi_square_flat, mean_se, CHI2_19_P001};
 use crate::models;
 use std::path::Path;
-use thicket_engine::confined::mean_parallel_mobility;
+use thicket_engine::step::confined::mean_parallel_mobility;
 
 pub(super) fn groups() -> Vec<Group> {
     vec![

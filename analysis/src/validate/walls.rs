@@ -7,9 +7,11 @@ use super::{check, Area, Comparison, Group, Mode, Outcome};
 use crate::direct::{advance_confined, chi_square_flat, mean_se, scenario_from_text, CHI2_19_P001};
 use crate::models;
 use std::path::Path;
-use thicket_engine::confined::{mean_parallel_mobility, Confinement};
-use thicket_engine::integrate::State;
-use thicket_engine::mobility::{bevan_prieve_perpendicular, brenner_perpendicular, faxen_parallel};
+use thicket_engine::space::mobility::{
+    bevan_prieve_perpendicular, brenner_perpendicular, faxen_parallel,
+};
+use thicket_engine::step::confined::{mean_parallel_mobility, Confinement};
+use thicket_engine::step::kernels::State;
 use thicket_engine::Scenario;
 
 /// Free diffusivity of the confined tracers: 1e8 nm²/s (1e-10 m²/s).

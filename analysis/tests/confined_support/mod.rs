@@ -4,7 +4,7 @@
 
 use std::path::{Path, PathBuf};
 use std::sync::atomic::AtomicBool;
-use thicket_engine::run::{run, RunOptions, RunOutcome};
+use thicket_engine::run::driver::{run, RunOptions, RunOutcome};
 use thicket_engine::Scenario;
 
 /// Free diffusivity of the test tracers, m²/s (1e8 nm²/s).

@@ -6,7 +6,7 @@
 #![allow(unused_imports)]
 
 use std::path::Path;
-use thicket_engine::confined::Confinement;
+use thicket_engine::step::confined::Confinement;
 use thicket_engine::Scenario;
 
 /// Free diffusivity of every test tracer, m²/s: 1e8 nm²/s keeps the numbers simple.

@@ -10,8 +10,8 @@ use std::ops::Range;
 use std::path::{Path, PathBuf};
 use thicket_analysis::direct;
 pub use thicket_analysis::direct::{fitted_slope, mean_se, record, ta_msd};
-use thicket_engine::integrate::{Dynamics, State};
-use thicket_engine::obstacles::FixedObstacles;
+use thicket_engine::obstacles::spheres::FixedObstacles;
+use thicket_engine::step::kernels::{Dynamics, State};
 use thicket_engine::Scenario;
 
 /// A validated scenario from TOML text.
@@ -91,7 +91,7 @@ pub fn whole_and_resumed(
     frames: u64,
 ) -> (PathBuf, PathBuf) {
     use std::sync::atomic::{AtomicBool, Ordering};
-    use thicket_engine::run::{run, RunOptions, RunOutcome};
+    use thicket_engine::run::driver::{run, RunOptions, RunOutcome};
     let options = |out: &PathBuf, resume: bool| RunOptions {
         out: out.clone(),
         force: false,

@@ -14,11 +14,11 @@
 //! `length_nm`; each fibre is the set of points within `radius_nm` of the
 //! segment `centre ± (length_nm / 2) · direction`, with periodic images.
 
-use crate::config::{Precision, Scenario};
-use crate::error::{EngineError, Result};
-use crate::integrate::State;
-use crate::obstacles::FixedObstacles;
-use crate::rng::ParticleRng;
+use crate::base::error::{EngineError, Result};
+use crate::base::rng::ParticleRng;
+use crate::obstacles::spheres::FixedObstacles;
+use crate::scenario::config::{Precision, Scenario};
+use crate::step::kernels::State;
 use hdf5::types::FixedAscii;
 use hdf5::{Dataset, File, Group, Location};
 use ndarray::{s, Array1, Array3};

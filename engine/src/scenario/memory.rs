@@ -6,9 +6,9 @@
 //! validated scenario alone, and [`check`] refuses a scenario past a limit
 //! with the figure and the keys that set it.
 
-use crate::config::Scenario;
-use crate::error::{EngineError, Result};
-use crate::obstacles::{ObstacleSpec, Target};
+use crate::base::error::{EngineError, Result};
+use crate::scenario::config::Scenario;
+use crate::scenario::media::{ObstacleSpec, Target};
 use std::f64::consts::PI;
 use std::sync::OnceLock;
 

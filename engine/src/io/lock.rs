@@ -4,7 +4,7 @@
 //! message). The kernel releases it when the owner exits, however it ends, so
 //! a killed run never leaves a stale lock behind.
 
-use crate::error::{EngineError, Result};
+use crate::base::error::{EngineError, Result};
 use std::io::Write;
 use std::os::unix::fs::MetadataExt;
 use std::os::unix::io::AsRawFd;

@@ -22,12 +22,15 @@
 //! an overlap, and since every draw comes from a per-particle stream the
 //! result does not depend on the number of threads.
 
-use crate::config::{Scenario, SimBox, LATTICE_START_FRACTION};
-use crate::error::{EngineError, Result};
-use crate::geometry::Shape;
-use crate::integrate::{reflect, Kinetics, State};
-use crate::neighbors::{CellList, DynamicGrid, MinImage, ObstacleGrid, VerletList};
-use crate::rng::{standard_normal, ParticleRng};
+use crate::base::error::{EngineError, Result};
+use crate::base::rng::{standard_normal, ParticleRng};
+use crate::scenario::config::{Scenario, LATTICE_START_FRACTION};
+use crate::scenario::media::Sweep;
+use crate::space::neighbors::{CellList, DynamicGrid, MinImage, ObstacleGrid, VerletList};
+use crate::space::shape::Shape;
+use crate::space::sim_box::reflect;
+use crate::space::sim_box::SimBox;
+use crate::step::kernels::{Kinetics, State};
 use rayon::prelude::*;
 
 /// Particles per rayon task.
@@ -52,15 +55,6 @@ pub const CROWD_LATTICE_STREAM: u64 = u64::MAX - 3;
 const REJECTED: u8 = 0;
 const ACCEPTED: u8 = 1;
 const DEPENDENT: u8 = 2;
-
-/// Update order of particles with hard contacts.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Sweep {
-    /// Propose in parallel, resolve conflicts in index order (the default).
-    Parallel,
-    /// One particle after the other in index order: the reference.
-    Sequential,
-}
 
 /// Move counters since the crowd was built.
 #[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
@@ -731,7 +725,7 @@ pub fn find_overlap_brute_force(
                 continue;
             }
             let cut = (radius_nm[i] + radius_nm[j]) * (1.0 - tolerance);
-            if crate::neighbors::min_image_distance2(sim_box, &positions[i], &positions[j])
+            if crate::space::neighbors::min_image_distance2(sim_box, &positions[i], &positions[j])
                 < cut * cut
             {
                 return Some((i, j));
@@ -811,7 +805,8 @@ pub fn place_crowd(
             ),
         }
         };
-        let mut sites = crate::obstacles::fcc_sites_for(sim_box, r_c, wanted).map_err(fail)?;
+        let mut sites =
+            crate::obstacles::spheres::fcc_sites_for(sim_box, r_c, wanted).map_err(fail)?;
         sites.retain(|p| {
             region.as_ref().is_none_or(|shape| shape.allows(p, r_c))
                 && members.iter().all(|&(s, _)| {
@@ -860,7 +855,7 @@ pub fn place_crowd(
                             placed[s],
                             sp.count,
                             crowd_volume / volume,
-                            crate::obstacles::RSA_JAMMING_FRACTION
+                            crate::obstacles::spheres::RSA_JAMMING_FRACTION
                         ),
                     });
                 }

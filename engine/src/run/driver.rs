@@ -1,13 +1,13 @@
 //! The run driver: creates or resumes a trajectory, advances the state in
 //! blocks, records frames, checkpoints on a timer and stops cleanly when asked.
 
-use crate::config::Scenario;
-use crate::confined::{sidecar_path, ConfinedRun};
-use crate::error::{EngineError, Result};
-use crate::integrate::{Dynamics, State};
-use crate::lock::OutputLock;
-use crate::obstacles::FixedObstacles;
-use crate::trajectory::{checkpoint_path, recorded_steps, Checkpoint, TrajectoryWriter};
+use crate::base::error::{EngineError, Result};
+use crate::io::lock::OutputLock;
+use crate::io::trajectory::{checkpoint_path, recorded_steps, Checkpoint, TrajectoryWriter};
+use crate::obstacles::spheres::FixedObstacles;
+use crate::scenario::config::Scenario;
+use crate::step::confined::{sidecar_path, ConfinedRun};
+use crate::step::kernels::{Dynamics, State};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::Instant;

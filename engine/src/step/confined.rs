@@ -53,17 +53,19 @@
 //! runs are not meaningful. The flux counter counts net crossings of the
 //! slab's mid-plane.
 
-use crate::config::Scenario;
-use crate::error::{EngineError, Result};
-use crate::geometry::{per_nm3_to_mol_per_m3, Geometry, Membrane, Shape};
-use crate::integrate::{draw_starts, reflect, State};
-use crate::mobility::{
+use crate::base::error::{EngineError, Result};
+use crate::base::rng::{standard_normal, ParticleRng};
+use crate::io::trajectory::{write_attributes, AttrValue, ObservableSeries, TrajectoryWriter};
+use crate::obstacles::spheres::FixedObstacles;
+use crate::scenario::config::Scenario;
+use crate::scenario::geometry::Geometry;
+use crate::space::mobility::{
     superpose_two_walls, superpose_two_walls_with_gradient, PerpendicularModel, WallMobilityTable,
 };
-use crate::neighbors::ObstacleGrid;
-use crate::obstacles::FixedObstacles;
-use crate::rng::{standard_normal, ParticleRng};
-use crate::trajectory::{write_attributes, AttrValue, ObservableSeries, TrajectoryWriter};
+use crate::space::neighbors::ObstacleGrid;
+use crate::space::shape::{per_nm3_to_mol_per_m3, Membrane, Shape};
+use crate::space::sim_box::reflect;
+use crate::step::kernels::{draw_starts, State};
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::ops::{Add, Range};
@@ -1371,7 +1373,7 @@ fn geometry_attributes(scenario: &Scenario, geometry: &Geometry) -> Vec<(&'stati
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::mobility::{brenner_perpendicular_value_and_gradient, faxen_parallel};
+    use crate::space::mobility::{brenner_perpendicular_value_and_gradient, faxen_parallel};
     use std::path::Path;
 
     fn scenario(geometry: &str, edges: [f64; 3]) -> Scenario {

@@ -9,85 +9,14 @@
 //! uniformly random directions and by default the length of the smallest box
 //! edge. Positions are drawn from [`FIBRE_STREAM`] with the run seed.
 
-use crate::config::SimBox;
-use crate::obstacles::Target;
-use crate::rng::ParticleRng;
+use crate::base::rng::ParticleRng;
+use crate::scenario::media::{FibreSpec, Orientation};
+use crate::space::bodies::Fibres;
+use crate::space::sim_box::SimBox;
 use std::f64::consts::PI;
 
 /// Stream index (with the run seed) of fibre placement.
 pub const FIBRE_STREAM: u64 = u64::MAX - 1;
-
-/// Orientation of the fibres.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Orientation {
-    /// Uniformly random directions on the sphere.
-    Isotropic,
-    /// All along one box axis (0 = x, 1 = y, 2 = z).
-    Aligned {
-        /// Box axis index.
-        axis: usize,
-    },
-}
-
-/// Validated `[fibres]` section.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct FibreSpec {
-    /// Fibre radius, nm.
-    pub radius_nm: f64,
-    /// Length of the axis segment, nm.
-    pub length_nm: f64,
-    /// Orientation.
-    pub orientation: Orientation,
-    /// Nominal volume fraction N·π r_f²·ℓ / V, or a count.
-    pub target: Target,
-}
-
-impl FibreSpec {
-    /// Number of fibres the target implies in a box.
-    pub fn count(&self, sim_box: &SimBox) -> usize {
-        match self.target {
-            Target::Count(n) => n,
-            Target::VolumeFraction(phi) => {
-                let v: f64 = sim_box.edges_nm.iter().product();
-                (phi * v / (PI * self.radius_nm.powi(2) * self.length_nm))
-                    .round()
-                    .max(1.0) as usize
-            }
-        }
-    }
-}
-
-/// Placed fibres (all of one radius and length).
-#[derive(Debug, Clone, Default, PartialEq)]
-pub struct Fibres {
-    /// Radius, nm.
-    pub radius_nm: f64,
-    /// Length of each axis segment, nm.
-    pub length_nm: f64,
-    /// Segment midpoints, nm, inside the box.
-    pub centres_nm: Vec<[f64; 3]>,
-    /// Unit direction of each segment.
-    pub directions: Vec<[f64; 3]>,
-}
-
-impl Fibres {
-    /// Number of fibres.
-    pub fn len(&self) -> usize {
-        self.centres_nm.len()
-    }
-
-    /// True when there are none.
-    pub fn is_empty(&self) -> bool {
-        self.centres_nm.is_empty()
-    }
-
-    /// Nominal fibre volume fraction N·π r_f²·ℓ / V (overlaps counted twice,
-    /// caps not counted): the φ of Ogston's formula.
-    pub fn nominal_volume_fraction(&self, sim_box: &SimBox) -> f64 {
-        let v: f64 = sim_box.edges_nm.iter().product();
-        self.len() as f64 * PI * self.radius_nm.powi(2) * self.length_nm / v
-    }
-}
 
 /// Places fibres with uniformly random midpoints.
 pub fn place_fibres(spec: &FibreSpec, sim_box: &SimBox, seed: u64) -> Fibres {
@@ -123,6 +52,7 @@ pub fn place_fibres(spec: &FibreSpec, sim_box: &SimBox, seed: u64) -> Fibres {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::scenario::media::Target;
 
     #[test]
     fn isotropic_directions_are_unit_and_unbiased() {

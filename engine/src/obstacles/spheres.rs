@@ -22,14 +22,17 @@
 //! clear). A volume fraction is then relative to the space obstacles may
 //! fill (the [`Region`]). All lengths are nm.
 
-use crate::config::{Scenario, SimBox};
-use crate::error::{EngineError, Result};
-use crate::fibres::{self, Fibres};
-use crate::geometry::Shape;
-use crate::neighbors::{min_image_distance2, DynamicGrid, ObstacleGrid};
-use crate::rng::{standard_normal, ParticleRng};
+use crate::base::error::{EngineError, Result};
+use crate::base::rng::{standard_normal, ParticleRng};
+use crate::obstacles::fibres;
+use crate::scenario::config::Scenario;
+use crate::scenario::media::{Generator, ObstacleSpec, RadiusDistribution, Target};
+use crate::space::bodies::{Fibres, Spheres};
+use crate::space::neighbors::{min_image_distance2, DynamicGrid, ObstacleGrid};
+use crate::space::shape::Shape;
+use crate::space::sim_box::SimBox;
 use std::f64::consts::PI;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 /// Stream index (with the run seed) of sphere placement; particle indices
 /// never come near it.
@@ -51,230 +54,6 @@ pub const RSA_ATTEMPT_FLOOR: u64 = 2_000_000;
 /// Relative difference allowed between a lattice's achieved and requested
 /// volume fraction (whole unit cells must fill the box).
 pub const LATTICE_FRACTION_TOLERANCE: f64 = 0.005;
-/// Redraws allowed for one truncated log-normal radius before giving up.
-const TRUNCATION_REDRAWS: usize = 10_000;
-
-/// How generated obstacles are placed.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Generator {
-    /// Random sequential addition: non-overlapping.
-    RandomSequential,
-    /// Independent uniform centres: freely overlapping.
-    Poisson,
-    /// Simple cubic lattice.
-    SimpleCubic,
-    /// Face-centred cubic lattice.
-    FaceCentredCubic,
-}
-
-impl Generator {
-    /// The name used in scenario files.
-    pub fn name(self) -> &'static str {
-        match self {
-            Self::RandomSequential => "random",
-            Self::Poisson => "poisson",
-            Self::SimpleCubic => "simple_cubic",
-            Self::FaceCentredCubic => "fcc",
-        }
-    }
-}
-
-/// Distribution of obstacle radii.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum RadiusDistribution {
-    /// Every obstacle has this radius.
-    Fixed {
-        /// Radius, nm.
-        radius_nm: f64,
-    },
-    /// Uniform between two radii.
-    Uniform {
-        /// Smallest radius, nm.
-        min_nm: f64,
-        /// Largest radius, nm.
-        max_nm: f64,
-    },
-    /// Log-normal: ln r is normal with mean ln(median) and standard deviation
-    /// `log_sd`, optionally truncated to [min, max] by redrawing.
-    LogNormal {
-        /// Median radius, nm.
-        median_nm: f64,
-        /// Standard deviation of ln r.
-        log_sd: f64,
-        /// Smallest radius kept, nm (0 for none).
-        min_nm: f64,
-        /// Largest radius kept, nm (infinite for none).
-        max_nm: f64,
-    },
-}
-
-impl RadiusDistribution {
-    /// One radius from `rng`; `None` when a truncated log-normal keeps
-    /// missing its window.
-    pub fn sample(&self, rng: &mut ParticleRng) -> Option<f64> {
-        match *self {
-            Self::Fixed { radius_nm } => Some(radius_nm),
-            Self::Uniform { min_nm, max_nm } => Some(min_nm + (max_nm - min_nm) * rng.uniform()),
-            Self::LogNormal {
-                median_nm,
-                log_sd,
-                min_nm,
-                max_nm,
-            } => {
-                for _ in 0..TRUNCATION_REDRAWS {
-                    let r = median_nm * (log_sd * standard_normal(rng)).exp();
-                    if (min_nm..=max_nm).contains(&r) {
-                        return Some(r);
-                    }
-                }
-                None
-            }
-        }
-    }
-
-    /// Largest radius the distribution can produce (infinite for an
-    /// untruncated log-normal).
-    pub fn max_nm(&self) -> f64 {
-        match *self {
-            Self::Fixed { radius_nm } => radius_nm,
-            Self::Uniform { max_nm, .. } => max_nm,
-            Self::LogNormal { max_nm, .. } => max_nm,
-        }
-    }
-
-    /// Mean sphere volume ⟨(4/3)π r³⟩, nm³.
-    pub fn mean_volume_nm3(&self) -> f64 {
-        let k = 4.0 / 3.0 * PI;
-        match *self {
-            Self::Fixed { radius_nm } => k * radius_nm.powi(3),
-            Self::Uniform { min_nm, max_nm } => {
-                if max_nm == min_nm {
-                    k * min_nm.powi(3)
-                } else {
-                    k * (max_nm.powi(4) - min_nm.powi(4)) / (4.0 * (max_nm - min_nm))
-                }
-            }
-            Self::LogNormal {
-                median_nm,
-                log_sd,
-                min_nm,
-                max_nm,
-            } => {
-                // Simpson's rule over the standard normal variable of ln r,
-                // restricted to the truncation window (and to ±12 standard deviations).
-                let z_of = |r: f64| {
-                    if r <= 0.0 {
-                        -12.0
-                    } else {
-                        ((r / median_nm).ln() / log_sd).clamp(-12.0, 12.0)
-                    }
-                };
-                let (z0, z1) = if log_sd == 0.0 {
-                    (0.0, 0.0)
-                } else {
-                    (
-                        z_of(min_nm),
-                        if max_nm.is_finite() {
-                            z_of(max_nm)
-                        } else {
-                            12.0
-                        },
-                    )
-                };
-                if log_sd == 0.0 || z1 <= z0 {
-                    return k * median_nm.powi(3);
-                }
-                let n = 4000;
-                let h = (z1 - z0) / n as f64;
-                let (mut num, mut den) = (0.0, 0.0);
-                for i in 0..=n {
-                    let z = z0 + i as f64 * h;
-                    let w = if i == 0 || i == n {
-                        1.0
-                    } else if i % 2 == 1 {
-                        4.0
-                    } else {
-                        2.0
-                    };
-                    let pdf = (-0.5 * z * z).exp();
-                    num += w * pdf * (3.0 * log_sd * z).exp();
-                    den += w * pdf;
-                }
-                k * median_nm.powi(3) * num / den
-            }
-        }
-    }
-}
-
-/// What a generated placement aims for.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum Target {
-    /// Fraction of the box volume covered by obstacles (for overlapping
-    /// obstacles, the covered fraction of the union).
-    VolumeFraction(f64),
-    /// Number of obstacles.
-    Count(usize),
-}
-
-/// Validated `[obstacles]` section.
-#[derive(Debug, Clone, PartialEq)]
-pub enum ObstacleSpec {
-    /// Obstacles generated from the seed.
-    Generated {
-        /// Placement method.
-        generator: Generator,
-        /// Radii.
-        radii: RadiusDistribution,
-        /// Volume fraction or count.
-        target: Target,
-    },
-    /// Obstacles read from a CSV file.
-    File {
-        /// Resolved path of the CSV file.
-        path: PathBuf,
-        /// Whether obstacles in the file may overlap each other. By default, this is disabled.
-        allow_overlap: bool,
-    },
-}
-
-/// Fixed spheres: centres (inside the box) and radii, nm.
-#[derive(Debug, Clone, Default, PartialEq)]
-pub struct Spheres {
-    /// Centres, nm, in [0, L) on every axis.
-    pub centres_nm: Vec<[f64; 3]>,
-    /// Radii, nm.
-    pub radii_nm: Vec<f64>,
-    /// True when the spheres may overlap each other (Poisson, or a file that allows it).
-    pub may_overlap: bool,
-}
-
-impl Spheres {
-    /// Number of spheres.
-    pub fn len(&self) -> usize {
-        self.radii_nm.len()
-    }
-
-    /// True when there are none.
-    pub fn is_empty(&self) -> bool {
-        self.radii_nm.is_empty()
-    }
-
-    /// Sum of sphere volumes over the box volume (the covered fraction when
-    /// they do not overlap).
-    pub fn nominal_volume_fraction(&self, sim_box: &SimBox) -> f64 {
-        let v: f64 = self
-            .radii_nm
-            .iter()
-            .map(|r| 4.0 / 3.0 * PI * r.powi(3))
-            .sum();
-        v / box_volume(sim_box)
-    }
-
-    /// Sum of sphere volumes over the volume of `region`.
-    pub fn volume_fraction_in(&self, region: &Region, sim_box: &SimBox) -> f64 {
-        self.nominal_volume_fraction(sim_box) * box_volume(sim_box) / region.volume_nm3(sim_box)
-    }
-}
 
 /// Everything fixed in a scenario: spheres and fibres.
 #[derive(Debug, Clone, Default, PartialEq)]
@@ -292,6 +71,13 @@ pub struct Estimate {
     pub value: f64,
     /// Its standard error (0 when exact).
     pub standard_error: f64,
+}
+
+impl Spheres {
+    /// Sum of sphere volumes over the volume of `region`.
+    pub fn volume_fraction_in(&self, region: &Region, sim_box: &SimBox) -> f64 {
+        self.nominal_volume_fraction(sim_box) * box_volume(sim_box) / region.volume_nm3(sim_box)
+    }
 }
 
 fn box_volume(sim_box: &SimBox) -> f64 {
@@ -702,7 +488,8 @@ impl OpenVoxels {
             let mid = [lo[0] + half[0], lo[1] + half[1], lo[2] + half[2]];
             let covered = grid.any_near(&mid, |j| {
                 let j = j as usize;
-                let d = crate::neighbors::min_image_delta(sim_box, &mid, &spheres.centres_nm[j]);
+                let d =
+                    crate::space::neighbors::min_image_delta(sim_box, &mid, &spheres.centres_nm[j]);
                 let far2: f64 = (0..3).map(|k| (d[k].abs() + half[k]).powi(2)).sum();
                 let reach = r + spheres.radii_nm[j];
                 far2 < reach * reach
@@ -1150,8 +937,13 @@ pub fn read_csv(
     scenario_file: &Path,
 ) -> Result<Spheres> {
     let names = ["x_nm", "y_nm", "z_nm", "radius_nm"];
-    let rows =
-        crate::config::read_numeric_csv(path, scenario_file, "obstacles.file", "obstacle", names)?;
+    let rows = crate::scenario::config::read_numeric_csv(
+        path,
+        scenario_file,
+        "obstacles.file",
+        "obstacle",
+        names,
+    )?;
     let mut spheres = Spheres {
         may_overlap: allow_overlap,
         ..Spheres::default()

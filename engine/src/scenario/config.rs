@@ -7,12 +7,13 @@
 //! file, the key, the value and the allowed range. Nothing downstream sees an
 //! unchecked value.
 
-use crate::crowders::Sweep;
-use crate::error::{EngineError, Result};
-use crate::fibres::{FibreSpec, Orientation};
-use crate::geometry::Geometry;
-use crate::medium;
-use crate::obstacles::{Generator, ObstacleSpec, RadiusDistribution, Target};
+use crate::base::error::{EngineError, Result};
+use crate::base::medium;
+use crate::scenario::geometry::Geometry;
+use crate::scenario::media::Sweep;
+use crate::scenario::media::{FibreSpec, Orientation};
+use crate::scenario::media::{Generator, ObstacleSpec, RadiusDistribution, Target};
+use crate::space::SimBox;
 use serde::{Deserialize, Serialize};
 use std::path::{Path, PathBuf};
 
@@ -80,7 +81,7 @@ pub struct RawScenario {
 }
 
 /// `[geometry]`: confining walls, as written (validated by
-/// [`crate::geometry::Geometry::from_raw`]). Sizes along z come from
+/// [`crate::scenario::geometry::Geometry::from_raw`]). Sizes along z come from
 /// `box.edges_nm[2]`: the slit's gap, the plane wall's box height, the
 /// membrane's total height (slab centred, reservoirs above and below).
 #[derive(Debug, Clone, Default, Serialize, Deserialize, PartialEq)]
@@ -327,15 +328,6 @@ impl Species {
     }
 }
 
-/// A validated simulation box.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct SimBox {
-    /// Edge lengths, nm.
-    pub edges_nm: [f64; 3],
-    /// Periodic per axis.
-    pub periodic: [bool; 3],
-}
-
 /// Validated output settings.
 #[derive(Debug, Clone, PartialEq)]
 pub struct OutputSpec {
@@ -562,7 +554,7 @@ impl Scenario {
             .map(|s| s.count as f64 * 4.0 / 3.0 * std::f64::consts::PI * s.radius_nm.powi(3))
             .sum();
         let fluid = match self.geometry.as_ref().map(|g| &g.shape) {
-            Some(shape @ crate::geometry::Shape::Cylinder { .. }) => {
+            Some(shape @ crate::space::shape::Shape::Cylinder { .. }) => {
                 shape.open_fraction(0.0, &self.sim_box.edges_nm)
             }
             _ => 1.0,
@@ -1152,7 +1144,7 @@ impl RawScenario {
             g.wall_hydrodynamics = Some(spec.hydrodynamics.is_some());
             if let Some(m) = spec.hydrodynamics {
                 g.perpendicular_model = Some(
-                    if m == crate::mobility::PerpendicularModel::Brenner {
+                    if m == crate::space::mobility::PerpendicularModel::Brenner {
                         "brenner"
                     } else {
                         "bevan_prieve"
@@ -1160,7 +1152,7 @@ impl RawScenario {
                     .into(),
                 );
             }
-            if let crate::geometry::Shape::Membrane(m) = &spec.shape {
+            if let crate::space::shape::Shape::Membrane(m) = &spec.shape {
                 g.top_concentration_mol_per_m3 = Some(m.top_concentration_mol_per_m3);
                 g.bottom_concentration_mol_per_m3 = Some(m.bottom_concentration_mol_per_m3);
                 g.flux_after_s = Some(spec.flux_after_s);
@@ -1198,8 +1190,8 @@ impl RawScenario {
             resolved_toml,
         };
         // Refused here, before any caller allocates particles, obstacles or grids.
-        if let Some((limit, source)) = crate::memory::current_limit() {
-            crate::memory::check(&scenario, limit, source)?;
+        if let Some((limit, source)) = crate::scenario::memory::current_limit() {
+            crate::scenario::memory::check(&scenario, limit, source)?;
         }
         Ok(scenario)
     }

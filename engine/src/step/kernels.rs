@@ -5,12 +5,13 @@
 //! result is the same as stepping all particles in lock-step, because every
 //! particle draws from its own random stream.
 
-use crate::config::{Scenario, SimBox};
-use crate::crowders::Crowd;
-use crate::error::{EngineError, Result};
-use crate::neighbors::{Blocker, ObstacleGrid};
-use crate::obstacles::FixedObstacles;
-use crate::rng::{standard_normal, ParticleRng};
+use crate::base::error::{EngineError, Result};
+use crate::base::rng::{standard_normal, ParticleRng};
+use crate::obstacles::spheres::FixedObstacles;
+use crate::scenario::config::Scenario;
+use crate::space::neighbors::{Blocker, ObstacleGrid};
+use crate::space::sim_box::{reflect, SimBox};
+use crate::step::crowd::Crowd;
 use rayon::prelude::*;
 use std::ops::Range;
 
@@ -372,7 +373,7 @@ impl Dynamics {
             Kernel::Free => Ok(State::initial(scenario)),
             Kernel::Crowded(c) => {
                 let grids = c.grids();
-                crate::crowders::place_crowd(scenario, &self.kinetics, grids)
+                crate::step::crowd::place_crowd(scenario, &self.kinetics, grids)
             }
             Kernel::Obstructed(grids) => {
                 let n = scenario.particle_count();
@@ -446,21 +447,6 @@ pub fn draw_starts(
                 .map(|c| *p = c)
                 .is_some()
         })
-}
-
-/// Specular reflection of a coordinate into [lo, hi].
-#[inline(always)]
-pub fn reflect(mut x: f64, lo: f64, hi: f64) -> f64 {
-    // A step longer than the gap could need several bounces; loop until inside.
-    loop {
-        if x < lo {
-            x = 2.0 * lo - x;
-        } else if x > hi {
-            x = 2.0 * hi - x;
-        } else {
-            return x;
-        }
-    }
 }
 
 #[cfg(test)]

@@ -13,9 +13,9 @@
 //! Mobile particles use a [`VerletList`] with a skin, built through a cell
 //! list, and [`DynamicGrid`] serves sequential insertion during placement.
 
-use crate::config::SimBox;
-use crate::fibres::Fibres;
-use crate::obstacles::Spheres;
+use crate::space::bodies::Fibres;
+use crate::space::bodies::Spheres;
+use crate::space::sim_box::SimBox;
 use kiddo::{ImmutableKdTree, SquaredEuclidean};
 use rayon::prelude::*;
 
@@ -992,7 +992,7 @@ impl VerletList {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::rng::ParticleRng;
+    use crate::base::rng::ParticleRng;
 
     fn cube(l: f64, periodic: bool) -> SimBox {
         SimBox {

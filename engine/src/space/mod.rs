@@ -1,0 +1,10 @@
+//! Layer 2: the space particles move in: box, confining shapes, wall
+//! mobilities, placed bodies and neighbour searches. Imports only `base`.
+
+pub mod bodies;
+pub mod mobility;
+pub mod neighbors;
+pub mod shape;
+pub mod sim_box;
+
+pub use sim_box::{reflect, SimBox};
