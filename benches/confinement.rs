@@ -10,7 +10,7 @@
 
 use std::path::Path;
 use std::time::Instant;
-use thicket_engine::step::confined::Confinement;
+use thicket_engine::step::Stepper;
 use thicket_engine::Scenario;
 
 const COUNT: usize = 200_000;
@@ -75,7 +75,7 @@ fn throughput(
         .iter()
         .map(|&hydro| {
             let s = scenario(edges, geometry, hydro);
-            let c = Confinement::new(&s, s.geometry.as_ref().expect("geometry"));
+            let c = Stepper::new(&s, &thicket_engine::obstacles::FixedObstacles::default());
             let state = c.initial_state(&s).expect("placement");
             (c, state)
         })

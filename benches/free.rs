@@ -9,7 +9,8 @@ use std::sync::atomic::AtomicBool;
 use std::time::Instant;
 use thicket_engine::base::rng::{standard_normal, ParticleRng};
 use thicket_engine::run::driver::{run, RunOptions};
-use thicket_engine::step::kernels::{advance_free, kinetics, State};
+use thicket_engine::step::pipeline::advance_free;
+use thicket_engine::step::state::{kinetics, State};
 use thicket_engine::Scenario;
 
 fn scenario(count: usize, steps: u64, record: u64) -> Scenario {

@@ -883,7 +883,8 @@ fn read_fixed_text(a: &hdf5::Attribute) -> hdf5::Result<String> {
 /// # Errors
 /// [`TracksError::NoCamera`] when the scenario has no `[camera]`.
 pub fn image_free_in_memory(scenario: &Scenario, window: usize) -> Result<TrackSet, TracksError> {
-    use thicket_engine::step::kernels::{advance_free, kinetics, State};
+    use thicket_engine::step::pipeline::advance_free;
+    use thicket_engine::step::state::{kinetics, State};
     let camera = Camera::new(scenario)?;
     let mut kin = kinetics(scenario);
     // Only the first species is simulated and imaged.

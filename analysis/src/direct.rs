@@ -7,8 +7,8 @@ use std::ops::Range;
 use std::path::Path;
 use thicket_engine::obstacles::spheres::FixedObstacles;
 use thicket_engine::space::neighbors::{min_image_distance2, CellList, VerletList};
-use thicket_engine::step::confined::{Confinement, Counts};
-use thicket_engine::step::kernels::{Dynamics, State};
+use thicket_engine::step::boundary::Counts;
+use thicket_engine::step::{State, Stepper};
 use thicket_engine::{EngineError, Scenario};
 
 /// A validated scenario from TOML text (`name` labels its errors).
@@ -23,9 +23,9 @@ pub fn scenario_from_text(text: &str, name: &str) -> Result<Scenario, EngineErro
 ///
 /// # Errors
 /// Placement of the obstacles or of the particles failed.
-pub fn prepare(sc: &Scenario) -> Result<(FixedObstacles, Dynamics, State), EngineError> {
+pub fn prepare(sc: &Scenario) -> Result<(FixedObstacles, Stepper, State), EngineError> {
     let obstacles = FixedObstacles::build(sc)?;
-    let dynamics = Dynamics::new(sc, &obstacles);
+    let dynamics = Stepper::new(sc, &obstacles);
     let state = dynamics.initial_state(sc)?;
     Ok((obstacles, dynamics, state))
 }
@@ -33,7 +33,7 @@ pub fn prepare(sc: &Scenario) -> Result<(FixedObstacles, Dynamics, State), Engin
 /// Unwrapped positions of particles `range` every `every` steps, `records`
 /// times (the first record is the current state).
 pub fn record(
-    dynamics: &mut Dynamics,
+    dynamics: &mut Stepper,
     state: &mut State,
     sc: &Scenario,
     range: Range<usize>,
@@ -125,7 +125,7 @@ pub fn long_time_diffusivity(
 
 /// Advances a confined state in blocks of at most `block` steps (the run
 /// driver's way), `steps` in all, and returns the summed counts per species.
-pub fn advance_confined(c: &Confinement, state: &mut State, steps: u64, block: u64) -> Vec<Counts> {
+pub fn advance_confined(c: &mut Stepper, state: &mut State, steps: u64, block: u64) -> Vec<Counts> {
     let mut totals = Vec::new();
     let mut done = 0;
     while done < steps {

@@ -41,8 +41,10 @@ use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use serde::Serialize;
+use thicket_engine::obstacles::FixedObstacles;
+use thicket_engine::run::membrane::MEMBRANE_COLUMNS;
 use thicket_engine::space::shape::{per_nm3_to_mol_per_m3, Membrane, PoreLayout, Shape};
-use thicket_engine::step::confined::{Confinement, MEMBRANE_COLUMNS};
+use thicket_engine::step::Stepper;
 use thicket_engine::Scenario;
 
 use crate::blocks::{
@@ -302,7 +304,7 @@ pub fn analyze_membrane(path: &Path, species: Option<&str>) -> Result<MembraneAn
         }
         .into());
     }
-    let confinement = Confinement::new(&scenario, geometry);
+    let confinement = Stepper::new(&scenario, &FixedObstacles::default());
     let sigma = confinement.bath_sigma_nm(s);
     let area = m.area_nm2();
     let d0 = sp.d0_nm2_per_s();

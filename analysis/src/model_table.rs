@@ -14,8 +14,8 @@ use std::f64::consts::PI;
 use thicket_engine::obstacles::spheres::{FixedObstacles, Region};
 use thicket_engine::scenario::media::Orientation;
 use thicket_engine::scenario::media::{Generator, ObstacleSpec};
+use thicket_engine::space::mobility::mean_parallel_mobility;
 use thicket_engine::space::shape::{PoreLayout, Shape};
-use thicket_engine::step::confined::mean_parallel_mobility;
 use thicket_engine::Scenario;
 
 /// A tracer counts as point-like when its radius is at most this fraction

@@ -12,7 +12,8 @@ use thicket_engine::base::rng::ParticleRng;
 use thicket_engine::obstacles::spheres::FixedObstacles;
 use thicket_engine::scenario::media::Sweep;
 use thicket_engine::space::neighbors::{Blocker, BruteForce, ObstacleGrid, ObstacleKdTree};
-use thicket_engine::step::kernels::{advance_obstructed, Dynamics, State};
+use thicket_engine::step::pipeline::advance_obstructed;
+use thicket_engine::step::{State, Stepper};
 use thicket_engine::Scenario;
 
 /// Rounds of interleaved timings.
@@ -70,7 +71,7 @@ fn main() {
     println!("fixed spheres: point tracers among random non-overlapping spheres (b = 10 nm, φ = 0.3), rms step 0.03 b");
     let sc = fixed_scenario(40_000);
     let obstacles = FixedObstacles::build(&sc).expect("placement");
-    let dynamics = Dynamics::new(&sc, &obstacles);
+    let dynamics = Stepper::new(&sc, &obstacles);
     let a = sc.species[0].radius_nm;
     let grid = ObstacleGrid::build(&obstacles.spheres, &obstacles.fibres, a, &sc.sim_box);
     let tree = ObstacleKdTree::build(&obstacles.spheres, a, &sc.sim_box).expect("spheres");
@@ -181,10 +182,10 @@ fn main() {
     println!("mobile hard spheres: radius 5 nm, φ = 0.3, rms step 1 % of the diameter");
     for count in [20_000usize, 100_000] {
         let sc = mobile_scenario(count);
-        let dynamics = Dynamics::new(&sc, &FixedObstacles::default());
+        let dynamics = Stepper::new(&sc, &FixedObstacles::default());
         let start = dynamics.initial_state(&sc).expect("placement");
         // Variants: in-order sweep (1 thread), parallel sweep on 1 and on 2 threads.
-        let mut runs: Vec<(Dynamics, State)> = (0..3)
+        let mut runs: Vec<(Stepper, State)> = (0..3)
             .map(|v| {
                 let mut d = dynamics.clone();
                 let c = d.crowd_mut().expect("a crowd");
@@ -205,7 +206,9 @@ fn main() {
         let secs = best_in_turns(3, |v| {
             let (d, st) = &mut runs[v];
             let p = &pools[if v == 2 { 1 } else { 0 }];
-            time(|| p.install(|| d.advance(st, steps)))
+            time(|| {
+                p.install(|| d.advance(st, steps));
+            })
         });
         let rate: Vec<f64> = secs
             .iter()

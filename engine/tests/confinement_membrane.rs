@@ -12,8 +12,8 @@ use thicket_analysis::models::{
     renkin_hindrance,
 };
 use thicket_engine::base::rng::ParticleRng;
+use thicket_engine::run::membrane::MembraneMeter;
 use thicket_engine::space::shape::Shape;
-use thicket_engine::step::confined::MembraneMeter;
 use thicket_engine::Scenario;
 
 /// Partition run: pore radius 10 nm through a slab 20 nm thick, reservoirs
@@ -42,7 +42,7 @@ fn partition(lambda: f64, count: usize, measure: u64, seed: u64) {
         unreachable!()
     };
     let (z_lo, z_hi, lz) = (m.z_lo_nm, m.z_hi_nm, m.height_nm);
-    let c = confinement(&s);
+    let mut c = confinement(&s);
     let mut state = c.initial_state(&s).unwrap();
     // Empty the pore: the dynamics, not the placement, must fill it.
     let mut g = ParticleRng::for_particle(999, 0);
@@ -65,11 +65,11 @@ fn partition(lambda: f64, count: usize, measure: u64, seed: u64) {
     let mut batches: Vec<[f64; 2]> = Vec::new();
     let mut emitted = 0u64;
     on_threads(2, || {
-        advance(&c, &mut state, fill, every);
+        advance(&mut c, &mut state, fill, every);
         let batch_len = measure / every / 8;
         let mut sums = [0.0; 2];
         for k in 0..measure / every {
-            let counts = advance(&c, &mut state, every, every);
+            let counts = advance(&mut c, &mut state, every, every);
             emitted += counts[0].entries_top + counts[0].entries_bottom;
             let (mut in_pore, mut in_bulk) = (0u64, 0u64);
             for p in &state.positions {
@@ -143,7 +143,7 @@ fn permeability(
     count: usize,
     relax: u64,
     measure: u64,
-) -> (thicket_engine::step::confined::MembraneSummary, Scenario) {
+) -> (thicket_engine::run::membrane::MembraneSummary, Scenario) {
     let every = 1000;
     let geometry = format!(
         "kind = \"membrane\"\nthickness_nm = {PERM_L}\npore_radius_nm = {PERM_R}\nwall_hydrodynamics = {hydro}\n\
@@ -158,7 +158,7 @@ fn permeability(
         relax + measure,
         &geometry,
     );
-    let c = confinement(&s);
+    let mut c = confinement(&s);
     let mut state = c.initial_state(&s).unwrap();
     let mut meter = MembraneMeter::new(1);
     let flux_after = relax as f64 * s.dt_s;

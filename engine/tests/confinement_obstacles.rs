@@ -1,4 +1,4 @@
-//! Confinement combined with crowding: fixed obstacles inside a slit and a
+//! Stepper combined with crowding: fixed obstacles inside a slit and a
 //! pore, and mobile hard spheres between walls.
 //!
 //! - Slit with wall hydrodynamics and fixed spheres: the equilibrium density
@@ -20,8 +20,7 @@ use std::path::Path;
 use thicket_engine::base::rng::ParticleRng;
 use thicket_engine::obstacles::spheres::FixedObstacles;
 use thicket_engine::space::neighbors::ObstacleGrid;
-use thicket_engine::step::confined::Confinement;
-use thicket_engine::step::kernels::{Dynamics, State};
+use thicket_engine::step::{State, Stepper};
 use thicket_engine::Scenario;
 
 /// Pearson chi-square critical value, 19 degrees of freedom, upper tail
@@ -35,9 +34,9 @@ fn parse(text: &str) -> Scenario {
 }
 
 /// The kernels of a confined scenario among its fixed obstacles, as `run` builds them.
-fn confined_among_obstacles(s: &Scenario) -> (Confinement, FixedObstacles) {
+fn confined_among_obstacles(s: &Scenario) -> (Stepper, FixedObstacles) {
     let obstacles = FixedObstacles::build(s).expect("placement");
-    let c = confinement(s).with_obstacles(s, &obstacles);
+    let c = Stepper::new(s, &obstacles);
     (c, obstacles)
 }
 
@@ -57,10 +56,10 @@ fn tracers_among_obstacles_in_a_slit_fill_the_open_space_uniformly() {
         dt_for_sigma(sigma)
     );
     let s = parse(&text);
-    let (c, obstacles) = confined_among_obstacles(&s);
+    let (mut c, obstacles) = confined_among_obstacles(&s);
     assert!(obstacles.spheres.len() > 50, "the slit holds obstacles");
     let mut state = c.initial_state(&s).unwrap();
-    on_threads(2, || advance(&c, &mut state, steps, 1000));
+    on_threads(2, || advance(&mut c, &mut state, steps, 1000));
 
     let grid = ObstacleGrid::build(&obstacles.spheres, &obstacles.fibres, a, &s.sim_box);
     let bin_of = |z: f64| (((z - a) / (w - 2.0 * a) * bins as f64) as usize).min(bins - 1);
@@ -128,7 +127,7 @@ fn axial_diffusion_in_a_pore_of_aligned_fibres_is_free() {
         windows * window
     );
     let s = parse(&text);
-    let (c, obstacles) = confined_among_obstacles(&s);
+    let (mut c, obstacles) = confined_among_obstacles(&s);
     assert!(obstacles.fibres.len() > 10, "the pore holds fibres");
     let grid = ObstacleGrid::build(&obstacles.spheres, &obstacles.fibres, a, &s.sim_box);
     let mut state = c.initial_state(&s).unwrap();
@@ -139,7 +138,7 @@ fn axial_diffusion_in_a_pore_of_aligned_fibres_is_free() {
     on_threads(2, || {
         for _ in 0..windows {
             let before: State = state.clone();
-            advance(&c, &mut state, window, 200);
+            advance(&mut c, &mut state, window, 200);
             let t = window as f64 * dt;
             for i in 0..count {
                 let (p0, p1) = (
@@ -200,7 +199,7 @@ fn hard_spheres_at_a_wall_obey_the_contact_theorem() {
         equilibrate + frames * every
     );
     let s = parse(&text);
-    let mut dynamics = Dynamics::new(&s, &FixedObstacles::default());
+    let mut dynamics = Stepper::new(&s, &FixedObstacles::default());
     let mut state = dynamics.initial_state(&s).unwrap();
     dynamics.advance(&mut state, equilibrate);
     // Gap h between a centre's contact position and the nearer wall, binned near contact;
@@ -297,7 +296,7 @@ fn crowders_stay_inside_a_cylindrical_pore_without_overlaps() {
         dt_for_sigma(0.05)
     );
     let s = parse(&text);
-    let mut dynamics = Dynamics::new(&s, &FixedObstacles::default());
+    let mut dynamics = Stepper::new(&s, &FixedObstacles::default());
     let mut state = dynamics.initial_state(&s).unwrap();
     let inside = |state: &State| {
         state

@@ -6,7 +6,7 @@
 mod confinement_support;
 
 use confinement_support::*;
-use thicket_engine::step::confined::mean_parallel_mobility;
+use thicket_engine::space::mobility::mean_parallel_mobility;
 use thicket_engine::Scenario;
 
 /// Pore radius and tracer radius (λ = 0.2), nm.
@@ -43,7 +43,7 @@ struct Measured {
 }
 
 fn measure(s: &Scenario, windows: u64) -> Measured {
-    let c = confinement(s);
+    let mut c = confinement(s);
     let mut state = c.initial_state(s).unwrap();
     let start = state.clone();
     let n = state.len();
@@ -52,7 +52,7 @@ fn measure(s: &Scenario, windows: u64) -> Measured {
     on_threads(2, || {
         for _ in 0..windows {
             let before = state.clone();
-            rejected += advance(&c, &mut state, WINDOW, WINDOW)[0].rejected_moves;
+            rejected += advance(&mut c, &mut state, WINDOW, WINDOW)[0].rejected_moves;
             let t = WINDOW as f64 * s.dt_s;
             for (i, ax) in axial.iter_mut().enumerate() {
                 let dz = state.unwrapped(i, &s.sim_box)[2] - before.unwrapped(i, &s.sim_box)[2];

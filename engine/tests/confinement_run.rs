@@ -70,19 +70,19 @@ fn kinds() -> Vec<(&'static str, Scenario)> {
 #[test]
 fn results_do_not_depend_on_threads_or_blocks() {
     for (name, s) in kinds() {
-        let c = confinement(&s);
+        let mut c = confinement(&s);
         let start = c.initial_state(&s).unwrap();
         let mut one = start.clone();
-        let counts_one = on_threads(1, || advance(&c, &mut one, 400, 400));
+        let counts_one = on_threads(1, || advance(&mut c, &mut one, 400, 400));
         let mut two = start.clone();
-        let counts_two = on_threads(2, || advance(&c, &mut two, 400, 400));
+        let counts_two = on_threads(2, || advance(&mut c, &mut two, 400, 400));
         assert_eq!(one, two, "{name}: one and two threads differ");
         assert_eq!(
             counts_one, counts_two,
             "{name}: counts differ between thread counts"
         );
         let mut split = start.clone();
-        let counts_split = on_threads(2, || advance(&c, &mut split, 400, 37));
+        let counts_split = on_threads(2, || advance(&mut c, &mut split, 400, 37));
         assert_eq!(
             one, split,
             "{name}: splitting the steps into blocks changed the result"

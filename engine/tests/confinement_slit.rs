@@ -7,8 +7,8 @@ mod confinement_support;
 
 use confinement_support::*;
 use std::sync::OnceLock;
-use thicket_engine::step::confined::mean_parallel_mobility;
-use thicket_engine::step::kernels::State;
+use thicket_engine::space::mobility::mean_parallel_mobility;
+use thicket_engine::step::State;
 
 /// Radius a (nm) and gap W = 6a: centres span z/a from 1 to 5.
 const A: f64 = 1.0;
@@ -59,7 +59,7 @@ fn run_slit(ito_drift: bool) -> Outcome {
     on_threads(2, || {
         for _ in 0..WINDOWS {
             let before: State = state.clone();
-            advance(&c, &mut state, window, 500);
+            advance(&mut c, &mut state, window, 500);
             let t = window as f64 * s.dt_s;
             for (i, sum) in lateral.iter_mut().enumerate() {
                 let (p0, p1) = (

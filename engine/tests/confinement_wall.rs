@@ -37,7 +37,7 @@ fn measure(seed: u64) -> Vec<Bin> {
         LAG * WINDOWS as u64,
         geometry,
     );
-    let c = confinement(&s);
+    let mut c = confinement(&s);
     let mut state = c.initial_state(&s).unwrap();
     let mut bins = vec![Bin::default(); HEIGHTS.len()];
     on_threads(2, || {

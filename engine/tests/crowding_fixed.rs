@@ -14,7 +14,7 @@ use std::f64::consts::PI;
 use thicket_analysis::models;
 use thicket_engine::obstacles::spheres::FixedObstacles;
 use thicket_engine::space::neighbors::blocked_brute_force;
-use thicket_engine::step::kernels::Dynamics;
+use thicket_engine::step::Stepper;
 
 /// Point-like tracers (a = 1e-4 nm) among random non-overlapping spheres of
 /// radius 1 nm at volume fraction `phi`, rms step `sigma` nm per axis.
@@ -318,7 +318,7 @@ fn tracers_never_end_inside_obstacles() {
 #[test]
 fn obstructed_kernel_is_path_and_thread_independent() {
     use thicket_engine::space::neighbors::{BruteForce, ObstacleGrid, ObstacleKdTree};
-    use thicket_engine::step::kernels::advance_obstructed;
+    use thicket_engine::step::pipeline::advance_obstructed;
     let text = spheres_text(0.3, 0.05, 400, 12.0, 3);
     let sc = scenario(&text);
     let (o, dynamics, start) = prepare(&sc);
@@ -432,7 +432,7 @@ fn csv_obstacles_are_read_with_their_radii() {
     let o = FixedObstacles::build(&sc).unwrap();
     assert_eq!(o.spheres.radii_nm, vec![2.0, 3.5, 1.0]);
     assert_eq!(o.spheres.centres_nm[1], [15.0, 5.0, 5.0]);
-    let dynamics = Dynamics::new(&sc, &o);
+    let dynamics = Stepper::new(&sc, &o);
     let state = dynamics.initial_state(&sc).unwrap();
     for p in &state.positions {
         assert!(!blocked_brute_force(
@@ -456,7 +456,7 @@ fn failure(text: &str, dir: &std::path::Path) -> String {
         Err(e) => return e.to_string(),
         Ok(o) => o,
     };
-    match Dynamics::new(&sc, &o).initial_state(&sc) {
+    match Stepper::new(&sc, &o).initial_state(&sc) {
         Err(e) => e.to_string(),
         Ok(_) => panic!("expected an error for:\n{text}"),
     }

@@ -15,7 +15,7 @@ use thicket_engine::scenario::media::Sweep;
 use thicket_engine::space::neighbors::{blocked_brute_force, min_image_distance2};
 use thicket_engine::space::sim_box::reflect;
 use thicket_engine::step::crowd::find_overlap_brute_force;
-use thicket_engine::step::kernels::{Kinetics, State};
+use thicket_engine::step::{Kinetics, State};
 use thicket_engine::Scenario;
 
 /// Equal crowders of diameter 1 nm at volume fraction `phi`, rms step `sigma` nm.

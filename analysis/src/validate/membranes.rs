@@ -7,8 +7,8 @@ use crate::direct::{advance_confined, mean_se};
 use crate::models::{membrane_steric_permeability_over_d0, partition_cylinder};
 use std::path::Path;
 use thicket_engine::base::rng::ParticleRng;
+use thicket_engine::run::membrane::MembraneMeter;
 use thicket_engine::space::shape::Shape;
-use thicket_engine::step::confined::MembraneMeter;
 
 pub(super) fn groups() -> Vec<Group> {
     vec![
@@ -51,7 +51,7 @@ fn partition(mode: Mode, _dir: &Path) -> Outcome {
         return Err("not a membrane".into());
     };
     let (z_lo, z_hi, lz) = (m.z_lo_nm, m.z_hi_nm, m.height_nm);
-    let c = confinement(&s)?;
+    let mut c = confinement(&s)?;
     let mut state = c.initial_state(&s).map_err(|e| e.to_string())?;
     // Empty the pore: the dynamics, not the placement, must fill it.
     let mut g = ParticleRng::for_particle(999, 0);
@@ -71,11 +71,11 @@ fn partition(mode: Mode, _dir: &Path) -> Outcome {
     let pore_volume = std::f64::consts::PI * r * r * (z_hi - z_lo);
     // Fully open reservoir layers: beyond a from the slab faces.
     let bulk_volume = 2.0 * 24.0 * 24.0 * (z_lo - a);
-    advance_confined(&c, &mut state, fill, every);
+    advance_confined(&mut c, &mut state, fill, every);
     let batch_len = measure / every / 8;
     let (mut batches, mut sums) = (Vec::new(), [0.0f64; 2]);
     for k in 0..measure / every {
-        advance_confined(&c, &mut state, every, every);
+        advance_confined(&mut c, &mut state, every, every);
         for p in &state.positions {
             if m.in_pore(p) {
                 sums[0] += 1.0;
@@ -134,7 +134,7 @@ fn permeability(mode: Mode, _dir: &Path) -> Outcome {
         relax + measure,
         &geometry,
     )?;
-    let c = confinement(&s)?;
+    let mut c = confinement(&s)?;
     let mut state = c.initial_state(&s).map_err(|e| e.to_string())?;
     let mut meter = MembraneMeter::new(1);
     let flux_after = relax as f64 * s.dt_s;

@@ -7,7 +7,7 @@ use super::{check, Area, Comparison, Group, Mode, Outcome};
 use crate::direct::{advance_confined, chi_square_flat, mean_se, CHI2_19_P001};
 use crate::models;
 use std::path::Path;
-use thicket_engine::step::confined::mean_parallel_mobility;
+use thicket_engine::space::mobility::mean_parallel_mobility;
 
 pub(super) fn groups() -> Vec<Group> {
     vec![
@@ -86,13 +86,13 @@ fn pore(hydro: bool, mode: Mode, _dir: &Path) -> Outcome {
         WINDOW * windows,
         &geometry,
     )?;
-    let c = confinement(&s)?;
+    let mut c = confinement(&s)?;
     let mut state = c.initial_state(&s).map_err(|e| e.to_string())?;
     let start = state.clone();
     let mut axial = vec![0.0; count];
     for _ in 0..windows {
         let before = state.clone();
-        advance_confined(&c, &mut state, WINDOW, WINDOW);
+        advance_confined(&mut c, &mut state, WINDOW, WINDOW);
         let t = WINDOW as f64 * s.dt_s;
         for (i, ax) in axial.iter_mut().enumerate() {
             let dz = state.unwrapped(i, &s.sim_box)[2] - before.unwrapped(i, &s.sim_box)[2];

@@ -7,11 +7,13 @@ use super::{check, Area, Comparison, Group, Mode, Outcome};
 use crate::direct::{advance_confined, chi_square_flat, mean_se, scenario_from_text, CHI2_19_P001};
 use crate::models;
 use std::path::Path;
+use thicket_engine::obstacles::FixedObstacles;
+use thicket_engine::space::mobility::mean_parallel_mobility;
 use thicket_engine::space::mobility::{
     bevan_prieve_perpendicular, brenner_perpendicular, faxen_parallel,
 };
-use thicket_engine::step::confined::{mean_parallel_mobility, Confinement};
-use thicket_engine::step::kernels::State;
+use thicket_engine::step::State;
+use thicket_engine::step::Stepper;
 use thicket_engine::Scenario;
 
 /// Free diffusivity of the confined tracers: 1e8 nm²/s (1e-10 m²/s).
@@ -63,9 +65,10 @@ pub(super) fn confined_scenario(
 }
 
 /// The prepared kernels of a confined scenario.
-pub(super) fn confinement(s: &Scenario) -> Result<Confinement, String> {
+pub(super) fn confinement(s: &Scenario) -> Result<Stepper, String> {
     let g = s.geometry.as_ref().ok_or("the scenario has no geometry")?;
-    Ok(Confinement::new(s, g))
+    let _ = g;
+    Ok(Stepper::new(s, &FixedObstacles::default()))
 }
 
 fn formulas(_mode: Mode, _dir: &Path) -> Outcome {
@@ -123,7 +126,7 @@ fn plane_wall(mode: Mode, _dir: &Path) -> Outcome {
         lag * windows as u64,
         geometry,
     )?;
-    let c = confinement(&s)?;
+    let mut c = confinement(&s)?;
     let mut state = c.initial_state(&s).map_err(|e| e.to_string())?;
     // Per height bin: Σ Δz, Σ Δz², Σ (Δx² + Δy²), samples.
     let mut bins = vec![[0.0f64; 4]; heights.len()];
@@ -193,7 +196,7 @@ fn slit(mode: Mode, _dir: &Path) -> Outcome {
     let (count, steps, windows) = mode.pick((6_000usize, 12_000u64, 4u64), (16_000, 15_000, 5));
     let geometry = "kind = \"slit\"\nwall_hydrodynamics = true";
     let s = confined_scenario(11, [60.0, 60.0, W], A, count, 0.025, steps, geometry)?;
-    let run = |c: &Confinement| -> Result<(Vec<u64>, Vec<f64>), String> {
+    let run = |c: &mut Stepper| -> Result<(Vec<u64>, Vec<f64>), String> {
         let mut state = c.initial_state(&s).map_err(|e| e.to_string())?;
         let mut lateral = vec![0.0; count];
         let window = steps / windows;
@@ -218,9 +221,9 @@ fn slit(mode: Mode, _dir: &Path) -> Outcome {
         }
         Ok((histogram, lateral))
     };
-    let c = confinement(&s)?;
-    let (histogram, lateral) = run(&c)?;
-    let (without, _) = run(&confinement(&s)?.without_ito_drift())?;
+    let mut c = confinement(&s)?;
+    let (histogram, lateral) = run(&mut c)?;
+    let (without, _) = run(&mut confinement(&s)?.without_ito_drift())?;
     let chi2 = chi_square_flat(&histogram);
     let chi2_off = chi_square_flat(&without);
     // Partition coefficient: mean concentration over the gap over that in its central half.

@@ -18,7 +18,7 @@ use crate::base::error::{EngineError, Result};
 use crate::base::rng::ParticleRng;
 use crate::obstacles::spheres::FixedObstacles;
 use crate::scenario::config::{Precision, Scenario};
-use crate::step::kernels::State;
+use crate::step::state::State;
 use hdf5::types::FixedAscii;
 use hdf5::{Dataset, File, Group, Location};
 use ndarray::{s, Array1, Array3};
@@ -250,6 +250,11 @@ impl TrajectoryWriter {
     }
 
     /// Frames written so far.
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+
+    /// Frames written so far.
     pub fn frames(&self) -> usize {
         self.frames
     }
@@ -468,9 +473,11 @@ pub fn checkpoint_path(trajectory: &Path) -> PathBuf {
     PathBuf::from(s)
 }
 
-const CHECKPOINT_MAGIC: &[u8; 8] = b"THKTCK02";
+const CHECKPOINT_MAGIC: &[u8; 8] = b"THKTCK03";
 /// Magic of the format before checksums, recognised only to say so.
 const CHECKPOINT_MAGIC_V1: &[u8; 8] = b"THKTCK01";
+/// Magic of the format before observers saved their parts, recognised only to say so.
+const CHECKPOINT_MAGIC_V2: &[u8; 8] = b"THKTCK02";
 /// Header: magic, frames, step, particle count, scenario length.
 const CHECKPOINT_HEADER: usize = 8 + 4 * 8;
 /// Bytes per particle: position (3 × f64), image (3 × i32), generator (4 × u64).
@@ -496,6 +503,8 @@ pub struct Checkpoint {
     pub resolved_toml: String,
     /// Particle state.
     pub state: State,
+    /// Each observer's part, by name (text it wrote and reads back).
+    pub parts: Vec<(String, String)>,
 }
 
 impl Checkpoint {
@@ -536,6 +545,13 @@ impl Checkpoint {
         for g in &self.state.rngs {
             for w in g.state() {
                 buf.extend_from_slice(&w.to_le_bytes());
+            }
+        }
+        buf.extend_from_slice(&(self.parts.len() as u64).to_le_bytes());
+        for (name, text) in &self.parts {
+            for s in [name, text] {
+                buf.extend_from_slice(&(s.len() as u64).to_le_bytes());
+                buf.extend_from_slice(s.as_bytes());
             }
         }
         let sum = fnv1a64(&buf);
@@ -581,6 +597,11 @@ impl Checkpoint {
         };
         match bytes.get(..8) {
             Some(m) if m == CHECKPOINT_MAGIC.as_slice() => {}
+            Some(m) if m == CHECKPOINT_MAGIC_V2.as_slice() => {
+                return Err(fail(
+                    "the checkpoint was written by an older thicket (before observer parts); start the run again with --force".into(),
+                ))
+            }
             Some(m) if m == CHECKPOINT_MAGIC_V1.as_slice() => {
                 return Err(fail(
                     "the checkpoint was written by an older thicket without checksums; start the run again with --force".into(),
@@ -609,7 +630,10 @@ impl Checkpoint {
         // Sizes are checked against the bytes present before any allocation.
         let n = usize::try_from(n)
             .ok()
-            .filter(|&n| n.checked_mul(CHECKPOINT_PER_PARTICLE) == Some(body.len() - r.at))
+            .filter(|&n| {
+                n.checked_mul(CHECKPOINT_PER_PARTICLE)
+                    .is_some_and(|b| b <= body.len() - r.at)
+            })
             .ok_or_else(|| damaged("its particle count does not match its size"))?;
         let mut positions = Vec::with_capacity(n);
         for i in 0..n {
@@ -634,7 +658,23 @@ impl Checkpoint {
             }
             rngs.push(ParticleRng::from_state(words));
         }
+        let count = r.u64().ok_or_else(short)?;
+        let mut parts = Vec::new();
+        for _ in 0..count {
+            let mut text = || -> Option<String> {
+                let len = usize::try_from(r.u64()?).ok()?;
+                String::from_utf8(r.take(len)?.to_vec()).ok()
+            };
+            let (Some(name), Some(part)) = (text(), text()) else {
+                return Err(damaged("an observer's part is truncated or not text"));
+            };
+            parts.push((name, part));
+        }
+        if r.at != body.len() {
+            return Err(damaged("its particle count does not match its size"));
+        }
         Ok(Self {
+            parts,
             frames,
             resolved_toml,
             state: State {

@@ -4,10 +4,11 @@
 use crate::base::error::{EngineError, Result};
 use crate::io::lock::OutputLock;
 use crate::io::trajectory::{checkpoint_path, recorded_steps, Checkpoint, TrajectoryWriter};
-use crate::obstacles::spheres::FixedObstacles;
-use crate::scenario::config::Scenario;
-use crate::step::confined::{sidecar_path, ConfinedRun};
-use crate::step::kernels::{Dynamics, State};
+use crate::obstacles::FixedObstacles;
+use crate::run::observe::{Frames, Observer, Progress, WallsAndBaths};
+use crate::scenario::Scenario;
+use crate::step::pipeline::Stepper;
+use crate::step::state::State;
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::Instant;
@@ -65,17 +66,25 @@ pub fn run(
     check_parent(out)?;
     // Held to the end: a second run on this output (with --force or --resume) is refused.
     let _lock = OutputLock::acquire(out)?;
-    // Walls, pores and membranes have their own kernels and measurements (confined.rs).
-    let mut confined = scenario
-        .geometry
-        .as_ref()
-        .map(|g| ConfinedRun::new(scenario, g, &obstacles));
-    // Crowders in a slit or pore step with the crowd kernel, which knows the walls itself;
-    // otherwise one of the two kernels steps, and only it is built.
-    let mut dynamics = (confined.is_none() || scenario.has_crowders())
-        .then(|| Dynamics::new(scenario, &obstacles));
+    let mut stepper = Stepper::new(scenario, &obstacles);
+    let mut observers: Vec<Box<dyn Observer + '_>> = vec![Box::new(Frames)];
+    if let Some(g) = &scenario.geometry {
+        observers.push(Box::new(WallsAndBaths::new(scenario, g)));
+    }
+    observers.push(Box::new(Progress {
+        report: progress,
+        steps: scenario.steps,
+    }));
     let (mut state, mut writer) = if options.resume {
-        resume_state(scenario, out, &ckpt_path)?
+        let (state, mut writer, parts) = resume_state(scenario, out, &ckpt_path)?;
+        for o in &mut observers {
+            let part = parts
+                .iter()
+                .find(|(n, _)| n == o.name())
+                .map(|(_, t)| t.as_str());
+            o.resume(&mut writer, part)?;
+        }
+        (state, writer)
     } else {
         if out.exists() {
             if !options.force {
@@ -87,57 +96,47 @@ pub fn run(
             })?;
         }
         let _ = std::fs::remove_file(&ckpt_path);
-        let state = match (&dynamics, &confined) {
-            (Some(d), _) => d.initial_state(scenario)?,
-            (None, Some(c)) => c.initial_state(scenario)?,
-            (None, None) => unreachable!("a run has a kernel"),
-        };
+        let state = stepper.initial_state(scenario)?;
         let mut writer = TrajectoryWriter::create(out, scenario)?;
         writer.write_obstacles(&obstacles, scenario)?;
-        writer.write_frame(&state, 0.0)?;
+        for o in &mut observers {
+            o.start(&mut writer, &stepper, &state)?;
+        }
         writer.flush()?;
         (state, writer)
     };
-    if let (Some(c), Some(g)) = (confined.as_mut(), &scenario.geometry) {
-        if options.resume {
-            c.resume(&writer, scenario, &ckpt_path, state.step)?;
-        } else {
-            let _ = std::fs::remove_file(sidecar_path(&ckpt_path));
-            c.start(&writer, scenario, g)?;
-            c.record(&state, 0.0)?;
-            writer.flush()?;
-        }
-    }
 
     let record = scenario.output.record_every_steps;
     let n = scenario.particle_count() as u64;
-    // Confined kernels cost about what obstructed ones do.
-    let cost = dynamics.as_ref().map_or(2, Dynamics::relative_cost);
-    let block = (BLOCK_PARTICLE_STEPS / cost / n.max(1)).clamp(1, record);
+    let block = (BLOCK_PARTICLE_STEPS / stepper.relative_cost() / n.max(1)).clamp(1, record);
     let mut last_checkpoint = Instant::now();
-    let save = |state: &State, writer: &TrajectoryWriter| -> Result<()> {
+    // One checkpoint: the state, the frames on disk and every observer's part.
+    let save = |state: &State,
+                writer: &TrajectoryWriter,
+                observers: &[Box<dyn Observer + '_>]|
+     -> Result<()> {
         writer.flush()?;
+        let mut parts = Vec::new();
+        for o in observers {
+            if let Some(text) = o.save()? {
+                parts.push((o.name().to_string(), text));
+            }
+        }
         Checkpoint {
             frames: writer.frames() as u64,
             resolved_toml: scenario.resolved_toml.clone(),
             state: state.clone(),
+            parts,
         }
         .save(&ckpt_path)
     };
     if !options.resume {
         // From the first frame on, a killed run can be resumed.
-        if let Some(c) = &confined {
-            c.save(&ckpt_path, state.step)?;
-        }
-        save(&state, &writer)?;
+        save(&state, &writer, &observers)?;
     }
-    progress(state.step, scenario.steps);
     while state.step < scenario.steps {
         if stop.load(Ordering::Relaxed) {
-            if let Some(c) = &confined {
-                c.save(&ckpt_path, state.step)?;
-            }
-            save(&state, &writer)?;
+            save(&state, &writer, &observers)?;
             return Ok(RunOutcome::Interrupted {
                 step: state.step,
                 frames: writer.frames() as u64,
@@ -146,34 +145,28 @@ pub fn run(
         // Never step past the next frame, so frames land exactly on multiples of `record`.
         let to_frame = record - state.step % record;
         let steps = block.min(to_frame);
-        match (dynamics.as_mut(), confined.as_mut()) {
-            (Some(d), _) => d.advance(&mut state, steps),
-            (None, Some(c)) => c.advance(&mut state, steps),
-            (None, None) => unreachable!("a run has a kernel"),
+        let events = stepper.advance(&mut state, steps);
+        for o in &mut observers {
+            o.block(&state, &events);
         }
         if state.step % record == 0 {
-            writer.write_frame(&state, state.step as f64 * scenario.dt_s)?;
-            if let Some(c) = confined.as_mut() {
-                c.record(&state, state.step as f64 * scenario.dt_s)?;
+            let time_s = state.step as f64 * scenario.dt_s;
+            for o in &mut observers {
+                o.frame(&mut writer, &stepper, &state, time_s)?;
             }
         }
         if last_checkpoint.elapsed().as_secs_f64() >= scenario.output.checkpoint_interval_s {
-            if let Some(c) = &confined {
-                c.save(&ckpt_path, state.step)?;
-            }
-            save(&state, &writer)?;
+            save(&state, &writer, &observers)?;
             last_checkpoint = Instant::now();
         }
-        progress(state.step, scenario.steps);
     }
-    if let Some(c) = &confined {
-        c.finish(&writer, scenario, state.step)?;
+    for o in &mut observers {
+        o.finish(&mut writer, &stepper, &state)?;
     }
     writer.flush()?;
     let frames = writer.frames() as u64;
     drop(writer);
     let _ = std::fs::remove_file(&ckpt_path);
-    let _ = std::fs::remove_file(sidecar_path(&ckpt_path));
     Ok(RunOutcome::Completed { frames })
 }
 
@@ -195,7 +188,7 @@ fn resume_state(
     scenario: &Scenario,
     out: &Path,
     ckpt_path: &Path,
-) -> Result<(State, TrajectoryWriter)> {
+) -> Result<(State, TrajectoryWriter, Vec<(String, String)>)> {
     if !out.exists() {
         return Err(EngineError::Resume {
             file: out.to_path_buf(),
@@ -222,7 +215,7 @@ fn resume_state(
     }
     check_against(&ckpt, scenario, out, ckpt_path)?;
     let writer = TrajectoryWriter::reopen(out, scenario, ckpt.frames as usize)?;
-    Ok((ckpt.state, writer))
+    Ok((ckpt.state, writer, ckpt.parts))
 }
 
 /// Cross-checks a checkpoint against the scenario and the trajectory before

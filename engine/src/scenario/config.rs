@@ -75,7 +75,7 @@ pub struct RawScenario {
     /// Fixed fibres.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub fibres: Option<RawFibres>,
-    /// Confinement: walls, slit, cylindrical pore or membrane (see `geometry`).
+    /// Stepper: walls, slit, cylindrical pore or membrane (see `geometry`).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub geometry: Option<RawGeometry>,
 }

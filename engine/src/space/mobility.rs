@@ -16,6 +16,8 @@
 //! series, perpendicular), Bevan & Prieve (2000, closed form, perpendicular),
 //! Cox & Brenner (1967, lubrication limit near contact). See REFERENCES.md.
 
+use crate::space::shape::Shape;
+
 /// Below this z/a the Brenner series converges too slowly (the number of
 /// terms grows like 1/√(z/a − 1)), so [`brenner_perpendicular`] switches to
 /// the lubrication limit [`lubrication_perpendicular`].
@@ -491,6 +493,43 @@ pub fn superpose_two_walls_with_gradient(d1: f64, d1_dz: f64, d2: f64, d2_dz: f6
     let num_dz = d1_dz * d2 + d1 * d2_dz;
     let den_dz = d1_dz + d2_dz - d1_dz * d2 - d1 * d2_dz;
     (num / den, (num_dz * den - num * den_dz) / (den * den))
+}
+
+/// Mean parallel mobility ⟨D∥⟩/D0 over the space open to the centre, in
+/// this engine's wall model (Faxén, two walls superposed in a slit, the
+/// nearest wall in a cylinder): the long-time lateral D_eff/D0 in a slit and
+/// axial D_eff/D0 in a cylindrical pore that a run with wall hydrodynamics
+/// must reproduce exactly (x and z moves there have no drift, and the
+/// equilibrium density is uniform). `None` for membranes.
+///
+/// Evaluated by composite Simpson quadrature with 20 000 intervals.
+pub fn mean_parallel_mobility(shape: &Shape, radius_nm: f64, drag_radius_nm: f64) -> Option<f64> {
+    let table = WallMobilityTable::default();
+    let par = |z: f64| table.eval(z / drag_radius_nm).parallel;
+    let simpson = |lo: f64, hi: f64, f: &dyn Fn(f64) -> f64| -> f64 {
+        let n = 20_000;
+        let h = (hi - lo) / n as f64;
+        let mut s = f(lo) + f(hi);
+        for i in 1..n {
+            s += f(lo + i as f64 * h) * if i % 2 == 1 { 4.0 } else { 2.0 };
+        }
+        s * h / 3.0
+    };
+    let a = radius_nm;
+    match shape {
+        Shape::PlaneWall { height_nm } => {
+            Some(simpson(a, height_nm - a, &|z| par(z)) / (height_nm - 2.0 * a))
+        }
+        Shape::Slit { width_nm } => {
+            let w = *width_nm;
+            Some(simpson(a, w - a, &|z| superpose_two_walls(par(z), par(w - z))) / (w - 2.0 * a))
+        }
+        Shape::Cylinder { radius_nm: r, .. } => {
+            let open = r - a;
+            Some(simpson(0.0, open, &|rho| par(r - rho) * 2.0 * rho) / (open * open))
+        }
+        Shape::Membrane(_) => None,
+    }
 }
 
 #[cfg(test)]

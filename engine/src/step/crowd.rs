@@ -23,14 +23,15 @@
 //! result does not depend on the number of threads.
 
 use crate::base::error::{EngineError, Result};
-use crate::base::rng::{standard_normal, ParticleRng};
+use crate::base::rng::ParticleRng;
 use crate::scenario::config::{Scenario, LATTICE_START_FRACTION};
 use crate::scenario::media::Sweep;
 use crate::space::neighbors::{CellList, DynamicGrid, MinImage, ObstacleGrid, VerletList};
 use crate::space::shape::Shape;
-use crate::space::sim_box::reflect;
 use crate::space::sim_box::SimBox;
-use crate::step::kernels::{Kinetics, State};
+use crate::step::boundary::{Boundary, BoxFaces};
+use crate::step::displacement::{Displacement, Isotropic};
+use crate::step::state::{Kinetics, State};
 use rayon::prelude::*;
 
 /// Particles per rayon task.
@@ -155,7 +156,8 @@ impl Slots {
     }
 }
 
-/// One Gaussian proposal from `g`, wrapped (periodic) or reflected (walls).
+/// One Gaussian proposal from `g`: the same displacement and box faces as
+/// every particle that steps alone (`pipeline`).
 #[inline(always)]
 fn propose(
     p: &[f64; 3],
@@ -164,24 +166,18 @@ fn propose(
     kin: &Kinetics,
     sim_box: &SimBox,
 ) -> ([f64; 3], [i32; 3]) {
-    let mut y = *p;
-    let mut m = *im;
-    for k in 0..3 {
-        y[k] += kin.sigma_nm * standard_normal(g);
-        if sim_box.periodic[k] {
-            let l = sim_box.edges_nm[k];
-            if y[k] >= l {
-                y[k] -= l;
-                m[k] += 1;
-            } else if y[k] < 0.0 {
-                y[k] += l;
-                m[k] -= 1;
-            }
-        } else {
-            y[k] = reflect(y[k], kin.lower_nm[k], kin.upper_nm[k]);
-        }
+    let d = Isotropic {
+        sigma_nm: kin.sigma_nm,
     }
-    (y, m)
+    .draw(p, g);
+    let faces = BoxFaces {
+        periodic: sim_box.periodic,
+        edges_nm: sim_box.edges_nm,
+        lower_nm: kin.lower_nm,
+        upper_nm: kin.upper_nm,
+    };
+    let moved = faces.fold(p, im, [p[0] + d[0], p[1] + d[1], p[2] + d[2]], g, true);
+    (moved.at, moved.image)
 }
 
 impl Crowd {

@@ -1,7 +1,14 @@
 //! Layer 5: taking steps. One pipeline composes a particle's displacement,
-//! the boundary that folds it and the contact rule that accepts it; the
-//! crowd (mobile hard spheres) uses the same pieces in its parallel sweep.
+//! the boundary that folds it and the contact rule that accepts it
+//! (`pipeline`); the crowd (mobile hard spheres) uses the same displacement
+//! and boundary pieces in its parallel sweep.
 
-pub mod confined;
+pub mod boundary;
+pub mod contact;
 pub mod crowd;
-pub mod kernels;
+pub mod displacement;
+pub mod pipeline;
+pub mod state;
+
+pub use pipeline::Stepper;
+pub use state::{Kinetics, State};

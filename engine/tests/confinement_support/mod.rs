@@ -6,7 +6,7 @@
 #![allow(unused_imports)]
 
 use std::path::Path;
-use thicket_engine::step::confined::Confinement;
+use thicket_engine::step::Stepper;
 use thicket_engine::Scenario;
 
 /// Free diffusivity of every test tracer, m²/s: 1e8 nm²/s keeps the numbers simple.
@@ -43,8 +43,8 @@ pub fn scenario(
 }
 
 /// The prepared kernels of a scenario with a geometry.
-pub fn confinement(s: &Scenario) -> Confinement {
-    Confinement::new(s, s.geometry.as_ref().expect("scenario has a geometry"))
+pub fn confinement(s: &Scenario) -> Stepper {
+    Stepper::new(s, &thicket_engine::obstacles::FixedObstacles::default())
 }
 
 /// Runs `f` on a pool of `threads` worker threads.

@@ -11,7 +11,7 @@ use std::path::{Path, PathBuf};
 use thicket_analysis::direct;
 pub use thicket_analysis::direct::{fitted_slope, mean_se, record, ta_msd};
 use thicket_engine::obstacles::spheres::FixedObstacles;
-use thicket_engine::step::kernels::{Dynamics, State};
+use thicket_engine::step::{State, Stepper};
 use thicket_engine::Scenario;
 
 /// A validated scenario from TOML text.
@@ -21,9 +21,9 @@ pub fn scenario(text: &str) -> Scenario {
 }
 
 /// Obstacles, kernel and initial state of a scenario.
-pub fn prepare(sc: &Scenario) -> (FixedObstacles, Dynamics, State) {
+pub fn prepare(sc: &Scenario) -> (FixedObstacles, Stepper, State) {
     let obstacles = FixedObstacles::build(sc).expect("placement");
-    let dynamics = Dynamics::new(sc, &obstacles);
+    let dynamics = Stepper::new(sc, &obstacles);
     let state = dynamics.initial_state(sc).expect("initial state");
     (obstacles, dynamics, state)
 }

@@ -1,0 +1,308 @@
+//! Observers: everything that watches a run. The driver calls each at the
+//! start (or on resume), after every block of steps, at every recorded
+//! frame and at the end; each saves its own part of the one checkpoint.
+//! A stepper never knows who watches it.
+
+use crate::base::error::{EngineError, Result};
+use crate::io::trajectory::{write_attributes, AttrValue, ObservableSeries, TrajectoryWriter};
+use crate::run::membrane::{geometry_attributes, MembraneMeter, MEMBRANE_COLUMNS};
+use crate::scenario::geometry::Geometry;
+use crate::scenario::Scenario;
+use crate::space::shape::Shape;
+use crate::step::boundary::Counts;
+use crate::step::pipeline::Stepper;
+use crate::step::state::State;
+
+/// One watcher of a run.
+pub trait Observer {
+    /// Name of its part in the checkpoint.
+    fn name(&self) -> &'static str;
+
+    /// A new trajectory: records what it records at step 0.
+    ///
+    /// # Errors
+    /// HDF5 failures.
+    fn start(
+        &mut self,
+        _w: &mut TrajectoryWriter,
+        _stepper: &Stepper,
+        _state: &State,
+    ) -> Result<()> {
+        Ok(())
+    }
+
+    /// A resumed run: restores its `part` of the checkpoint (None when it saved none).
+    ///
+    /// # Errors
+    /// A missing or damaged part; HDF5 failures.
+    fn resume(&mut self, _w: &mut TrajectoryWriter, _part: Option<&str>) -> Result<()> {
+        Ok(())
+    }
+
+    /// After every block of steps, with the block's events per species.
+    fn block(&mut self, _state: &State, _events: &[Counts]) {}
+
+    /// At every recorded frame.
+    ///
+    /// # Errors
+    /// HDF5 failures.
+    fn frame(
+        &mut self,
+        _w: &mut TrajectoryWriter,
+        _stepper: &Stepper,
+        _state: &State,
+        _time_s: f64,
+    ) -> Result<()> {
+        Ok(())
+    }
+
+    /// Its part of the checkpoint, if it keeps state.
+    ///
+    /// # Errors
+    /// Serialisation failures.
+    fn save(&self) -> Result<Option<String>> {
+        Ok(None)
+    }
+
+    /// At the end of a completed run.
+    ///
+    /// # Errors
+    /// HDF5 failures.
+    fn finish(
+        &mut self,
+        _w: &mut TrajectoryWriter,
+        _stepper: &Stepper,
+        _state: &State,
+    ) -> Result<()> {
+        Ok(())
+    }
+}
+
+/// Writes the particles' positions and images at every recorded frame.
+pub struct Frames;
+
+impl Observer for Frames {
+    fn name(&self) -> &'static str {
+        "frames"
+    }
+
+    fn start(&mut self, w: &mut TrajectoryWriter, _stepper: &Stepper, state: &State) -> Result<()> {
+        w.write_frame(state, 0.0)
+    }
+
+    fn frame(
+        &mut self,
+        w: &mut TrajectoryWriter,
+        _stepper: &Stepper,
+        state: &State,
+        time_s: f64,
+    ) -> Result<()> {
+        w.write_frame(state, time_s)
+    }
+}
+
+/// Reports the step reached after every block.
+pub struct Progress<'a> {
+    /// Called with (step, steps).
+    pub report: &'a mut dyn FnMut(u64, u64),
+    /// Steps of the run.
+    pub steps: u64,
+}
+
+impl Observer for Progress<'_> {
+    fn name(&self) -> &'static str {
+        "progress"
+    }
+
+    fn start(
+        &mut self,
+        _w: &mut TrajectoryWriter,
+        _stepper: &Stepper,
+        state: &State,
+    ) -> Result<()> {
+        (self.report)(state.step, self.steps);
+        Ok(())
+    }
+
+    fn resume(&mut self, _w: &mut TrajectoryWriter, _part: Option<&str>) -> Result<()> {
+        Ok(())
+    }
+
+    fn block(&mut self, state: &State, _events: &[Counts]) {
+        (self.report)(state.step, self.steps);
+    }
+}
+
+/// A confined run's record: the geometry's parameters, and in a membrane the
+/// flux meter with its per-frame series and end-of-run summary.
+pub struct WallsAndBaths<'a> {
+    scenario: &'a Scenario,
+    geometry: &'a Geometry,
+    meter: MembraneMeter,
+    series: Vec<ObservableSeries>,
+}
+
+impl<'a> WallsAndBaths<'a> {
+    /// The observer of a scenario with a geometry.
+    pub fn new(scenario: &'a Scenario, geometry: &'a Geometry) -> Self {
+        Self {
+            scenario,
+            geometry,
+            meter: MembraneMeter::new(scenario.species.len()),
+            series: Vec::new(),
+        }
+    }
+
+    fn is_membrane(&self) -> bool {
+        matches!(self.geometry.shape, Shape::Membrane(_))
+    }
+}
+
+impl Observer for WallsAndBaths<'_> {
+    fn name(&self) -> &'static str {
+        "membrane_meter"
+    }
+
+    fn start(&mut self, w: &mut TrajectoryWriter, stepper: &Stepper, state: &State) -> Result<()> {
+        write_attributes(
+            w,
+            "parameters/thicket/geometry",
+            &geometry_attributes(self.scenario, self.geometry),
+        )?;
+        if self.is_membrane() {
+            for s in &self.scenario.species {
+                self.series.push(ObservableSeries::create(
+                    w,
+                    &format!("{}/membrane", s.name),
+                    &MEMBRANE_COLUMNS,
+                    "1",
+                )?);
+            }
+        }
+        self.frame(w, stepper, state, 0.0)
+    }
+
+    fn resume(&mut self, w: &mut TrajectoryWriter, part: Option<&str>) -> Result<()> {
+        let fail = |reason: String| EngineError::Resume {
+            file: w.path().to_path_buf(),
+            reason,
+        };
+        let text = part.ok_or_else(|| fail("the checkpoint holds no membrane counters".into()))?;
+        let meter: MembraneMeter = toml::from_str(text).map_err(|e| {
+            fail(format!(
+                "the checkpoint's membrane counters are damaged ({e})"
+            ))
+        })?;
+        if meter.totals.len() != self.scenario.species.len() {
+            return Err(fail(
+                "the checkpoint's membrane counters belong to a scenario with another number of species".into(),
+            ));
+        }
+        self.meter = meter;
+        if self.is_membrane() {
+            for s in &self.scenario.species {
+                self.series.push(ObservableSeries::reopen(
+                    w,
+                    &format!("{}/membrane", s.name),
+                    MEMBRANE_COLUMNS.len(),
+                    w.frames(),
+                )?);
+            }
+        }
+        Ok(())
+    }
+
+    fn block(&mut self, _state: &State, events: &[Counts]) {
+        self.meter.add(events);
+    }
+
+    /// One row of counts and occupancies per species, and the steady-state window.
+    fn frame(
+        &mut self,
+        _w: &mut TrajectoryWriter,
+        stepper: &Stepper,
+        state: &State,
+        time_s: f64,
+    ) -> Result<()> {
+        let Some(occupancy) = stepper.occupancy(state) else {
+            return Ok(());
+        };
+        self.meter
+            .observe(state.step, time_s, self.geometry.flux_after_s, &occupancy);
+        for ((series, c), o) in self
+            .series
+            .iter_mut()
+            .zip(&self.meter.totals)
+            .zip(&occupancy)
+        {
+            let row = [
+                c.exits_bottom,
+                c.exits_top,
+                c.entries_bottom,
+                c.entries_top,
+                c.crossings_down,
+                c.crossings_up,
+                c.rejected_moves,
+                o.pores,
+                o.top,
+                o.bottom,
+            ]
+            .map(|v| v as i64);
+            series.append(state.step, time_s, &row)?;
+        }
+        Ok(())
+    }
+
+    fn save(&self) -> Result<Option<String>> {
+        toml::to_string(&self.meter)
+            .map(Some)
+            .map_err(|e| EngineError::Io {
+                file: "membrane counters".into(),
+                source: std::io::Error::other(e.to_string()),
+            })
+    }
+
+    /// The steady-state summary of each species as attributes of
+    /// `/observables/<species>/membrane`.
+    fn finish(&mut self, w: &mut TrajectoryWriter, stepper: &Stepper, state: &State) -> Result<()> {
+        let scenario = self.scenario;
+        for (s, sp) in scenario.species.iter().enumerate() {
+            let Some(r) = self.meter.summary(stepper, scenario, s, state.step) else {
+                continue;
+            };
+            let f = AttrValue::F64;
+            let attrs = [
+                ("window_start_s", f(r.window_s[0])),
+                ("window_end_s", f(r.window_s[1])),
+                ("net_crossings_down", AttrValue::I64(r.net_crossings_down)),
+                ("flux_particles_per_s", f(r.flux_particles_per_s)),
+                ("simulated_top_bath_density_per_nm3", f(r.bath_density_per_nm3[1])),
+                ("simulated_bottom_bath_density_per_nm3", f(r.bath_density_per_nm3[0])),
+                ("concentration_scale", f(r.concentration_scale)),
+                ("permeability_m_per_s", f(r.permeability_m_per_s)),
+                ("flux_density_at_given_concentrations_mol_per_m2_s", f(r.flux_density_at_given_mol_per_m2_s)),
+                ("membrane_permeability_m_per_s", f(r.membrane_permeability_m_per_s)),
+                ("hindrance_measured", f(r.hindrance)),
+                ("porosity", f(r.porosity)),
+                ("partition_coefficient_steric", f(r.steric_partition)),
+                ("mean_particles_in_pores", f(r.mean_particles_in_pores)),
+                ("mean_particles_in_top_reservoir", f(r.mean_particles_in_top_reservoir)),
+                ("mean_particles_in_bottom_reservoir", f(r.mean_particles_in_bottom_reservoir)),
+                ("pore_concentration_over_mean_bath", f(r.pore_concentration_over_mean_bath)),
+                ("rejected_moves", AttrValue::I64(r.rejected_moves as i64)),
+                (
+                    "definitions",
+                    AttrValue::Str(
+                        "J = net mid-plane crossings downward per second; simulated bath densities from emissions (c = emitted sqrt(2 pi)/(A sigma steps)); \
+                         permeability = J/A/(c_top - c_bottom); membrane_permeability removes the two reservoir layers H/D0; \
+                         hindrance_measured = membrane_permeability L/(porosity D0); tracers do not interact, so fluxes scale to the given \
+                         concentrations: flux_density_at_given_concentrations = permeability (c_top - c_bottom) as given"
+                            .into(),
+                    ),
+                ),
+            ];
+            write_attributes(w, &format!("observables/{}/membrane", sp.name), &attrs)?;
+        }
+        Ok(())
+    }
+}

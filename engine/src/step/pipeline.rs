@@ -1,0 +1,656 @@
+//! One step pipeline: displacement × boundary × contact, composed per
+//! species with static dispatch, and [`Stepper`], which builds it from a
+//! scenario and advances the state (or hands mobile crowders to the crowd).
+//!
+//! Particles that do not interact run through a whole block of steps each
+//! on their own random stream (particle-major): results do not depend on the
+//! number of threads, and event counts are integer sums. Adding a force or a
+//! flow is a change to the displacement; a new wall is a new boundary; a new
+//! contact rule is a new contact.
+
+use crate::base::error::{EngineError, Result};
+use crate::base::rng::ParticleRng;
+use crate::obstacles::FixedObstacles;
+use crate::scenario::geometry::Geometry;
+use crate::scenario::Scenario;
+use crate::space::mobility::{
+    superpose_two_walls, superpose_two_walls_with_gradient, PerpendicularModel, WallMobilityTable,
+};
+use crate::space::neighbors::{Blocker, ObstacleGrid};
+use crate::space::shape::Shape;
+use crate::space::SimBox;
+use crate::step::boundary::{
+    Baths, Boundary, BoxFaces, Counts, Events, Pore, Slab, Walls, PLACEMENT_ATTEMPTS,
+};
+use crate::step::contact::{Contact, NoContact, Reject};
+use crate::step::crowd::{place_crowd, Crowd};
+use crate::step::displacement::{Displacement, Isotropic, MobilityTable, NearestWall, PlanarWalls};
+use crate::step::state::{draw_starts, kinetics, Kinetics, State};
+use rayon::prelude::*;
+
+/// Particles stepped together when each step waits on the previous position.
+const LANES: usize = 8;
+/// Particles per rayon task: free particles in the box.
+const FREE_CHUNK: usize = 2048;
+/// Particles per rayon task among obstacles: each runs a whole block of
+/// steps, so small tasks already amortise scheduling and keep both cores busy.
+const OBSTRUCTED_CHUNK: usize = 256;
+/// Particles per rayon task between walls.
+const WALLED_CHUNK: usize = 1024;
+
+/// Attempts allowed to find an open starting point for one tracer among
+/// fixed obstacles before its species is declared unable to fit.
+pub const OPEN_START_ATTEMPTS: u64 = 1_000_000;
+
+/// One particle's step: propose, fold at the boundary, accept or keep.
+#[inline(always)]
+fn one_step<D: Displacement, B: Boundary, C: Contact>(
+    d: &D,
+    b: &B,
+    c: &C,
+    x: &mut [f64; 3],
+    n: &mut [i32; 3],
+    g: &mut ParticleRng,
+    memo: &mut C::Memo,
+    events: &mut B::Events,
+) {
+    let dx = d.draw(x, g);
+    let y = [x[0] + dx[0], x[1] + dx[1], x[2] + dx[2]];
+    let moved = b.fold(x, n, y, g, D::SYMMETRIC);
+    if c.accepts(&moved.at, memo) {
+        *x = moved.at;
+        *n = moved.image;
+        *events += moved.events;
+    }
+}
+
+/// Runs `steps` steps over a chunk of particles, `K` at a time: each step
+/// of one particle is followed by the same step of the next K − 1, so that
+/// independent chains of dependent operations overlap in the processor.
+/// Each particle draws from its own stream in the same order as alone, so K
+/// changes speed, never results.
+#[inline(always)]
+fn lanes<const K: usize, D: Displacement, B: Boundary, C: Contact>(
+    (d, b, c): (&D, &B, &C),
+    p: &mut [[f64; 3]],
+    im: &mut [[i32; 3]],
+    g: &mut [ParticleRng],
+    steps: u64,
+) -> B::Events {
+    let mut ev = B::Events::default();
+    let mut pg = p.chunks_exact_mut(K);
+    let mut ig = im.chunks_exact_mut(K);
+    let mut gg = g.chunks_exact_mut(K);
+    for ((p, im), g) in (&mut pg).zip(&mut ig).zip(&mut gg) {
+        let mut x: [[f64; 3]; K] = p.try_into().expect("a chunk of K");
+        let mut n: [[i32; 3]; K] = im.try_into().expect("a chunk of K");
+        let mut memo: [C::Memo; K] = std::array::from_fn(|j| c.memo(&x[j]));
+        for _ in 0..steps {
+            for j in 0..K {
+                one_step(
+                    d,
+                    b,
+                    c,
+                    &mut x[j],
+                    &mut n[j],
+                    &mut g[j],
+                    &mut memo[j],
+                    &mut ev,
+                );
+            }
+        }
+        p.copy_from_slice(&x);
+        im.copy_from_slice(&n);
+    }
+    for ((p, im), g) in pg
+        .into_remainder()
+        .iter_mut()
+        .zip(ig.into_remainder().iter_mut())
+        .zip(gg.into_remainder().iter_mut())
+    {
+        let (mut x, mut n) = (*p, *im);
+        let mut memo = c.memo(&x);
+        for _ in 0..steps {
+            one_step(d, b, c, &mut x, &mut n, g, &mut memo, &mut ev);
+        }
+        *p = x;
+        *im = n;
+    }
+    ev
+}
+
+/// Advances the particles of one species by `steps` steps in parallel
+/// chunks of `chunk`; returns the events summed over them.
+pub fn advance_species<D: Displacement, B: Boundary, C: Contact>(
+    pieces: (&D, &B, &C),
+    state: &mut State,
+    range: std::ops::Range<usize>,
+    steps: u64,
+    chunk: usize,
+) -> Counts {
+    let pos = &mut state.positions[range.clone()];
+    let img = &mut state.images[range.clone()];
+    let rng = &mut state.rngs[range];
+    pos.par_chunks_mut(chunk)
+        .zip(img.par_chunks_mut(chunk))
+        .zip(rng.par_chunks_mut(chunk))
+        .map(|((p, im), g)| {
+            if D::INTERLEAVE {
+                lanes::<LANES, D, B, C>(pieces, p, im, g, steps)
+            } else {
+                lanes::<1, D, B, C>(pieces, p, im, g, steps)
+            }
+        })
+        .reduce(B::Events::default, |mut a, b| {
+            a += b;
+            a
+        })
+        .counts()
+}
+
+/// The box faces of one species.
+fn box_faces(kin: &Kinetics, sim_box: &SimBox) -> BoxFaces {
+    BoxFaces {
+        periodic: sim_box.periodic,
+        edges_nm: sim_box.edges_nm,
+        lower_nm: kin.lower_nm,
+        upper_nm: kin.upper_nm,
+    }
+}
+
+/// Advances free (non-interacting) particles by `steps` steps: the box's
+/// faces and nothing else.
+pub fn advance_free(state: &mut State, kinetics: &[Kinetics], sim_box: &SimBox, steps: u64) {
+    for kin in kinetics {
+        let d = Isotropic {
+            sigma_nm: kin.sigma_nm,
+        };
+        let b = box_faces(kin, sim_box);
+        advance_species(
+            (&d, &b, &NoContact),
+            state,
+            kin.range.clone(),
+            steps,
+            FREE_CHUNK,
+        );
+    }
+    state.step += steps;
+}
+
+/// Advances non-interacting particles among fixed obstacles by `steps`
+/// steps, rejecting moves into them; `blockers[s]` answers for species s.
+pub fn advance_obstructed<B: Blocker>(
+    state: &mut State,
+    kinetics: &[Kinetics],
+    blockers: &[B],
+    sim_box: &SimBox,
+    steps: u64,
+) {
+    for (kin, blocker) in kinetics.iter().zip(blockers) {
+        let d = Isotropic {
+            sigma_nm: kin.sigma_nm,
+        };
+        let b = box_faces(kin, sim_box);
+        let c = Reject { blocker };
+        advance_species(
+            (&d, &b, &c),
+            state,
+            kin.range.clone(),
+            steps,
+            OBSTRUCTED_CHUNK,
+        );
+    }
+    state.step += steps;
+}
+
+/// How one species' particles are displaced.
+#[derive(Debug, Clone)]
+enum Move {
+    Free(Isotropic),
+    Planar(PlanarWalls),
+    Nearest(NearestWall),
+}
+
+/// What folds one species' moves.
+#[derive(Debug, Clone)]
+enum Fold {
+    Box(BoxFaces),
+    Slab(Slab),
+    Pore(Pore),
+    Baths(Baths),
+}
+
+/// The composed pipeline of one species.
+#[derive(Debug, Clone)]
+struct Pipeline {
+    kinetics: Kinetics,
+    radius_nm: f64,
+    displacement: Move,
+    boundary: Fold,
+}
+
+/// The step of a scenario: per-species pipelines for particles that do not
+/// interact, or the crowd when some species is a crowder.
+#[derive(Debug, Clone)]
+pub struct Stepper {
+    sim_box: SimBox,
+    kinetics: Vec<Kinetics>,
+    geometry: Option<Geometry>,
+    pipelines: Vec<Pipeline>,
+    /// Fixed obstacles as seen by each species' centre (empty without obstacles).
+    grids: Vec<ObstacleGrid>,
+    crowd: Option<Box<Crowd>>,
+}
+
+/// Particles of one species in each region of a membrane at one instant.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct Occupancy {
+    /// Centres inside a pore, within the slab.
+    pub pores: u64,
+    /// Centres above the slab.
+    pub top: u64,
+    /// Centres below the slab.
+    pub bottom: u64,
+}
+
+/// D∥/D0, D⊥/D0 and a·dD⊥/dz of one plane wall at centre distance `z_nm`,
+/// for a sphere of drag radius `drag_nm` (Faxén; Brenner or Bevan–Prieve).
+fn single_wall(table: &WallMobilityTable, z_nm: f64, drag_nm: f64) -> (f64, f64, f64) {
+    let m = table.eval(z_nm / drag_nm);
+    (m.parallel, m.perpendicular, m.d_perpendicular_dz_times_a)
+}
+
+impl Stepper {
+    /// Builds the step of `scenario` among its fixed `obstacles`.
+    pub fn new(scenario: &Scenario, obstacles: &FixedObstacles) -> Self {
+        let kinetics = kinetics(scenario);
+        let geometry = scenario.geometry.clone();
+        let wall_table = geometry
+            .as_ref()
+            .and_then(|g| g.hydrodynamics)
+            .map(WallMobilityTable::new);
+        let pipelines = scenario
+            .species
+            .iter()
+            .zip(&kinetics)
+            .map(|(s, kin)| {
+                let a = s.radius_nm;
+                let sigma = kin.sigma_nm;
+                let free = Isotropic { sigma_nm: sigma };
+                let Some(geometry) = &geometry else {
+                    return Pipeline {
+                        kinetics: kin.clone(),
+                        radius_nm: a,
+                        displacement: Move::Free(free),
+                        boundary: Fold::Box(box_faces(kin, &scenario.sim_box)),
+                    };
+                };
+                let table = wall_table
+                    .as_ref()
+                    .map(|wt| mobility_table(wt, &geometry.shape, a, s.drag_radius_nm, sigma));
+                let edges = scenario.sim_box.edges_nm;
+                let displacement = match (&table, &geometry.shape) {
+                    (None, _) => Move::Free(free),
+                    (Some(t), Shape::PlaneWall { .. } | Shape::Slit { .. }) => {
+                        Move::Planar(PlanarWalls {
+                            table: t.clone(),
+                            lower_nm: a,
+                            upper_nm: edges[2] - a,
+                            two_walls: matches!(geometry.shape, Shape::Slit { .. }),
+                            ito_drift: true,
+                        })
+                    }
+                    (Some(t), shape) => Move::Nearest(NearestWall {
+                        shape: shape.clone(),
+                        table: t.clone(),
+                        radius_nm: a,
+                        divergence_cap_per_nm: 1.0 / sigma,
+                        ito_drift: true,
+                    }),
+                };
+                let bath_sigma_nm = match (&geometry.shape, &table) {
+                    (Shape::Membrane(m), Some(t)) => {
+                        let face_gap = m.reservoir_depth_nm() - a;
+                        [t.eval(face_gap)[1]; 2]
+                    }
+                    _ => [sigma; 2],
+                };
+                let walls = Walls {
+                    shape: geometry.shape.clone(),
+                    edges_nm: edges,
+                    radius_nm: a,
+                    sigma_nm: sigma,
+                    bath_sigma_nm,
+                };
+                let boundary = match &geometry.shape {
+                    Shape::PlaneWall { .. } | Shape::Slit { .. } => Fold::Slab(Slab(walls)),
+                    Shape::Cylinder { .. } => Fold::Pore(Pore(walls)),
+                    Shape::Membrane(m) => Fold::Baths(Baths {
+                        membrane: (**m).clone(),
+                        walls,
+                    }),
+                };
+                Pipeline {
+                    kinetics: kin.clone(),
+                    radius_nm: a,
+                    displacement,
+                    boundary,
+                }
+            })
+            .collect();
+        let crowd = scenario.has_crowders().then(|| {
+            let g = if obstacles.is_empty() {
+                vec![None; scenario.species.len()]
+            } else {
+                obstacles
+                    .grids_for(scenario)
+                    .into_iter()
+                    .map(Some)
+                    .collect()
+            };
+            Box::new(Crowd::new(scenario, g))
+        });
+        let grids = if obstacles.is_empty() || crowd.is_some() {
+            Vec::new()
+        } else {
+            obstacles.grids_for(scenario)
+        };
+        Self {
+            sim_box: scenario.sim_box,
+            kinetics,
+            geometry,
+            pipelines,
+            grids,
+            crowd,
+        }
+    }
+
+    /// The same step without the Itô drift term: only to show the spurious
+    /// pile-up at walls that its absence causes (REFERENCES.md). Has no
+    /// effect without wall hydrodynamics.
+    pub fn without_ito_drift(mut self) -> Self {
+        for p in &mut self.pipelines {
+            match &mut p.displacement {
+                Move::Free(_) => {}
+                Move::Planar(w) => w.ito_drift = false,
+                Move::Nearest(w) => w.ito_drift = false,
+            }
+        }
+        self
+    }
+
+    /// Short name of the step ("free", "obstructed", "confined", "crowded").
+    pub fn name(&self) -> &'static str {
+        if self.crowd.is_some() {
+            "crowded"
+        } else if self.geometry.is_some() {
+            "confined"
+        } else if self.grids.is_empty() {
+            "free"
+        } else {
+            "obstructed"
+        }
+    }
+
+    /// Cost of a particle-step relative to a free one (roughly), so that
+    /// the run driver can size its blocks.
+    pub fn relative_cost(&self) -> u64 {
+        match self.name() {
+            "free" => 1,
+            "crowded" => 8,
+            _ => 2,
+        }
+    }
+
+    /// Per-species kinetics.
+    pub fn kinetics(&self) -> &[Kinetics] {
+        &self.kinetics
+    }
+
+    /// The confining shape, if any.
+    pub fn confining_shape(&self) -> Option<&Shape> {
+        self.geometry.as_ref().map(|g| &g.shape)
+    }
+
+    /// The confining shape of a confined scenario.
+    ///
+    /// # Panics
+    /// When the scenario has no geometry.
+    pub fn shape(&self) -> &Shape {
+        self.confining_shape().expect("the scenario has a geometry")
+    }
+
+    /// Wall hydrodynamics model, if on.
+    pub fn hydrodynamics(&self) -> Option<PerpendicularModel> {
+        self.geometry.as_ref().and_then(|g| g.hydrodynamics)
+    }
+
+    /// Step rms across each bath face [bottom, top] of species `s`, nm:
+    /// the σ by which emissions are drawn and bath concentrations measured.
+    pub fn bath_sigma_nm(&self, s: usize) -> [f64; 2] {
+        match &self.pipelines[s].boundary {
+            Fold::Baths(b) => b.walls.bath_sigma_nm,
+            _ => [self.kinetics[s].sigma_nm; 2],
+        }
+    }
+
+    /// The crowd, when particles have hard contacts.
+    pub fn crowd(&self) -> Option<&Crowd> {
+        self.crowd.as_deref()
+    }
+
+    /// Mutable access to the crowd (to switch its sweep for comparisons).
+    pub fn crowd_mut(&mut self) -> Option<&mut Crowd> {
+        self.crowd.as_deref_mut()
+    }
+
+    /// Initial state: uniform in the space open to each centre, every
+    /// particle drawing from its own stream (thread-independent); interacting
+    /// particles are added one by one in index order (`crowd`). In a
+    /// membrane the density follows the steady state roughly.
+    ///
+    /// # Errors
+    /// [`EngineError::Placement`] when a species cannot fit.
+    pub fn initial_state(&self, scenario: &Scenario) -> Result<State> {
+        if let Some(c) = &self.crowd {
+            return place_crowd(scenario, &self.kinetics, c.grids());
+        }
+        let n = scenario.particle_count();
+        let mut rngs: Vec<ParticleRng> = (0..n as u64)
+            .map(|i| ParticleRng::for_particle(scenario.seed, i))
+            .collect();
+        let mut positions = vec![[0.0; 3]; n];
+        for (s, p) in self.pipelines.iter().enumerate() {
+            let r = p.kinetics.range.clone();
+            let grid = self.grids.get(s);
+            let open = |c: [f64; 3]| !grid.is_some_and(|g| g.blocked(&c));
+            let placed = match &p.boundary {
+                Fold::Box(b) => draw_starts(
+                    &mut positions[r.clone()],
+                    &mut rngs[r],
+                    OPEN_START_ATTEMPTS,
+                    |g| b.trial_start(g).filter(|c| open(*c)),
+                ),
+                Fold::Slab(Slab(w)) | Fold::Pore(Pore(w)) | Fold::Baths(Baths { walls: w, .. }) => {
+                    draw_starts(
+                        &mut positions[r.clone()],
+                        &mut rngs[r],
+                        PLACEMENT_ATTEMPTS,
+                        |g| w.trial_start(g).filter(|c| open(*c)),
+                    )
+                }
+            };
+            if !placed {
+                let sp = &scenario.species[s];
+                let reason = match &self.geometry {
+                    None => format!(
+                        "species '{}' (radius {} nm) found no open starting point in {OPEN_START_ATTEMPTS} tries: the \
+                         obstacles leave (almost) no room for its centre (open fraction below about 1e-6); a smaller \
+                         tracer, fewer or smaller obstacles would fit",
+                        sp.name, sp.radius_nm
+                    ),
+                    Some(g) => format!(
+                        "species '{}' (radius {} nm) found no allowed starting point in the {} in {PLACEMENT_ATTEMPTS} tries",
+                        sp.name,
+                        sp.radius_nm,
+                        g.shape.kind()
+                    ),
+                };
+                return Err(EngineError::Placement {
+                    file: scenario.source.clone(),
+                    reason,
+                });
+            }
+        }
+        Ok(State {
+            positions,
+            images: vec![[0; 3]; n],
+            rngs,
+            step: 0,
+        })
+    }
+
+    /// Advances the state by `steps` steps; returns the events of this
+    /// block per species (all zero but at walls and baths).
+    pub fn advance(&mut self, state: &mut State, steps: u64) -> Vec<Counts> {
+        if let Some(c) = &mut self.crowd {
+            c.advance(state, &self.kinetics, &self.sim_box, steps);
+            return vec![Counts::default(); self.kinetics.len()];
+        }
+        let counts = (0..self.pipelines.len())
+            .map(|s| {
+                let p = &self.pipelines[s];
+                match &p.displacement {
+                    Move::Free(d) => self.with_boundary(s, d, state, steps),
+                    Move::Planar(d) => self.with_boundary(s, d, state, steps),
+                    Move::Nearest(d) => self.with_boundary(s, d, state, steps),
+                }
+            })
+            .collect();
+        state.step += steps;
+        counts
+    }
+
+    fn with_boundary<D: Displacement>(
+        &self,
+        s: usize,
+        d: &D,
+        state: &mut State,
+        steps: u64,
+    ) -> Counts {
+        match &self.pipelines[s].boundary {
+            Fold::Box(b) => self.with_contact(s, d, b, state, steps),
+            Fold::Slab(b) => self.with_contact(s, d, b, state, steps),
+            Fold::Pore(b) => self.with_contact(s, d, b, state, steps),
+            Fold::Baths(b) => self.with_contact(s, d, b, state, steps),
+        }
+    }
+
+    fn with_contact<D: Displacement, B: Boundary>(
+        &self,
+        s: usize,
+        d: &D,
+        b: &B,
+        state: &mut State,
+        steps: u64,
+    ) -> Counts {
+        let range = self.pipelines[s].kinetics.range.clone();
+        let walled = self.geometry.is_some();
+        match self.grids.get(s) {
+            None => {
+                let chunk = if walled { WALLED_CHUNK } else { FREE_CHUNK };
+                advance_species((d, b, &NoContact), state, range, steps, chunk)
+            }
+            Some(grid) => {
+                let chunk = if walled {
+                    WALLED_CHUNK
+                } else {
+                    OBSTRUCTED_CHUNK
+                };
+                advance_species(
+                    (d, b, &Reject { blocker: grid }),
+                    state,
+                    range,
+                    steps,
+                    chunk,
+                )
+            }
+        }
+    }
+
+    /// Occupancy of each membrane region per species (`None` outside membranes).
+    pub fn occupancy(&self, state: &State) -> Option<Vec<Occupancy>> {
+        let Some(Shape::Membrane(m)) = self.confining_shape() else {
+            return None;
+        };
+        Some(
+            self.pipelines
+                .iter()
+                .map(|p| {
+                    state.positions[p.kinetics.range.clone()]
+                        .par_iter()
+                        .map(|q| {
+                            let mut o = Occupancy::default();
+                            if q[2] > m.z_hi_nm {
+                                o.top = 1;
+                            } else if q[2] < m.z_lo_nm {
+                                o.bottom = 1;
+                            } else if m.in_pore(q) {
+                                o.pores = 1;
+                            }
+                            o
+                        })
+                        .reduce(Occupancy::default, |a, b| Occupancy {
+                            pores: a.pores + b.pores,
+                            top: a.top + b.top,
+                            bottom: a.bottom + b.bottom,
+                        })
+                })
+                .collect(),
+        )
+    }
+
+    /// Radius of species `s`, nm.
+    pub fn radius_nm(&self, s: usize) -> f64 {
+        self.pipelines[s].radius_nm
+    }
+}
+
+/// The wall mobility of one species as a table over the gap to the
+/// nearest wall (both walls superposed in a slit).
+fn mobility_table(
+    wt: &WallMobilityTable,
+    shape: &Shape,
+    a: f64,
+    ah: f64,
+    sigma: f64,
+) -> MobilityTable {
+    let d0_dt = 0.5 * sigma * sigma;
+    // Node values from D∥/D0, D⊥/D0 and dD⊥/dd (1/nm).
+    let node = |par: f64, perp: f64, dperp_dd: f64| {
+        [
+            sigma * par.max(0.0).sqrt(),
+            sigma * perp.max(0.0).sqrt(),
+            (perp - par) * d0_dt,
+            dperp_dd * d0_dt,
+        ]
+    };
+    match shape {
+        Shape::Slit { width_nm } => {
+            let w = *width_nm;
+            // Symmetric about mid-gap: tabulate the gap to the nearer wall.
+            MobilityTable::build(a, 0.5 * (w - 2.0 * a), |h| {
+                let (z1, z2) = (a + h, w - a - h);
+                let (p1, q1, g1) = single_wall(wt, z1, ah);
+                let (p2, q2, g2) = single_wall(wt, z2, ah);
+                // The far wall's distance shrinks as z grows: its gradient flips sign.
+                let (perp, grad) = superpose_two_walls_with_gradient(q1, g1, q2, -g2);
+                node(superpose_two_walls(p1, p2), perp, grad / ah)
+            })
+        }
+        shape => MobilityTable::build(a, (shape.max_wall_distance_nm() - a).max(a), |h| {
+            let (par, perp, grad) = single_wall(wt, a + h, ah);
+            node(par, perp, grad / ah)
+        }),
+    }
+}
