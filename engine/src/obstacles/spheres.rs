@@ -937,7 +937,7 @@ pub fn read_csv(
     scenario_file: &Path,
 ) -> Result<Spheres> {
     let names = ["x_nm", "y_nm", "z_nm", "radius_nm"];
-    let rows = crate::scenario::config::read_numeric_csv(
+    let rows = crate::scenario::csv::read_numeric_csv(
         path,
         scenario_file,
         "obstacles.file",

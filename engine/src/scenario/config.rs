@@ -9,10 +9,13 @@
 
 use crate::base::error::{EngineError, Result};
 use crate::base::medium;
+pub use crate::scenario::csv::{read_numeric_csv, CsvRow};
 use crate::scenario::geometry::Geometry;
+use crate::scenario::geometry::RawGeometry;
 use crate::scenario::media::Sweep;
 use crate::scenario::media::{FibreSpec, Orientation};
 use crate::scenario::media::{Generator, ObstacleSpec, RadiusDistribution, Target};
+pub use crate::scenario::species::Species;
 use crate::space::SimBox;
 use serde::{Deserialize, Serialize};
 use std::path::{Path, PathBuf};
@@ -78,71 +81,6 @@ pub struct RawScenario {
     /// Stepper: walls, slit, cylindrical pore or membrane (see `geometry`).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub geometry: Option<RawGeometry>,
-}
-
-/// `[geometry]`: confining walls, as written (validated by
-/// [`crate::scenario::geometry::Geometry::from_raw`]). Sizes along z come from
-/// `box.edges_nm[2]`: the slit's gap, the plane wall's box height, the
-/// membrane's total height (slab centred, reservoirs above and below).
-#[derive(Debug, Clone, Default, Serialize, Deserialize, PartialEq)]
-#[serde(deny_unknown_fields)]
-pub struct RawGeometry {
-    /// "plane_wall", "slit", "cylinder" or "membrane".
-    pub kind: String,
-    /// Hydrodynamic wall corrections of D with the Itô drift. By default, this is disabled.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub wall_hydrodynamics: Option<bool>,
-    /// "brenner" (default) or "bevan_prieve", with `wall_hydrodynamics = true`.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub perpendicular_model: Option<String>,
-    /// Pore radius in nm ("cylinder"; "membrane" with arranged pores).
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub pore_radius_nm: Option<f64>,
-    /// Slab thickness (pore length) in nm ("membrane").
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub thickness_nm: Option<f64>,
-    /// Pores along x in a square arrangement ("membrane", default 1).
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub pores_x: Option<i64>,
-    /// Pores along y in a square arrangement ("membrane", default 1).
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub pores_y: Option<i64>,
-    /// CSV of pores `x_nm,y_nm,radius_nm` ("membrane"), instead of an
-    /// arrangement; relative to the scenario's folder.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub pores_file: Option<String>,
-    /// Bath concentration at z = L_z ("membrane", default 1).
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub top_concentration_mol_per_m3: Option<f64>,
-    /// Bath concentration at z = 0 ("membrane", default 0).
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub bottom_concentration_mol_per_m3: Option<f64>,
-    /// Start of the steady-state window for flux averages, s ("membrane",
-    /// default half the run).
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub flux_after_s: Option<f64>,
-}
-
-impl RawGeometry {
-    /// The kind-specific keys and whether each was given.
-    pub fn given_kind_keys(&self) -> [(&'static str, bool); 8] {
-        [
-            ("pore_radius_nm", self.pore_radius_nm.is_some()),
-            ("thickness_nm", self.thickness_nm.is_some()),
-            ("pores_x", self.pores_x.is_some()),
-            ("pores_y", self.pores_y.is_some()),
-            ("pores_file", self.pores_file.is_some()),
-            (
-                "top_concentration_mol_per_m3",
-                self.top_concentration_mol_per_m3.is_some(),
-            ),
-            (
-                "bottom_concentration_mol_per_m3",
-                self.bottom_concentration_mol_per_m3.is_some(),
-            ),
-            ("flux_after_s", self.flux_after_s.is_some()),
-        ]
-    }
 }
 
 /// `[obstacles]`: fixed spheres.
@@ -296,38 +234,6 @@ pub enum Precision {
     F64,
 }
 
-/// A validated species.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Species {
-    /// Name.
-    pub name: String,
-    /// Steric radius, nm.
-    pub radius_nm: f64,
-    /// Drag radius, nm.
-    pub drag_radius_nm: f64,
-    /// Number of particles.
-    pub count: usize,
-    /// Free diffusivity, m²/s.
-    pub d0_m2_per_s: f64,
-    /// Whether `d0_m2_per_s` was given explicitly rather than from Stokes–Einstein.
-    pub d0_explicit: bool,
-    /// True for a crowder (hard contacts with every particle); tracers only
-    /// touch crowders, obstacles and walls.
-    pub crowder: bool,
-}
-
-impl Species {
-    /// Free diffusivity in nm²/s, the engine's internal unit.
-    pub fn d0_nm2_per_s(&self) -> f64 {
-        medium::m2_to_nm2(self.d0_m2_per_s)
-    }
-
-    /// Root-mean-square step per axis, √(2 D0 Δt), in nm.
-    pub fn step_rms_nm(&self, dt_s: f64) -> f64 {
-        (2.0 * self.d0_nm2_per_s() * dt_s).sqrt()
-    }
-}
-
 /// Validated output settings.
 #[derive(Debug, Clone, PartialEq)]
 pub struct OutputSpec {
@@ -378,147 +284,11 @@ pub struct Scenario {
     pub resolved_toml: String,
 }
 
-/// One data row of a numeric CSV file.
-#[derive(Debug, Clone)]
-pub struct CsvRow<const N: usize> {
-    /// Line number in the file (1-based).
-    pub line: usize,
-    /// The row as written (trimmed).
-    pub text: String,
-    /// Its numbers, one per column.
-    pub values: [f64; N],
-}
-
-impl<const N: usize> CsvRow<N> {
-    /// An error naming `file`, this row's line and text, and what is allowed.
-    pub fn error(&self, file: &Path, allowed: String) -> EngineError {
-        EngineError::InvalidValue {
-            file: file.to_path_buf(),
-            key: format!("line {}", self.line),
-            value: format!("{:?}", self.text.chars().take(80).collect::<String>()),
-            allowed,
-        }
-    }
-}
-
-/// Reads a CSV file of `N` numeric columns named `names` (rows of `what`,
-/// for messages), given as `key` of `scenario_file`: blank lines and lines starting with `#` are skipped, the
-/// first other line may be a header naming the columns, every number must
-/// be finite, and the last column (a radius) greater than 0.
-///
-/// # Errors
-/// [`EngineError::InvalidValue`] naming `key` when the file cannot be read
-/// or holds no rows, or naming the CSV file and line of a malformed row.
-pub fn read_numeric_csv<const N: usize>(
-    path: &Path,
-    scenario_file: &Path,
-    key: &str,
-    what: &str,
-    names: [&str; N],
-) -> Result<Vec<CsvRow<N>>> {
-    let columns = names.join(",");
-    let about = |allowed: String| EngineError::InvalidValue {
-        file: scenario_file.to_path_buf(),
-        key: key.into(),
-        value: format!("{:?}", path.display().to_string()),
-        allowed,
-    };
-    let text = std::fs::read_to_string(path).map_err(|e| {
-        about(format!("the file cannot be read ({e}); give a readable CSV of {columns} (relative paths start at the scenario's folder)"))
-    })?;
-    let mut rows = Vec::new();
-    let mut seen_data = false;
-    for (idx, raw) in text.lines().enumerate() {
-        let text = raw.trim();
-        if text.is_empty() || text.starts_with('#') {
-            continue;
-        }
-        let mut row = CsvRow {
-            line: idx + 1,
-            text: text.to_string(),
-            values: [0.0; N],
-        };
-        let fields: Vec<&str> = text.split(',').map(str::trim).collect();
-        let first_is_number = fields.first().is_some_and(|f| f.parse::<f64>().is_ok());
-        if !seen_data && !first_is_number {
-            // A header: it must name the columns.
-            seen_data = true;
-            let lower: Vec<String> = fields.iter().map(|f| f.to_ascii_lowercase()).collect();
-            if lower != names {
-                return Err(row.error(path, format!("a header must read `{columns}`")));
-            }
-            continue;
-        }
-        seen_data = true;
-        if fields.len() != N {
-            return Err(row.error(
-                path,
-                format!(
-                    "each row needs {N} comma-separated numbers ({}), found {}",
-                    names.join(", "),
-                    fields.len()
-                ),
-            ));
-        }
-        for (c, f) in fields.iter().enumerate() {
-            row.values[c] = match f.parse::<f64>() {
-                Ok(x) if x.is_finite() => x,
-                _ => {
-                    return Err(row.error(
-                        path,
-                        format!(
-                            "column {} ({}) must be a finite number, not {f:?}",
-                            c + 1,
-                            names[c]
-                        ),
-                    ))
-                }
-            };
-        }
-        let r = row.values[N - 1];
-        if r <= 0.0 {
-            return Err(row.error(
-                path,
-                format!("{} must be greater than 0, not {r}", names[N - 1]),
-            ));
-        }
-        rows.push(row);
-    }
-    if rows.is_empty() {
-        return Err(about(format!(
-            "the file holds no {what} rows; each row is {columns}"
-        )));
-    }
-    Ok(rows)
-}
-
 /// Crowder volume fraction above which crowders start on a lattice
 /// instead of by random addition (which jams near φ ≈ 0.38 and slows well before).
 pub const LATTICE_START_FRACTION: f64 = 0.33;
 
 impl Scenario {
-    /// Reads, overrides and validates a scenario file.
-    ///
-    /// # Errors
-    /// Any read, parse, override or validation failure, naming file and key.
-    pub fn load(path: &Path, overrides: &[String]) -> Result<Self> {
-        let text = std::fs::read_to_string(path).map_err(|source| EngineError::ReadScenario {
-            file: path.to_path_buf(),
-            source,
-        })?;
-        Self::from_text(&text, path, overrides)
-    }
-
-    /// Parses, overrides and validates scenario text; `path` is used in messages.
-    ///
-    /// # Errors
-    /// As [`Scenario::load`].
-    pub fn from_text(text: &str, path: &Path, overrides: &[String]) -> Result<Self> {
-        let raw = RawScenario::parse(text, path)?;
-        let raw = raw.with_overrides(overrides)?;
-        raw.validate(path)
-    }
-
     /// Total number of particles over all species.
     pub fn particle_count(&self) -> usize {
         self.species.iter().map(|s| s.count).sum()
@@ -1189,10 +959,6 @@ impl RawScenario {
             geometry,
             resolved_toml,
         };
-        // Refused here, before any caller allocates particles, obstacles or grids.
-        if let Some((limit, source)) = crate::scenario::memory::current_limit() {
-            crate::scenario::memory::check(&scenario, limit, source)?;
-        }
         Ok(scenario)
     }
 }

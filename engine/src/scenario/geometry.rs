@@ -2,9 +2,10 @@
 //! membrane settings, built from the raw TOML.
 
 use crate::base::error::{EngineError, Result};
-use crate::scenario::config::{RawGeometry, Species};
+use crate::scenario::species::Species;
 use crate::space::mobility::PerpendicularModel;
 use crate::space::shape::{Membrane, Pore, PoreGrid, PoreLayout, Shape, MAX_PORES};
+use serde::{Deserialize, Serialize};
 use std::path::{Path, PathBuf};
 
 /// A validated `[geometry]` section.
@@ -427,7 +428,7 @@ pub fn read_pores_csv(
     species: &[Species],
 ) -> Result<Vec<Pore>> {
     let names = ["x_nm", "y_nm", "radius_nm"];
-    let rows = crate::scenario::config::read_numeric_csv(
+    let rows = crate::scenario::csv::read_numeric_csv(
         path,
         scenario_file,
         "geometry.pores_file",
@@ -490,4 +491,69 @@ pub fn read_pores_csv(
         }
     }
     Ok(pores)
+}
+
+/// `[geometry]`: confining walls, as written (validated by
+/// [`crate::scenario::geometry::Geometry::from_raw`]). Sizes along z come from
+/// `box.edges_nm[2]`: the slit's gap, the plane wall's box height, the
+/// membrane's total height (slab centred, reservoirs above and below).
+#[derive(Debug, Clone, Default, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct RawGeometry {
+    /// "plane_wall", "slit", "cylinder" or "membrane".
+    pub kind: String,
+    /// Hydrodynamic wall corrections of D with the Itô drift. By default, this is disabled.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub wall_hydrodynamics: Option<bool>,
+    /// "brenner" (default) or "bevan_prieve", with `wall_hydrodynamics = true`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub perpendicular_model: Option<String>,
+    /// Pore radius in nm ("cylinder"; "membrane" with arranged pores).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pore_radius_nm: Option<f64>,
+    /// Slab thickness (pore length) in nm ("membrane").
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub thickness_nm: Option<f64>,
+    /// Pores along x in a square arrangement ("membrane", default 1).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pores_x: Option<i64>,
+    /// Pores along y in a square arrangement ("membrane", default 1).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pores_y: Option<i64>,
+    /// CSV of pores `x_nm,y_nm,radius_nm` ("membrane"), instead of an
+    /// arrangement; relative to the scenario's folder.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pores_file: Option<String>,
+    /// Bath concentration at z = L_z ("membrane", default 1).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub top_concentration_mol_per_m3: Option<f64>,
+    /// Bath concentration at z = 0 ("membrane", default 0).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub bottom_concentration_mol_per_m3: Option<f64>,
+    /// Start of the steady-state window for flux averages, s ("membrane",
+    /// default half the run).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub flux_after_s: Option<f64>,
+}
+
+impl RawGeometry {
+    /// The kind-specific keys and whether each was given.
+    pub fn given_kind_keys(&self) -> [(&'static str, bool); 8] {
+        [
+            ("pore_radius_nm", self.pore_radius_nm.is_some()),
+            ("thickness_nm", self.thickness_nm.is_some()),
+            ("pores_x", self.pores_x.is_some()),
+            ("pores_y", self.pores_y.is_some()),
+            ("pores_file", self.pores_file.is_some()),
+            (
+                "top_concentration_mol_per_m3",
+                self.top_concentration_mol_per_m3.is_some(),
+            ),
+            (
+                "bottom_concentration_mol_per_m3",
+                self.bottom_concentration_mol_per_m3.is_some(),
+            ),
+            ("flux_after_s", self.flux_after_s.is_some()),
+        ]
+    }
 }

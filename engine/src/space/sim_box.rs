@@ -24,3 +24,15 @@ pub fn reflect(mut x: f64, lo: f64, hi: f64) -> f64 {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn reflect_folds_back_inside() {
+        assert_eq!(reflect(-0.5, 0.0, 10.0), 0.5);
+        assert_eq!(reflect(10.5, 0.0, 10.0), 9.5);
+        assert_eq!(reflect(25.0, 0.0, 10.0), 5.0);
+    }
+}

@@ -654,3 +654,167 @@ fn mobility_table(
         }),
     }
 }
+
+#[cfg(test)]
+mod box_tests {
+    use super::*;
+    use std::path::Path;
+
+    fn scenario(periodic: &str) -> Scenario {
+        let text = format!(
+            "seed = 3\n[medium]\ntemperature_K = 298.15\n[box]\nedges_nm = [50.0, 50.0, 50.0]\nperiodic = {periodic}\n\
+             [[species]]\nname = \"a\"\nradius_nm = 1.0\ncount = 500\n[[species]]\nname = \"b\"\nradius_nm = 4.0\ncount = 300\n\
+             [integrator]\ndt_s = 1e-9\nsteps = 100\n"
+        );
+        Scenario::from_text(&text, Path::new("t.toml"), &[]).unwrap()
+    }
+
+    #[test]
+    fn splitting_steps_does_not_change_the_result() {
+        let s = scenario("[true, true, false]");
+        let kin = kinetics(&s);
+        let mut a = State::initial(&s);
+        let mut b = a.clone();
+        advance_free(&mut a, &kin, &s.sim_box, 100);
+        for _ in 0..4 {
+            advance_free(&mut b, &kin, &s.sim_box, 25);
+        }
+        assert_eq!(a, b);
+    }
+
+    #[test]
+    fn walls_keep_centres_a_radius_away() {
+        let s = scenario("[false, false, false]");
+        let kin = kinetics(&s);
+        let mut st = State::initial(&s);
+        advance_free(&mut st, &kin, &s.sim_box, 2000);
+        for k in &kin {
+            for i in k.range.clone() {
+                for ax in 0..3 {
+                    let x = st.positions[i][ax];
+                    assert!(
+                        x >= k.lower_nm[ax] && x <= k.upper_nm[ax],
+                        "particle {i} axis {ax}: {x}"
+                    );
+                }
+                assert_eq!(st.images[i], [0, 0, 0]);
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod wall_tests {
+    use super::*;
+    use crate::space::mobility::{brenner_perpendicular_value_and_gradient, faxen_parallel};
+    use std::path::Path;
+
+    fn scenario(geometry: &str, edges: [f64; 3]) -> Scenario {
+        let text = format!(
+            "[medium]\ntemperature_K = 298.15\n[box]\nedges_nm = [{}, {}, {}]\n[[species]]\nname = \"t\"\nradius_nm = 2.0\ncount = 1\n\
+             diffusivity_m2_per_s = 1e-10\n[integrator]\ndt_s = 1e-10\nsteps = 1\n[geometry]\n{geometry}\n",
+            edges[0], edges[1], edges[2]
+        );
+        Scenario::from_text(&text, Path::new("t.toml"), &[]).unwrap()
+    }
+
+    /// Slow reference: node values straight from the Brenner and Faxén formulas.
+    fn direct(z_walls: &[f64], a: f64, sigma: f64) -> [f64; 4] {
+        let d0_dt = 0.5 * sigma * sigma;
+        let walls: Vec<(f64, f64, f64)> = z_walls
+            .iter()
+            .map(|&z| {
+                let (perp, grad) = brenner_perpendicular_value_and_gradient(z / a);
+                (faxen_parallel(a / z), perp, grad)
+            })
+            .collect();
+        let (par, perp, grad) = match walls.as_slice() {
+            [(p, q, g)] => (*p, *q, *g),
+            [(p1, q1, g1), (p2, q2, g2)] => {
+                let (q, g) = superpose_two_walls_with_gradient(*q1, *g1, *q2, -*g2);
+                (superpose_two_walls(*p1, *p2), q, g)
+            }
+            _ => unreachable!(),
+        };
+        [
+            sigma * par.sqrt(),
+            sigma * perp.sqrt(),
+            (perp - par) * d0_dt,
+            grad / a * d0_dt,
+        ]
+    }
+
+    #[test]
+    fn mobility_tables_match_direct_formulas() {
+        let (a, w) = (2.0, 20.0);
+        let sigma = (2.0 * 1e8 * 1e-10f64).sqrt();
+        for (geometry, edges, two) in [
+            (
+                "kind = \"slit\"\nwall_hydrodynamics = true",
+                [50.0, 50.0, w],
+                true,
+            ),
+            (
+                "kind = \"plane_wall\"\nwall_hydrodynamics = true",
+                [50.0, 50.0, w],
+                false,
+            ),
+        ] {
+            let s = scenario(geometry, edges);
+            let c = Stepper::new(&s, &FixedObstacles::default());
+            let table = match &c.pipelines[0].displacement {
+                Move::Planar(w) => &w.table,
+                _ => panic!("wall hydrodynamics give a planar tensor"),
+            };
+            let h_max = if two {
+                0.5 * (w - 2.0 * a)
+            } else {
+                w - 2.0 * a
+            };
+            // Gaps from 1e-9 a to the far end, off the grid nodes.
+            for i in 0..2000 {
+                let h = (h_max * (i as f64 + 0.37) / 2000.0).max(1e-9 * a * (i + 1) as f64);
+                let got = table.eval(h);
+                let z = a + h;
+                let want = if two {
+                    direct(&[z, w - z], a, sigma)
+                } else {
+                    direct(&[z], a, sigma)
+                };
+                for k in 0..4 {
+                    // Linear interpolation on the √h grid: better than 1e-5 of the scale of each column.
+                    let scale = [sigma, sigma, 0.5 * sigma * sigma, 0.5 * sigma * sigma / a][k];
+                    assert!(
+                        (got[k] - want[k]).abs() < 1e-5 * scale,
+                        "{geometry} h = {h}: column {k}: {} vs {}",
+                        got[k],
+                        want[k]
+                    );
+                }
+            }
+            // √D⊥ goes like √h at contact, which the √h grid follows exactly at its first node.
+            let near = table.eval(1e-6 * a);
+            assert!(
+                (near[1] / (sigma * 1e-3) - 1.0).abs() < 1e-3,
+                "σ⊥ near contact: {}",
+                near[1]
+            );
+        }
+    }
+
+    #[test]
+    fn slit_mean_mobility_is_symmetric_and_below_one() {
+        let s = scenario(
+            "kind = \"slit\"\nwall_hydrodynamics = true",
+            [50.0, 50.0, 12.0],
+        );
+        let shape = &s.geometry.as_ref().unwrap().shape;
+        let m = crate::space::mobility::mean_parallel_mobility(shape, 2.0, 2.0).unwrap();
+        // Limits: bounded by the mid-gap value (the largest) and contact (Faxén at z = a).
+        let mid = superpose_two_walls(faxen_parallel(2.0 / 6.0), faxen_parallel(2.0 / 6.0));
+        assert!(
+            m < mid && m > superpose_two_walls(faxen_parallel(1.0), faxen_parallel(0.2)),
+            "{m}"
+        );
+    }
+}
