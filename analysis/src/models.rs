@@ -1224,13 +1224,7 @@ pub fn lag_free_kc_slit(lambda: f64) -> ModelResult<f64> {
 ///
 /// # Errors
 /// K_c, K_d, L or D0 not finite and > 0; v not finite and ≥ 0.
-pub fn membrane_peclet(
-    kc: f64,
-    kd: f64,
-    velocity: f64,
-    length: f64,
-    d0: f64,
-) -> ModelResult<f64> {
+pub fn membrane_peclet(kc: f64, kd: f64, velocity: f64, length: f64, d0: f64) -> ModelResult<f64> {
     let kc = positive("convective hindrance K_c", kc)?;
     let kd = positive("diffusive hindrance K_d", kd)?;
     let v = non_negative("mean pore fluid velocity", velocity)?;
