@@ -4,7 +4,9 @@ use anyhow::Result;
 use serde_json::json;
 use std::path::Path;
 use std::process::ExitCode;
-use thicket_analysis::check_report::{check_report, Hindrance, SpeciesConfinement, CHECK_SAMPLES};
+use thicket_analysis::check_report::{
+    check_report, Hindrance, Quoted, SpeciesConfinement, CHECK_SAMPLES,
+};
 use thicket_analysis::model_table::ModelTable;
 use thicket_engine::space::shape::Shape;
 use thicket_engine::Scenario;
@@ -265,35 +267,32 @@ fn confinement_text<'a>(
     })
 }
 
-/// K_d, K_c, H and W on one line, each with its source (named once when
-/// they share it).
+/// K_d and H, then K_c and W, on one line, each pair with its source
+/// (named once when all four share it).
 fn hindrance_line(h: &Hindrance) -> String {
-    let items = [
-        ("K_d", &h.kd),
-        ("K_c", &h.kc),
-        ("H = ΦK_d", &h.h),
-        ("W = ΦK_c", &h.w),
-    ];
-    let shared = items
+    let (diffusive, diffusive_source) = pair([("K_d", &h.kd), ("H = ΦK_d", &h.h)]);
+    let (convective, convective_source) = pair([("K_c", &h.kc), ("W = ΦK_c", &h.w)]);
+    let peclet = h
+        .peclet
+        .map(|pe| format!("; Pe = {pe:.4}"))
+        .unwrap_or_default();
+    if diffusive_source == convective_source {
+        format!("{diffusive}, {convective} ({diffusive_source}){peclet}")
+    } else {
+        format!("{diffusive} ({diffusive_source}); {convective} ({convective_source}){peclet}")
+    }
+}
+
+/// Two factors as "A = …, B = …" (or "n/a" with the reason) and the first one's source.
+fn pair<'a>(items: [(&str, &'a Quoted); 2]) -> (String, &'a str) {
+    let text: Vec<String> = items
         .iter()
-        .all(|(_, q)| q.source == h.kd.source && q.value.is_some());
-    let mut parts: Vec<String> = items
-        .iter()
-        .map(|(label, q)| match (q.value, shared) {
-            (Some(v), true) => format!("{label} = {v:.4}"),
-            (Some(v), false) => format!("{label} = {v:.4} ({})", q.source),
-            (None, _) => format!("{label} n/a ({})", q.source),
+        .map(|(label, q)| match q.value {
+            Some(v) => format!("{label} = {v:.4}"),
+            None => format!("{label} n/a ({})", q.source),
         })
         .collect();
-    if let Some(pe) = h.peclet {
-        parts.push(format!("Pe = {pe:.4}"));
-    }
-    let line = parts.join(", ");
-    if shared {
-        format!("{line} ({})", h.kd.source)
-    } else {
-        line
-    }
+    (text.join(", "), items[0].1.source.as_str())
 }
 
 /// One line saying where the walls are.

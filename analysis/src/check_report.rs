@@ -201,7 +201,7 @@ fn slit_hindrance(a: f64, half_width: f64) -> Hindrance {
         (Err(e), _) | (_, Err(e)) => Err(e.clone()),
     };
     let lag_free =
-        "plane Poiseuille flow over the open gap, point tracer without lag (exact for that model)";
+        "point tracer without hydrodynamic lag in plane Poiseuille flow (exact for that model)";
     Hindrance {
         partition: Quoted::of(phi, "steric exclusion (exact)"),
         kd: Quoted::of(kd, "Dechadilok & Deen (2006), slit"),

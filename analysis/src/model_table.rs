@@ -397,12 +397,12 @@ pub fn slit_models(a: f64, h: f64, compares: bool) -> Vec<ModelValue> {
             compares,
         ),
         ModelValue::new(
-            "point tracer slit K_c = 3/2 (1-(1-λ)²/3) (no lag)",
+            "point tracer slit K_c (no lag)",
             "convective hindrance K_c (mean particle / mean fluid velocity)",
             "λ = a/h",
             lambda,
             models::lag_free_kc_slit(lambda).map_err(reason),
-            "plane Poiseuille flow averaged over the open gap (exact without hydrodynamic lag)",
+            "plane Poiseuille flow 3/2 (1-ζ²) averaged over the open gap (exact without hydrodynamic lag)",
             false,
         ),
         ModelValue::new(
@@ -413,7 +413,7 @@ pub fn slit_models(a: f64, h: f64, compares: bool) -> Vec<ModelValue> {
             models::lag_free_kc_slit(lambda)
                 .and_then(|kc| Ok(kc * models::partition_slit(a, h)?))
                 .map_err(reason),
-            "plane Poiseuille flow averaged over the open gap (exact without hydrodynamic lag)",
+            "plane Poiseuille flow 3/2 (1-ζ²) averaged over the open gap (exact without hydrodynamic lag)",
             false,
         ),
     ]
