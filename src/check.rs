@@ -4,107 +4,46 @@ use anyhow::Result;
 use serde_json::json;
 use std::path::Path;
 use std::process::ExitCode;
-use thicket_analysis::model_table::{scenario_model_table, ModelTable};
-use thicket_analysis::run_length::{long_time_regime, RegimeEstimate};
-use thicket_engine::obstacles::spheres::{Estimate, FixedObstacles, Region};
-use thicket_engine::scenario::media::ObstacleSpec;
+use thicket_analysis::check_report::{
+    check_report, Hindrance, Quoted, SpeciesConfinement, CHECK_SAMPLES,
+};
+use thicket_analysis::model_table::ModelTable;
 use thicket_engine::space::shape::Shape;
 use thicket_engine::Scenario;
 
-/// Monte Carlo points behind each printed fraction: a standard error of at most 5e-4.
-const CHECK_SAMPLES: usize = 1_000_000;
-
-/// Validates a scenario and prints what it implies.
+/// Validates a scenario and prints what it implies (computed by
+/// [`check_report`]; this function only formats it).
 pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> {
     let scenario = Scenario::load(config, sets)?;
-    let mut warnings = scenario.warnings();
-    let regimes: Vec<RegimeEstimate> = scenario
-        .species
-        .iter()
-        .filter_map(|s| long_time_regime(&scenario, &s.name))
-        .collect();
-    for r in regimes.iter().filter(|r| r.too_short()) {
-        warnings.push(format!(
-            "species '{}': the run lasts {:.2e} s, shorter than the {:.2e} s the long-time regime needs (τ_c ≈ {:.2e} s from {} ℓ = {:.1} nm; rule of thumb): D_eff would be an apparent value; raise integrator.steps to at least {}",
-            r.species,
-            r.duration_s,
-            r.recommended_duration_s,
-            r.crossover_s,
-            r.basis,
-            r.length_scale_nm,
-            (r.recommended_duration_s / scenario.dt_s).ceil() as u64
-        ));
-    }
-    let volume: f64 = scenario.sim_box.edges_nm.iter().product();
-    // Placed exactly as `run` will place them (same seed, same streams).
-    let obstacles = FixedObstacles::build(&scenario)?;
-    let region = Region::of(&scenario);
-    let covered =
-        obstacles.volume_fraction_in(&region, &scenario.sim_box, CHECK_SAMPLES, scenario.seed);
-    let open: Vec<_> = scenario
+    let report = check_report(&scenario)?;
+    let warnings = &report.warnings;
+    let regimes = &report.regimes;
+    let obstacles = &report.obstacles;
+    let covered = obstacles.covered;
+    let tables: Vec<&ModelTable> = report.species.iter().map(|s| &s.models).collect();
+    let species: Vec<_> = report
         .species
         .iter()
         .map(|s| {
-            obstacles.open_fraction(&scenario.sim_box, s.radius_nm, CHECK_SAMPLES, scenario.seed)
-        })
-        .collect();
-    // Walls, pores and membranes have exact open fractions (geometry.rs); with obstacles too, Monte Carlo.
-    let open: Vec<Estimate> = match &scenario.geometry {
-        Some(g) if !obstacles.is_empty() => scenario
-            .species
-            .iter()
-            .map(|s| {
-                obstacles.open_fraction_where(
-                    &scenario.sim_box,
-                    s.radius_nm,
-                    CHECK_SAMPLES,
-                    scenario.seed,
-                    |p| g.shape.allows(p, s.radius_nm),
-                )
-            })
-            .collect(),
-        Some(g) => scenario
-            .species
-            .iter()
-            .map(|s| Estimate {
-                value: g
-                    .shape
-                    .open_fraction(s.radius_nm, &scenario.sim_box.edges_nm),
-                standard_error: 0.0,
-            })
-            .collect(),
-        None => open,
-    };
-    let tables: Vec<ModelTable> = scenario
-        .species
-        .iter()
-        .map(|s| scenario_model_table(&scenario, &s.name))
-        .collect();
-    let species: Vec<_> = scenario
-        .species
-        .iter()
-        .zip(&open)
-        .zip(&tables)
-        .map(|((s, open), table)| {
             json!({
-                "models": table.values(),
-                "model_table": table.entries,
+                "models": s.models.values(),
+                "model_table": s.models.entries,
                 "name": s.name,
                 "role": if s.crowder { "crowder" } else { "tracer" },
-                "open_fraction": open.value,
-                "open_fraction_se": open.standard_error,
+                "open_fraction": s.open.value,
+                "open_fraction_se": s.open.standard_error,
                 "radius_m": s.radius_nm * 1e-9,
                 "drag_radius_m": s.drag_radius_nm * 1e-9,
                 "d0_m2_per_s": s.d0_m2_per_s,
                 "d0_source": if s.d0_explicit { "given" } else { "Stokes–Einstein" },
                 "count": s.count,
-                "step_rms_per_axis_m": s.step_rms_nm(scenario.dt_s) * 1e-9,
-                "step_over_radius": s.step_rms_nm(scenario.dt_s) / s.radius_nm,
-                "volume_fraction": s.count as f64 * 4.0 / 3.0 * std::f64::consts::PI * s.radius_nm.powi(3) / volume,
+                "step_rms_per_axis_m": s.step_rms_nm * 1e-9,
+                "step_over_radius": s.step_over_radius,
+                "volume_fraction": s.volume_fraction,
             })
         })
         .collect();
-    let confinement = confinement_report(&scenario)?;
+    let confinement = confinement_text(&scenario, report.confinement.as_deref());
     if as_json {
         let mut out = json!({
             "scenario": config.display().to_string(),
@@ -114,9 +53,9 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             "species": species,
             "obstacle_volume_fraction": covered.value,
             "obstacle_volume_fraction_se": covered.standard_error,
-            "obstacle_count": obstacles.spheres.len(),
-            "fibre_count": obstacles.fibres.len(),
-            "fibre_volume_fraction_nominal": obstacles.fibres.nominal_volume_fraction(&scenario.sim_box),
+            "obstacle_count": obstacles.spheres,
+            "fibre_count": obstacles.fibres,
+            "fibre_volume_fraction_nominal": obstacles.fibre_volume_fraction_nominal,
             "dt_s": scenario.dt_s,
             "steps": scenario.steps,
             "duration_s": scenario.steps as f64 * scenario.dt_s,
@@ -126,7 +65,7 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             "models": tables[0].values(),
             "model_table": tables[0].entries,
             "warnings": warnings,
-            "memory_estimate_bytes": thicket_engine::scenario::memory::estimate(&scenario).total_bytes(),
+            "memory_estimate_bytes": report.memory_estimate_bytes,
         });
         if let Some(c) = &confinement {
             // The first species' values at the top level; every species under "confinement".
@@ -142,6 +81,7 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
                     "lambda": p.lambda,
                     "partition_coefficient_steric": p.partition,
                     "open_fraction": p.open_fraction,
+                    "hindrance": p.hindrance,
                 }))
                 .collect::<Vec<_>>());
         }
@@ -151,9 +91,7 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
     println!("scenario {}: valid", config.display());
     println!(
         "  memory     about {} (estimated peak of the large buffers)",
-        thicket_engine::scenario::memory::format_bytes(
-            thicket_engine::scenario::memory::estimate(&scenario).total_bytes()
-        )
+        thicket_engine::scenario::memory::format_bytes(report.memory_estimate_bytes)
     );
     println!(
         "  medium     T = {} K, η = {:.4e} Pa·s ({})",
@@ -188,34 +126,31 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
         thicket_analysis::format::short(scenario.steps as f64 * scenario.dt_s),
         scenario.frames()
     );
-    for r in &regimes {
+    for r in regimes {
         println!("  regime     {}", r.describe());
     }
-    if !obstacles.spheres.is_empty() {
-        let how = match &scenario.obstacles {
-            Some(ObstacleSpec::Generated { generator, .. }) => generator.name().to_string(),
-            Some(ObstacleSpec::File { path, .. }) => format!("from {}", path.display()),
-            None => String::new(),
-        };
-        println!("  obstacles  {} spheres ({how})", obstacles.spheres.len());
+    if obstacles.spheres > 0 {
+        println!(
+            "  obstacles  {} spheres ({})",
+            obstacles.spheres, obstacles.placement
+        );
     }
-    if !obstacles.fibres.is_empty() {
+    if obstacles.fibres > 0 {
         println!(
             "  fibres     {} of radius {} nm, length {} nm, nominal φ = N·π r²·ℓ/V = {:.4}",
-            obstacles.fibres.len(),
-            obstacles.fibres.radius_nm,
-            obstacles.fibres.length_nm,
-            obstacles.fibres.nominal_volume_fraction(&scenario.sim_box)
+            obstacles.fibres,
+            obstacles.fibre_radius_nm,
+            obstacles.fibre_length_nm,
+            obstacles.fibre_volume_fraction_nominal
         );
     }
     if !obstacles.is_empty() {
         if covered.standard_error > 0.0 {
-            println!("  achieved obstacle volume fraction {:.4} ± {:.4} of {} (Monte Carlo, {CHECK_SAMPLES} points)", covered.value, covered.standard_error, region.describe());
+            println!("  achieved obstacle volume fraction {:.4} ± {:.4} of {} (Monte Carlo, {CHECK_SAMPLES} points)", covered.value, covered.standard_error, obstacles.region);
         } else {
             println!(
                 "  achieved obstacle volume fraction {:.4} of {} (exact: no overlaps)",
-                covered.value,
-                region.describe()
+                covered.value, obstacles.region
             );
         }
     }
@@ -230,7 +165,7 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
         "vol. frac.",
         "open to centre"
     );
-    for ((s, j), open) in scenario.species.iter().zip(&species).zip(&open) {
+    for s in &report.species {
         println!(
             "  {:<12} {:>8} {:>10} {:>10} {:>14.4e} {:>10.4} {:>12.4e} {:>9.4} ± {:.4}",
             s.name,
@@ -238,17 +173,17 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             s.count,
             s.radius_nm,
             s.d0_m2_per_s,
-            j["step_over_radius"].as_f64().unwrap_or(f64::NAN),
-            j["volume_fraction"].as_f64().unwrap_or(f64::NAN),
-            open.value,
-            open.standard_error
+            s.step_over_radius,
+            s.volume_fraction,
+            s.open.value,
+            s.open.standard_error
         );
     }
     if let Some(c) = &confinement {
         for line in &c.lines {
             println!("  {line}");
         }
-        for p in &c.per_species {
+        for p in c.per_species {
             let lambda = p
                 .lambda
                 .map(|l| format!("λ = {l:.4}, "))
@@ -267,9 +202,12 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
                 "  species '{}': {lambda}{phi}open to the centre {:.4} of the box{walls}",
                 p.species, p.open_fraction
             );
+            if let Some(h) = &p.hindrance {
+                println!("    hindrance  {}", hindrance_line(h));
+            }
         }
     }
-    for (s, table) in scenario.species.iter().zip(&tables) {
+    for (s, table) in report.species.iter().zip(&tables) {
         if table.entries.is_empty() {
             continue;
         }
@@ -278,33 +216,27 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             println!("    {line}");
         }
     }
-    for w in &warnings {
+    for w in warnings {
         println!("  warning: {w}");
     }
     Ok(ExitCode::SUCCESS)
 }
 
-/// What `check` says about a geometry: text lines, its JSON description and,
-/// per species, λ and the steric partition coefficient.
-struct ConfinementReport {
+/// How `check` shows a geometry: text lines, its JSON description and the
+/// library's per-species λ, partition and hindrance.
+struct ConfinementText<'a> {
     lines: Vec<String>,
     geometry: serde_json::Value,
-    per_species: Vec<SpeciesConfinement>,
+    per_species: &'a [SpeciesConfinement],
 }
 
-struct SpeciesConfinement {
-    species: String,
-    lambda: Option<f64>,
-    partition: Option<f64>,
-    open_fraction: f64,
-}
-
-/// λ and the steric partition coefficient for a scenario with a geometry.
-fn confinement_report(scenario: &Scenario) -> Result<Option<ConfinementReport>> {
-    use thicket_analysis::models;
-    let Some(g) = &scenario.geometry else {
-        return Ok(None);
-    };
+/// Formats the scenario's geometry around the report's per-species values.
+fn confinement_text<'a>(
+    scenario: &Scenario,
+    per_species: Option<&'a [SpeciesConfinement]>,
+) -> Option<ConfinementText<'a>> {
+    let g = scenario.geometry.as_ref()?;
+    let per_species = per_species?;
     let edges = scenario.sim_box.edges_nm;
     let mut lines = vec![
         format!("geometry   {}", describe(&g.shape, &edges)),
@@ -313,36 +245,6 @@ fn confinement_report(scenario: &Scenario) -> Result<Option<ConfinementReport>> 
             g.hydrodynamics_description()
         ),
     ];
-    let hydro = g.hydrodynamics.is_some();
-    let mut per_species = Vec::new();
-    for s in &scenario.species {
-        let a = s.radius_nm;
-        let (lambda, partition) = match &g.shape {
-            Shape::PlaneWall { .. } => (None, None),
-            Shape::Slit { width_nm } => {
-                let h = 0.5 * width_nm;
-                (Some(a / h), Some(models::partition_slit(a, h)?))
-            }
-            Shape::Cylinder { radius_nm, .. } => {
-                let lambda = a / radius_nm;
-                (Some(lambda), Some(models::partition_cylinder(lambda)?))
-            }
-            Shape::Membrane(m) => {
-                let r_min = m
-                    .pores
-                    .iter()
-                    .map(|p| p.radius_nm)
-                    .fold(f64::INFINITY, f64::min);
-                (Some(a / r_min), Some(m.steric_partition(a)))
-            }
-        };
-        per_species.push(SpeciesConfinement {
-            species: s.name.clone(),
-            lambda,
-            partition,
-            open_fraction: g.shape.open_fraction(a, &edges),
-        });
-    }
     if let Shape::Membrane(m) = &g.shape {
         lines.push(format!(
             "           baths: top {} mol/m³, bottom {} mol/m³; tracers do not interact, so the particle count only sets the statistics and fluxes are scaled to these concentrations; steady-state window from {} s",
@@ -353,16 +255,44 @@ fn confinement_report(scenario: &Scenario) -> Result<Option<ConfinementReport>> 
     }
     let geometry = json!({
         "kind": g.shape.kind(),
-        "wall_hydrodynamics": hydro,
+        "wall_hydrodynamics": g.hydrodynamics.is_some(),
         "perpendicular_model": g.hydrodynamics.map(|m| m.name()),
         "hydrodynamics": g.hydrodynamics_description(),
         "description": describe(&g.shape, &edges),
     });
-    Ok(Some(ConfinementReport {
+    Some(ConfinementText {
         lines,
         geometry,
         per_species,
-    }))
+    })
+}
+
+/// K_d and H, then K_c and W, on one line, each pair with its source
+/// (named once when all four share it).
+fn hindrance_line(h: &Hindrance) -> String {
+    let (diffusive, diffusive_source) = pair([("K_d", &h.kd), ("H = ΦK_d", &h.h)]);
+    let (convective, convective_source) = pair([("K_c", &h.kc), ("W = ΦK_c", &h.w)]);
+    let peclet = h
+        .peclet
+        .map(|pe| format!("; Pe = {pe:.4}"))
+        .unwrap_or_default();
+    if diffusive_source == convective_source {
+        format!("{diffusive}, {convective} ({diffusive_source}){peclet}")
+    } else {
+        format!("{diffusive} ({diffusive_source}); {convective} ({convective_source}){peclet}")
+    }
+}
+
+/// Two factors as "A = …, B = …" (or "n/a" with the reason) and the first one's source.
+fn pair<'a>(items: [(&str, &'a Quoted); 2]) -> (String, &'a str) {
+    let text: Vec<String> = items
+        .iter()
+        .map(|(label, q)| match q.value {
+            Some(v) => format!("{label} = {v:.4}"),
+            None => format!("{label} n/a ({})", q.source),
+        })
+        .collect();
+    (text.join(", "), items[0].1.source.as_str())
 }
 
 /// One line saying where the walls are.

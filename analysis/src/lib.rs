@@ -1,5 +1,6 @@
 pub mod blocks;
 pub mod camera;
+pub mod check_report;
 pub mod curves;
 pub mod direct;
 pub mod directions;

@@ -329,6 +329,33 @@ pub fn pore_models(lambda: f64, compares: bool) -> Vec<ModelValue> {
             "Dechadilok & Deen, Ind. Eng. Chem. Res. 45, 6953 (2006)",
             compares,
         ),
+        ModelValue::new(
+            "Dechadilok-Deen K_c",
+            "convective hindrance K_c (mean particle / mean fluid velocity)",
+            "λ",
+            lambda,
+            models::dechadilok_deen_kc(lambda).map_err(reason),
+            "Dechadilok & Deen, Ind. Eng. Chem. Res. 45, 6953 (2006) (from memory)",
+            false,
+        ),
+        ModelValue::new(
+            "Dechadilok-Deen W = Φ K_c",
+            "convective hindrance W",
+            "λ",
+            lambda,
+            models::dechadilok_deen_convective_hindrance(lambda).map_err(reason),
+            "Dechadilok & Deen, Ind. Eng. Chem. Res. 45, 6953 (2006) (from memory)",
+            false,
+        ),
+        ModelValue::new(
+            "point tracer K_c = 2-Φ (no lag)",
+            "convective hindrance K_c (mean particle / mean fluid velocity)",
+            "λ",
+            lambda,
+            models::lag_free_kc_cylinder(lambda).map_err(reason),
+            "Poiseuille flow averaged over r < R - a (exact without hydrodynamic lag)",
+            false,
+        ),
     ]
 }
 
@@ -368,6 +395,26 @@ pub fn slit_models(a: f64, h: f64, compares: bool) -> Vec<ModelValue> {
             averaged,
             "Dechadilok & Deen (2006), slit (from memory)",
             compares,
+        ),
+        ModelValue::new(
+            "point tracer slit K_c (no lag)",
+            "convective hindrance K_c (mean particle / mean fluid velocity)",
+            "λ = a/h",
+            lambda,
+            models::lag_free_kc_slit(lambda).map_err(reason),
+            "plane Poiseuille flow 3/2 (1-ζ²) averaged over the open gap (exact without hydrodynamic lag)",
+            false,
+        ),
+        ModelValue::new(
+            "point tracer slit W = Φ K_c (no lag)",
+            "convective hindrance W",
+            "λ = a/h",
+            lambda,
+            models::lag_free_kc_slit(lambda)
+                .and_then(|kc| Ok(kc * models::partition_slit(a, h)?))
+                .map_err(reason),
+            "plane Poiseuille flow 3/2 (1-ζ²) averaged over the open gap (exact without hydrodynamic lag)",
+            false,
         ),
     ]
 }

@@ -1177,3 +1177,186 @@ mod slit_tests {
         assert!(dechadilok_deen_slit_hindrance(0.96).is_err());
     }
 }
+
+/// Dechadilok & Deen (2006) convective hindrance K_c of a sphere in a
+/// cylindrical pore: the section-averaged particle velocity over the mean
+/// fluid velocity, K_c = (1 + 3.867λ − 1.907λ² − 0.834λ³)/(1 + 1.867λ −
+/// 0.741λ²), with W = ΦK_c (REFERENCES.md, from memory; the page prints the
+/// rational function under W, but only K_c fits: at λ = 0.9 it is 1.12,
+/// above the largest possible W, Φ(2 − Φ) = 0.02).
+///
+/// # Errors
+/// λ outside [0, 0.95], the range of their fit.
+pub fn dechadilok_deen_kc(lambda: f64) -> ModelResult<f64> {
+    let l = dechadilok_deen_lambda("size ratio lambda = a/r_pore", lambda)?;
+    Ok((1.0 + l * (3.867 + l * (-1.907 - 0.834 * l))) / (1.0 + l * (1.867 - 0.741 * l)))
+}
+
+/// Dechadilok & Deen (2006) convective hindrance factor W = Φ·K_c of a
+/// cylindrical pore ([`partition_cylinder`], [`dechadilok_deen_kc`]).
+///
+/// # Errors
+/// λ outside [0, 0.95].
+pub fn dechadilok_deen_convective_hindrance(lambda: f64) -> ModelResult<f64> {
+    Ok(partition_cylinder(lambda)? * dechadilok_deen_kc(lambda)?)
+}
+
+/// K_c of point-like tracers without hydrodynamic lag in a cylinder: the
+/// Poiseuille velocity 2V(1 − β²) averaged over the section their centres
+/// sample uniformly, β ≤ 1 − λ, over V: 2 − Φ = 2 − (1 − λ)² (exact for
+/// that model, REFERENCES.md). λ ∈ [0, 1).
+pub fn lag_free_kc_cylinder(lambda: f64) -> ModelResult<f64> {
+    Ok(2.0 - partition_cylinder(lambda)?)
+}
+
+/// K_c of point-like tracers without hydrodynamic lag in a slit of
+/// half-width h, λ = a/h: plane Poiseuille flow (3/2)V(1 − ζ²) averaged over
+/// |ζ| ≤ 1 − λ, over V: (3/2)(1 − (1 − λ)²/3) (exact for that model).
+/// λ ∈ [0, 1).
+pub fn lag_free_kc_slit(lambda: f64) -> ModelResult<f64> {
+    let open = 1.0 - fraction("size ratio lambda = a/h", lambda)?;
+    Ok(1.5 * (1.0 - open * open / 3.0))
+}
+
+/// Membrane Péclet number of hindered transport (Deen 1987, REFERENCES.md):
+/// Pe = W v L/(H D0) = K_c v L/(K_d D0), with v the mean fluid velocity in
+/// the pore, L its length and D0 the free diffusivity (one unit system).
+///
+/// # Errors
+/// K_c, K_d, L or D0 not finite and > 0; v not finite and ≥ 0.
+pub fn membrane_peclet(kc: f64, kd: f64, velocity: f64, length: f64, d0: f64) -> ModelResult<f64> {
+    let kc = positive("convective hindrance K_c", kc)?;
+    let kd = positive("diffusive hindrance K_d", kd)?;
+    let v = non_negative("mean pore fluid velocity", velocity)?;
+    let l = positive("pore length", length)?;
+    let d0 = positive("free diffusivity D0", d0)?;
+    Ok(kc * v * l / (kd * d0))
+}
+
+/// Sieving coefficient of a membrane, the permeate over the feed
+/// concentration at steady state, from hindered transport in its pores
+/// (Deen 1987, REFERENCES.md, from memory):
+/// S = ΦK_c/(1 − (1 − ΦK_c)e^(−Pe)), Pe from [`membrane_peclet`].
+/// Limits: S = 1 at Pe = 0 (no flow: the two sides equilibrate) and
+/// S → ΦK_c = W as Pe → ∞ (convection alone). `peclet` may be +∞.
+///
+/// # Errors
+/// Φ outside (0, 1]; K_c not finite and > 0; Pe not ≥ 0 (NaN included).
+pub fn deen_sieving_coefficient(partition: f64, kc: f64, peclet: f64) -> ModelResult<f64> {
+    if !(partition > 0.0 && partition <= 1.0) {
+        return Err(ModelError::OutOfRange {
+            name: "partition coefficient Phi",
+            value: partition,
+            allowed: "(0, 1]",
+        });
+    }
+    let kc = positive("convective hindrance K_c", kc)?;
+    if peclet.is_nan() || peclet < 0.0 {
+        return Err(ModelError::OutOfRange {
+            name: "membrane Peclet number",
+            value: peclet,
+            allowed: "[0, inf]",
+        });
+    }
+    let w = partition * kc;
+    // 1 − (1 − W)e^(−Pe) written as (1 − e^(−Pe)) + W e^(−Pe): exact at small Pe.
+    let decay = (-peclet).exp();
+    Ok(w / (-(-peclet).exp_m1() + w * decay))
+}
+
+#[cfg(test)]
+mod convection_tests {
+    use super::*;
+
+    #[test]
+    fn dechadilok_deen_kc_limits() {
+        // Exact: a point tracer has K_c = 1 at λ = 0 and slope 2 (2 − Φ = 1 + 2λ − λ²,
+        // REFERENCES.md); the fit's slope is 3.867 − 1.867 = 2.
+        assert_eq!(dechadilok_deen_kc(0.0).unwrap(), 1.0);
+        let eps = 1e-6;
+        assert!(((dechadilok_deen_kc(eps).unwrap() - 1.0) / eps - 2.0).abs() < 1e-4);
+        // Lag only slows the particles: K_c ≤ 2 − Φ, and W = ΦK_c ≤ 1, over the fit range.
+        for i in 1..=95 {
+            let l = f64::from(i) / 100.0;
+            let kc = dechadilok_deen_kc(l).unwrap();
+            assert!(kc <= lag_free_kc_cylinder(l).unwrap(), "λ = {l}");
+            let w = dechadilok_deen_convective_hindrance(l).unwrap();
+            assert!(w > 0.0 && w <= 1.0, "λ = {l}");
+        }
+        assert!(dechadilok_deen_kc(0.96).is_err());
+    }
+
+    #[test]
+    fn lag_free_kc_is_the_averaged_poiseuille_profile() {
+        // Exact averages (REFERENCES.md, Poiseuille profiles) against a midpoint-rule average.
+        let n = 200_000;
+        for l in [0.0, 0.2, 0.5] {
+            let open = 1.0 - l;
+            let (mut tube, mut area, mut slit) = (0.0, 0.0, 0.0);
+            for i in 0..n {
+                let b = open * (f64::from(i) + 0.5) / f64::from(n);
+                tube += 2.0 * (1.0 - b * b) * b;
+                area += b;
+                slit += 1.5 * (1.0 - b * b);
+            }
+            assert!((tube / area - lag_free_kc_cylinder(l).unwrap()).abs() < 1e-8);
+            assert!((slit / f64::from(n) - lag_free_kc_slit(l).unwrap()).abs() < 1e-8);
+        }
+    }
+
+    #[test]
+    fn sieving_limits() {
+        // Deen (1987), exact limits of the formula: S(0) = 1, S(∞) = ΦK_c.
+        let (phi, kc) = (0.36, dechadilok_deen_kc(0.4).unwrap());
+        let w = phi * kc;
+        assert_eq!(deen_sieving_coefficient(phi, kc, 0.0).unwrap(), 1.0);
+        assert!((deen_sieving_coefficient(phi, kc, f64::INFINITY).unwrap() - w).abs() < 1e-15);
+        assert!((deen_sieving_coefficient(phi, kc, 60.0).unwrap() - w).abs() < 1e-15);
+        // Small Pe: S = W/(W + (1 − W)Pe + O(Pe²)), slope −(1 − W)/W.
+        let pe = 1e-7;
+        let slope = (deen_sieving_coefficient(phi, kc, pe).unwrap() - 1.0) / pe;
+        assert!((slope + (1.0 - w) / w).abs() < 1e-5 * (1.0 - w) / w);
+        // Monotone from 1 down to W.
+        let mut previous = 1.0;
+        for i in 1..200 {
+            let s = deen_sieving_coefficient(phi, kc, 0.1 * f64::from(i)).unwrap();
+            assert!(s < previous && s > w);
+            previous = s;
+        }
+        assert!(deen_sieving_coefficient(0.0, kc, 1.0).is_err());
+        assert!(deen_sieving_coefficient(phi, kc, -1.0).is_err());
+        assert!(deen_sieving_coefficient(phi, kc, f64::NAN).is_err());
+        assert!(membrane_peclet(kc, 0.0, 1.0, 1.0, 1.0).is_err());
+    }
+
+    #[test]
+    fn sieving_solves_the_pore_transport_equation() {
+        // Independent route to Deen (1987): in the pore, the steady solute flux per area
+        // N = K_c v c − K_d D0 dc/dx is constant, with c(0) = ΦC_f at the feed mouth,
+        // c(L) = ΦC_p at the permeate mouth, and the permeate set by the flow, N = v C_p.
+        // Integrate dc/dx = (K_c v c − v C_p)/(K_d D0) by RK4 for two trial C_p; c(L) is
+        // linear in C_p, so the consistent C_p/C_f follows, and must equal S.
+        let (phi, kc, kd, d0, length) = (0.49, 1.3164, 0.41497, 1.0, 1.0);
+        for velocity in [0.05, 0.4, 2.0] {
+            let pe = membrane_peclet(kc, kd, velocity, length, d0).unwrap();
+            let end = |cp: f64| {
+                let f = |c: f64| (kc * velocity * c - velocity * cp) / (kd * d0);
+                let steps = 20_000;
+                let h = length / f64::from(steps);
+                let mut c = phi;
+                for _ in 0..steps {
+                    let k1 = f(c);
+                    let k2 = f(c + 0.5 * h * k1);
+                    let k3 = f(c + 0.5 * h * k2);
+                    let k4 = f(c + h * k3);
+                    c += h / 6.0 * (k1 + 2.0 * k2 + 2.0 * k3 + k4);
+                }
+                c - phi * cp
+            };
+            let (g0, g1) = (end(0.0), end(1.0));
+            let cp = -g0 / (g1 - g0);
+            let s = deen_sieving_coefficient(phi, kc, pe).unwrap();
+            assert!((cp - s).abs() < 1e-9, "Pe = {pe}: {cp} vs {s}");
+        }
+    }
+}

@@ -1,9 +1,11 @@
 //! Layer 2: the space particles move in: box, confining shapes, wall
-//! mobilities, placed bodies and neighbour searches. Imports only `base`.
+//! mobilities (plane walls, and by position in a cylindrical pore), placed
+//! bodies and neighbour searches. Imports only `base`.
 
 pub mod bodies;
 pub mod mobility;
 pub mod neighbors;
+pub mod pore_hydro;
 pub mod shape;
 pub mod sim_box;
 

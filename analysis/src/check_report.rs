@@ -1,0 +1,404 @@
+//! What `thicket check` says about a scenario, computed in one place and
+//! returned as one typed report: achieved and open fractions, the long-time
+//! regime, λ and partition, the hindrance factors and every model value. The
+//! CLI only formats it (text or JSON).
+
+use crate::model_table::{scenario_model_table, ModelTable};
+use crate::models::{self, ModelError};
+use crate::run_length::{long_time_regime, RegimeEstimate};
+use serde::Serialize;
+use thicket_engine::obstacles::spheres::{Estimate, FixedObstacles, Region};
+use thicket_engine::scenario::media::ObstacleSpec;
+use thicket_engine::space::shape::Shape;
+use thicket_engine::{EngineError, Scenario};
+
+/// Monte Carlo points behind each fraction: a standard error of at most 5e-4.
+pub const CHECK_SAMPLES: usize = 1_000_000;
+
+/// Why a check report could not be built.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum CheckError {
+    /// The obstacles could not be placed.
+    #[error(transparent)]
+    Engine(#[from] EngineError),
+    /// A model input was out of range (a geometry the validation let through).
+    #[error(transparent)]
+    Model(#[from] ModelError),
+}
+
+/// Everything `check` prints about one scenario.
+#[derive(Debug, Clone)]
+pub struct CheckReport {
+    /// The scenario's warnings, then one per species whose run is shorter
+    /// than its long-time regime needs.
+    pub warnings: Vec<String>,
+    /// Long-time regime estimates, one per species that has one.
+    pub regimes: Vec<RegimeEstimate>,
+    /// Estimated peak of the large buffers, bytes.
+    pub memory_estimate_bytes: f64,
+    /// Fixed obstacles, placed exactly as `run` will place them.
+    pub obstacles: ObstacleSummary,
+    /// One entry per species, in the scenario's order.
+    pub species: Vec<SpeciesCheck>,
+    /// λ, partition and hindrance per species when there is a geometry.
+    pub confinement: Option<Vec<SpeciesConfinement>>,
+}
+
+/// The fixed obstacles and the volume fraction they achieve.
+#[derive(Debug, Clone)]
+pub struct ObstacleSummary {
+    /// Number of fixed spheres.
+    pub spheres: usize,
+    /// How the spheres were made: the generator's name or "from PATH".
+    pub placement: String,
+    /// Number of fibres.
+    pub fibres: usize,
+    /// Fibre radius, nm.
+    pub fibre_radius_nm: f64,
+    /// Fibre length, nm.
+    pub fibre_length_nm: f64,
+    /// Nominal fibre volume fraction N·πr²ℓ/V.
+    pub fibre_volume_fraction_nominal: f64,
+    /// Achieved obstacle volume fraction of `region` (Monte Carlo, or exact
+    /// with standard error 0 when nothing overlaps).
+    pub covered: Estimate,
+    /// What the fraction is of ("the box", "the membrane's pores" …).
+    pub region: String,
+}
+
+impl ObstacleSummary {
+    /// True when there are neither spheres nor fibres.
+    pub fn is_empty(&self) -> bool {
+        self.spheres == 0 && self.fibres == 0
+    }
+}
+
+/// One species as the scenario defines it, and what it implies.
+#[derive(Debug, Clone)]
+pub struct SpeciesCheck {
+    /// Name.
+    pub name: String,
+    /// A crowder (mobile obstacle) rather than a tracer.
+    pub crowder: bool,
+    /// Number of particles.
+    pub count: usize,
+    /// Contact radius, nm.
+    pub radius_nm: f64,
+    /// Hydrodynamic radius, nm.
+    pub drag_radius_nm: f64,
+    /// Free diffusivity, m²/s.
+    pub d0_m2_per_s: f64,
+    /// D0 given in the scenario (otherwise Stokes–Einstein).
+    pub d0_explicit: bool,
+    /// RMS step per axis, nm.
+    pub step_rms_nm: f64,
+    /// RMS step per axis over the radius.
+    pub step_over_radius: f64,
+    /// N·(4/3)πa³/V of the box.
+    pub volume_fraction: f64,
+    /// Fraction of the box open to the centre (walls and obstacles).
+    pub open: Estimate,
+    /// Every published model for this species.
+    pub models: ModelTable,
+}
+
+/// λ, steric partition and hindrance factors of one species in the
+/// scenario's geometry.
+#[derive(Debug, Clone, Serialize)]
+pub struct SpeciesConfinement {
+    /// Species name.
+    pub species: String,
+    /// λ = a/r_pore (cylinder, membrane's narrowest pore) or a/h (slit).
+    pub lambda: Option<f64>,
+    /// Steric partition coefficient Φ (exact).
+    pub partition: Option<f64>,
+    /// Fraction of the box open to the centre, walls alone (exact).
+    pub open_fraction: f64,
+    /// K_d, K_c, H and W with their sources; `None` for a plane wall.
+    pub hindrance: Option<Hindrance>,
+}
+
+/// One hindrance factor and where it comes from.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Quoted {
+    /// The value; `None` when no source gives one here.
+    pub value: Option<f64>,
+    /// Its source, or why there is no value.
+    pub source: String,
+}
+
+impl Quoted {
+    fn of(value: models::ModelResult<f64>, source: &str) -> Self {
+        match value {
+            Ok(v) => Quoted {
+                value: Some(v),
+                source: source.into(),
+            },
+            Err(e) => Quoted {
+                value: None,
+                source: e.to_string(),
+            },
+        }
+    }
+}
+
+/// The hindered-transport factors of a pore or slit (Deen 1987 notation):
+/// H = ΦK_d scales diffusive, W = ΦK_c convective transport.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Hindrance {
+    /// Partition coefficient Φ.
+    pub partition: Quoted,
+    /// Diffusive hindrance K_d (section-averaged D/D0).
+    pub kd: Quoted,
+    /// Convective hindrance K_c (mean particle over mean fluid velocity).
+    pub kc: Quoted,
+    /// H = ΦK_d.
+    pub h: Quoted,
+    /// W = ΦK_c.
+    pub w: Quoted,
+    /// Membrane Péclet number K_c vL/(K_d D0); `None` without a flow.
+    pub peclet: Option<f64>,
+}
+
+const DECHADILOK_DEEN: &str = "Dechadilok & Deen (2006)";
+
+/// Hindrance factors of a cylinder at λ: Dechadilok & Deen throughout.
+fn cylinder_hindrance(lambda: f64) -> Hindrance {
+    let phi = models::partition_cylinder(lambda);
+    let h = models::dechadilok_deen_hindrance(lambda);
+    let kd = match (&h, &phi) {
+        (Ok(h), Ok(p)) => Ok(h / p),
+        (Err(e), _) | (_, Err(e)) => Err(e.clone()),
+    };
+    Hindrance {
+        partition: Quoted::of(phi, "steric exclusion (exact)"),
+        kd: Quoted::of(kd, DECHADILOK_DEEN),
+        kc: Quoted::of(models::dechadilok_deen_kc(lambda), DECHADILOK_DEEN),
+        h: Quoted::of(h, DECHADILOK_DEEN),
+        w: Quoted::of(
+            models::dechadilok_deen_convective_hindrance(lambda),
+            DECHADILOK_DEEN,
+        ),
+        peclet: None,
+    }
+}
+
+/// Hindrance factors of a slit of half-width h for a sphere of radius a:
+/// Dechadilok & Deen for diffusion; for convection only the lag-free value
+/// of point tracers is on record.
+fn slit_hindrance(a: f64, half_width: f64) -> Hindrance {
+    let lambda = a / half_width;
+    let phi = models::partition_slit(a, half_width);
+    let h = models::dechadilok_deen_slit_hindrance(lambda);
+    let kd = match (&h, &phi) {
+        (Ok(h), Ok(p)) => Ok(h / p),
+        (Err(e), _) | (_, Err(e)) => Err(e.clone()),
+    };
+    let kc = models::lag_free_kc_slit(lambda);
+    let w = match (&kc, &phi) {
+        (Ok(k), Ok(p)) => Ok(k * p),
+        (Err(e), _) | (_, Err(e)) => Err(e.clone()),
+    };
+    let lag_free =
+        "point tracer without hydrodynamic lag in plane Poiseuille flow (exact for that model)";
+    Hindrance {
+        partition: Quoted::of(phi, "steric exclusion (exact)"),
+        kd: Quoted::of(kd, "Dechadilok & Deen (2006), slit"),
+        kc: Quoted::of(kc, lag_free),
+        h: Quoted::of(h, "Dechadilok & Deen (2006), slit"),
+        w: Quoted::of(w, lag_free),
+        peclet: None,
+    }
+}
+
+/// Builds the report `check` prints for `scenario`: obstacles are placed
+/// and fractions estimated exactly as `run` will see them (same seed).
+///
+/// # Errors
+/// The obstacles cannot be placed, or a confinement's λ is out of range.
+pub fn check_report(scenario: &Scenario) -> Result<CheckReport, CheckError> {
+    let mut warnings = scenario.warnings();
+    let regimes: Vec<RegimeEstimate> = scenario
+        .species
+        .iter()
+        .filter_map(|s| long_time_regime(scenario, &s.name))
+        .collect();
+    for r in regimes.iter().filter(|r| r.too_short()) {
+        warnings.push(format!(
+            "species '{}': the run lasts {:.2e} s, shorter than the {:.2e} s the long-time regime needs (τ_c ≈ {:.2e} s from {} ℓ = {:.1} nm; rule of thumb): D_eff would be an apparent value; raise integrator.steps to at least {}",
+            r.species,
+            r.duration_s,
+            r.recommended_duration_s,
+            r.crossover_s,
+            r.basis,
+            r.length_scale_nm,
+            (r.recommended_duration_s / scenario.dt_s).ceil() as u64
+        ));
+    }
+    let volume: f64 = scenario.sim_box.edges_nm.iter().product();
+    // Placed exactly as `run` will place them (same seed, same streams).
+    let obstacles = FixedObstacles::build(scenario)?;
+    let region = Region::of(scenario);
+    let covered =
+        obstacles.volume_fraction_in(&region, &scenario.sim_box, CHECK_SAMPLES, scenario.seed);
+    // Walls, pores and membranes have exact open fractions (geometry.rs); with obstacles too, Monte Carlo.
+    let open: Vec<Estimate> = scenario
+        .species
+        .iter()
+        .map(|s| match &scenario.geometry {
+            Some(g) if !obstacles.is_empty() => obstacles.open_fraction_where(
+                &scenario.sim_box,
+                s.radius_nm,
+                CHECK_SAMPLES,
+                scenario.seed,
+                |p| g.shape.allows(p, s.radius_nm),
+            ),
+            Some(g) => Estimate {
+                value: g
+                    .shape
+                    .open_fraction(s.radius_nm, &scenario.sim_box.edges_nm),
+                standard_error: 0.0,
+            },
+            None => obstacles.open_fraction(
+                &scenario.sim_box,
+                s.radius_nm,
+                CHECK_SAMPLES,
+                scenario.seed,
+            ),
+        })
+        .collect();
+    let species = scenario
+        .species
+        .iter()
+        .zip(open)
+        .map(|(s, open)| {
+            let step_rms_nm = s.step_rms_nm(scenario.dt_s);
+            SpeciesCheck {
+                name: s.name.clone(),
+                crowder: s.crowder,
+                count: s.count,
+                radius_nm: s.radius_nm,
+                drag_radius_nm: s.drag_radius_nm,
+                d0_m2_per_s: s.d0_m2_per_s,
+                d0_explicit: s.d0_explicit,
+                step_rms_nm,
+                step_over_radius: step_rms_nm / s.radius_nm,
+                volume_fraction: s.count as f64 * 4.0 / 3.0
+                    * std::f64::consts::PI
+                    * s.radius_nm.powi(3)
+                    / volume,
+                open,
+                models: scenario_model_table(scenario, &s.name),
+            }
+        })
+        .collect();
+    let placement = match &scenario.obstacles {
+        Some(ObstacleSpec::Generated { generator, .. }) => generator.name().to_string(),
+        Some(ObstacleSpec::File { path, .. }) => format!("from {}", path.display()),
+        None => String::new(),
+    };
+    Ok(CheckReport {
+        warnings,
+        regimes,
+        memory_estimate_bytes: thicket_engine::scenario::memory::estimate(scenario).total_bytes(),
+        obstacles: ObstacleSummary {
+            spheres: obstacles.spheres.len(),
+            placement,
+            fibres: obstacles.fibres.len(),
+            fibre_radius_nm: obstacles.fibres.radius_nm,
+            fibre_length_nm: obstacles.fibres.length_nm,
+            fibre_volume_fraction_nominal: obstacles
+                .fibres
+                .nominal_volume_fraction(&scenario.sim_box),
+            covered,
+            region: region.describe().to_string(),
+        },
+        species,
+        confinement: confinement(scenario)?,
+    })
+}
+
+/// λ, partition and hindrance of each species in the scenario's geometry.
+fn confinement(scenario: &Scenario) -> Result<Option<Vec<SpeciesConfinement>>, CheckError> {
+    let Some(g) = &scenario.geometry else {
+        return Ok(None);
+    };
+    let edges = scenario.sim_box.edges_nm;
+    let mut out = Vec::new();
+    for s in &scenario.species {
+        let a = s.radius_nm;
+        let (lambda, partition, hindrance) = match &g.shape {
+            Shape::PlaneWall { .. } => (None, None, None),
+            Shape::Slit { width_nm } => {
+                let h = 0.5 * width_nm;
+                (
+                    Some(a / h),
+                    Some(models::partition_slit(a, h)?),
+                    Some(slit_hindrance(a, h)),
+                )
+            }
+            Shape::Cylinder { radius_nm, .. } => {
+                let lambda = a / radius_nm;
+                (
+                    Some(lambda),
+                    Some(models::partition_cylinder(lambda)?),
+                    Some(cylinder_hindrance(lambda)),
+                )
+            }
+            Shape::Membrane(m) => {
+                let r_min = m
+                    .pores
+                    .iter()
+                    .map(|p| p.radius_nm)
+                    .fold(f64::INFINITY, f64::min);
+                let lambda = a / r_min;
+                (
+                    Some(lambda),
+                    Some(m.steric_partition(a)),
+                    Some(cylinder_hindrance(lambda)),
+                )
+            }
+        };
+        out.push(SpeciesConfinement {
+            species: s.name.clone(),
+            lambda,
+            partition,
+            open_fraction: g.shape.open_fraction(a, &edges),
+            hindrance,
+        });
+    }
+    Ok(Some(out))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn cylinder_hindrance_is_the_published_set() {
+        // REFERENCES.md: Φ = (1 − λ)² exact; Dechadilok & Deen H = 0.2033 at λ = 0.3 (this
+        // page's own evaluation); H = ΦK_d and W = ΦK_c by definition (Deen 1987).
+        let h = cylinder_hindrance(0.3);
+        let v = |q: &Quoted| q.value.unwrap();
+        assert!((v(&h.partition) - 0.49).abs() < 1e-15);
+        assert!((v(&h.h) - 0.2033).abs() < 1e-4);
+        assert!((v(&h.partition) * v(&h.kd) - v(&h.h)).abs() < 1e-15);
+        assert!((v(&h.partition) * v(&h.kc) - v(&h.w)).abs() < 1e-15);
+        assert!(h.kd.source.contains("Dechadilok"));
+        // Beyond the fit range the factor keeps its row with the reason.
+        let wide = cylinder_hindrance(0.97);
+        assert!(wide.kd.value.is_none() && wide.kd.source.contains("0.95"));
+    }
+
+    #[test]
+    fn slit_hindrance_is_the_published_set() {
+        // REFERENCES.md (Dechadilok & Deen 2006, slit, from memory): λ = 0.2 → H/Φ = 0.7290;
+        // Φ = 1 − a/h exact.
+        let h = slit_hindrance(1.0, 5.0);
+        assert!((h.partition.value.unwrap() - 0.8).abs() < 1e-15);
+        assert!((h.kd.value.unwrap() - 0.7290).abs() < 5e-4);
+        // Lag-free K_c of plane Poiseuille flow over |ζ| ≤ 0.8: 1.5(1 − 0.64/3) = 1.18 (exact).
+        assert!((h.kc.value.unwrap() - 1.18).abs() < 1e-12);
+    }
+}
