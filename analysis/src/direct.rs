@@ -135,7 +135,7 @@ pub fn advance_confined(c: &mut Stepper, state: &mut State, steps: u64, block: u
             totals = counts;
         } else {
             for (t, b) in totals.iter_mut().zip(counts) {
-                *t = *t + b;
+                *t += b;
             }
         }
         done += n;

@@ -16,6 +16,7 @@ pub fn dt_for_sigma(sigma_nm: f64) -> f64 {
 }
 
 /// Scenario text with one tracer species; `extra` holds further sections.
+#[allow(clippy::too_many_arguments)]
 pub fn scenario_text(
     seed: u64,
     edges: [f64; 3],

@@ -184,11 +184,14 @@ fn check_parent(out: &Path) -> Result<()> {
     Ok(())
 }
 
+/// Observers' checkpoint parts by name.
+type Parts = Vec<(String, String)>;
+
 fn resume_state(
     scenario: &Scenario,
     out: &Path,
     ckpt_path: &Path,
-) -> Result<(State, TrajectoryWriter, Vec<(String, String)>)> {
+) -> Result<(State, TrajectoryWriter, Parts)> {
     if !out.exists() {
         return Err(EngineError::Resume {
             file: out.to_path_buf(),

@@ -59,7 +59,7 @@ impl MembraneMeter {
     /// Adds the counts of one block.
     pub fn add(&mut self, block: &[Counts]) {
         for (t, b) in self.totals.iter_mut().zip(block) {
-            *t = *t + *b;
+            *t += *b;
         }
     }
 

@@ -43,6 +43,7 @@ const WALLED_CHUNK: usize = 1024;
 pub const OPEN_START_ATTEMPTS: u64 = 1_000_000;
 
 /// One particle's step: propose, fold at the boundary, accept or keep.
+#[allow(clippy::too_many_arguments)]
 #[inline(always)]
 fn one_step<D: Displacement, B: Boundary, C: Contact>(
     d: &D,

@@ -1,0 +1,34 @@
+#!/usr/bin/env bash
+# Step throughput of two thicket binaries on the same scenarios, measured in
+# one interleaved run (old, new, old, new, ...) so machine noise hits both:
+# prints the best wall time of each and the ratio new/old per scenario.
+#   usage: benches/compare-binaries.sh OLD_BINARY NEW_BINARY [REPEATS]
+set -euo pipefail
+old=$1; new=$2; repeats=${3:-5}
+root=$(cd "$(dirname "$0")/.." && pwd)
+work=$(mktemp -d); trap 'rm -rf "$work"' EXIT
+# name | scenario | overrides (a few seconds of stepping each, recording rare)
+cases=(
+  "free|configs/free.toml|--set species.bead.count=20000 --set integrator.steps=20000 --set output.record_every_steps=10000"
+  "obstructed|configs/crowded.toml|--set species.probe.count=4000 --set integrator.steps=20000 --set output.record_every_steps=10000"
+  "crowding|configs/mobile.toml|--set integrator.steps=6000 --set output.record_every_steps=3000"
+  "slit-hydro|configs/slit.toml|--set species.globin.count=4000 --set integrator.steps=20000 --set output.record_every_steps=10000"
+  "pore-hydro|configs/pore.toml|--set species.dextrin.count=4000 --set integrator.steps=20000 --set output.record_every_steps=10000"
+  "membrane|configs/membrane.toml|--set species.solute.count=4000 --set integrator.steps=20000 --set output.record_every_steps=10000 --set geometry.flux_after_s=1e-6"
+)
+printf "%-12s %10s %10s %8s\n" scenario old_s new_s new/old
+for c in "${cases[@]}"; do
+  IFS='|' read -r name cfg sets <<<"$c"
+  best_old=1e9; best_new=1e9
+  for ((r = 0; r < repeats; r++)); do
+    for which in old new; do
+      bin=${!which}
+      start=$(date +%s.%N)
+      # shellcheck disable=SC2086
+      "$bin" run "$root/$cfg" --out "$work/$name-$which.h5" --force $sets >/dev/null 2>&1
+      t=$(echo "$(date +%s.%N) - $start" | bc -l)
+      if [ "$which" = old ]; then best_old=$(echo "if ($t < $best_old) $t else $best_old" | bc -l); else best_new=$(echo "if ($t < $best_new) $t else $best_new" | bc -l); fi
+    done
+  done
+  printf "%-12s %10.3f %10.3f %8.3f\n" "$name" "$best_old" "$best_new" "$(echo "$best_new / $best_old" | bc -l)"
+done
