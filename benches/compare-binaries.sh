@@ -19,16 +19,22 @@ cases=(
 printf "%-12s %10s %10s %8s\n" scenario old_s new_s new/old
 for c in "${cases[@]}"; do
   IFS='|' read -r name cfg sets <<<"$c"
-  best_old=1e9; best_new=1e9
+  best_old=0; best_new=0
   for ((r = 0; r < repeats; r++)); do
     for which in old new; do
       bin=${!which}
-      start=$(date +%s.%N)
+      start=$(date +%s%N)
       # shellcheck disable=SC2086
-      "$bin" run "$root/$cfg" --out "$work/$name-$which.h5" --force $sets >/dev/null 2>&1
-      t=$(echo "$(date +%s.%N) - $start" | bc -l)
-      if [ "$which" = old ]; then best_old=$(echo "if ($t < $best_old) $t else $best_old" | bc -l); else best_new=$(echo "if ($t < $best_new) $t else $best_new" | bc -l); fi
+      if ! "$bin" run "$root/$cfg" --out "$work/$name-$which.h5" --force $sets >"$work/log" 2>&1; then
+        echo "$which failed on $name:"; cat "$work/log"; exit 1
+      fi
+      t=$(( $(date +%s%N) - start ))
+      if [ "$which" = old ]; then
+        if [ "$best_old" -eq 0 ] || [ "$t" -lt "$best_old" ]; then best_old=$t; fi
+      else
+        if [ "$best_new" -eq 0 ] || [ "$t" -lt "$best_new" ]; then best_new=$t; fi
+      fi
     done
   done
-  printf "%-12s %10.3f %10.3f %8.3f\n" "$name" "$best_old" "$best_new" "$(echo "$best_new / $best_old" | bc -l)"
+  awk -v n="$name" -v o="$best_old" -v w="$best_new" 'BEGIN { printf "%-12s %10.3f %10.3f %8.3f\n", n, o / 1e9, w / 1e9, w / o }'
 done

@@ -14,8 +14,9 @@ use std::f64::consts::PI;
 use thicket_engine::obstacles::spheres::{FixedObstacles, Region};
 use thicket_engine::scenario::media::Orientation;
 use thicket_engine::scenario::media::{Generator, ObstacleSpec};
-use thicket_engine::space::mobility::mean_parallel_mobility;
+use thicket_engine::space::pore_hydro::PoreModel;
 use thicket_engine::space::shape::{PoreLayout, Shape};
+use thicket_engine::step::pipeline::mean_axial_mobility;
 use thicket_engine::Scenario;
 
 /// A tracer counts as point-like when its radius is at most this fraction
@@ -527,11 +528,12 @@ pub fn scenario_model_table(scenario: &Scenario, species: &str) -> ModelTable {
         let wall_model = |quantity: &str, compares: bool| {
             let (value, source) = if hydro {
                 (
-                    mean_parallel_mobility(&g.shape, a, tracer.drag_radius_nm)
+                    mean_axial_mobility(g, a, tracer.drag_radius_nm)
                         .ok_or_else(|| "no parallel mobility for this shape".to_string()),
                     match &g.shape {
                         Shape::Slit { .. } => "this engine's wall model: Faxén D∥ of each wall, the two superposed, averaged over the gap",
-                        Shape::Cylinder { .. } => "this engine's wall model: Faxén D∥ at the nearest wall (planar approximation of the pore), averaged over the open cross-section",
+                        Shape::Cylinder { .. } if g.pore_model == PoreModel::Cylinder => "this engine's pore model: axial mobility of a sphere in a cylinder by radial position (Bungay & Brenner 1973 on the axis, Faxén near the wall), whose section average is Dechadilok & Deen's (2006) K_d",
+                        Shape::Cylinder { .. } => "this engine's wall model: Faxén D∥ at the nearest wall (planar approximation of the pore, pore_mobility = \"nearest_wall\"), averaged over the open cross-section",
                         _ => "this engine's wall model: Faxén D∥ at the wall, averaged over the open space",
                     },
                 )

@@ -19,8 +19,15 @@ const BINS: usize = 20;
 const CHI2_19_P001: f64 = 43.82;
 
 fn pore(hydro: bool, count: usize, windows: u64) -> Scenario {
+    // These tests pin the nearest-wall approximation, kept selectable for comparison;
+    // the cylinder model has its own tests (confinement_pore_model.rs).
+    let model = if hydro {
+        "\npore_mobility = \"nearest_wall\""
+    } else {
+        ""
+    };
     let geometry =
-        format!("kind = \"cylinder\"\npore_radius_nm = {R}\nwall_hydrodynamics = {hydro}");
+        format!("kind = \"cylinder\"\npore_radius_nm = {R}\nwall_hydrodynamics = {hydro}{model}");
     scenario(
         21,
         [2.0 * R, 2.0 * R, 40.0],

@@ -7,7 +7,7 @@ use super::{check, Area, Comparison, Group, Mode, Outcome};
 use crate::direct::{advance_confined, chi_square_flat, mean_se, CHI2_19_P001};
 use crate::models;
 use std::path::Path;
-use thicket_engine::space::mobility::mean_parallel_mobility;
+use thicket_engine::step::pipeline::mean_axial_mobility;
 
 pub(super) fn groups() -> Vec<Group> {
     vec![
@@ -145,12 +145,12 @@ fn pore(hydro: bool, mode: Mode, _dir: &Path) -> Outcome {
             .standard_errors(5.0),
         ]);
     }
-    let shape = &s.geometry.as_ref().ok_or("no geometry")?.shape;
-    let model = mean_parallel_mobility(shape, A, A).ok_or("no section-averaged mobility")?;
+    let geometry = s.geometry.as_ref().ok_or("no geometry")?;
+    let model = mean_axial_mobility(geometry, A, A).ok_or("no section-averaged mobility")?;
     Ok(vec![
         check(
             "cylindrical pore, λ = 0.2, with wall hydrodynamics: axial D_eff/D0",
-            "exact for the model: ⟨Δz²⟩ = 2⟨D∥⟩t over the uniform section, Faxén D∥ at the nearest-wall distance (REFERENCES.md)",
+            "exact for the model: ⟨Δz²⟩ = 2⟨D_zz⟩t over the uniform section; the cylinder model's average is Dechadilok & Deen's (2006) K_d (REFERENCES.md)",
             model,
             d,
             se,

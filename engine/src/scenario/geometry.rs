@@ -4,6 +4,7 @@
 use crate::base::error::{EngineError, Result};
 use crate::scenario::species::Species;
 use crate::space::mobility::PerpendicularModel;
+use crate::space::pore_hydro::PoreModel;
 use crate::space::shape::{Membrane, Pore, PoreGrid, PoreLayout, Shape, MAX_PORES};
 use serde::{Deserialize, Serialize};
 use std::path::{Path, PathBuf};
@@ -19,6 +20,9 @@ pub struct Geometry {
     /// Membranes: start of the steady-state window over which flux and
     /// occupancy are averaged, s (default: half the run).
     pub flux_after_s: f64,
+    /// Cylinders with wall hydrodynamics: which pore mobility (default the
+    /// cylinder model; the nearest-wall approximation for comparison).
+    pub pore_model: PoreModel,
 }
 
 impl Geometry {
@@ -37,6 +41,10 @@ impl Geometry {
             ),
             (Some(m), Shape::PlaneWall { .. }) => format!(
                 "on: D∥ by Faxén's series and D⊥ by the {} for the wall at z = 0 (the lid at the top has none), with the Itô drift dD⊥/dz",
+                m.name()
+            ),
+            (Some(m), Shape::Cylinder { .. }) if self.pore_model == PoreModel::Cylinder => format!(
+                "on, cylinder model: axial, radial and azimuthal mobility by radial position (Bungay & Brenner 1973 on the axis, Faxén and the {} near the wall, section averages of Dechadilok & Deen 2006), with the Itô drift ∇·D",
                 m.name()
             ),
             (Some(m), _) => format!(
@@ -229,10 +237,36 @@ impl Geometry {
                 ))
             }
         };
+        let pore_model = match (raw.pore_mobility.as_deref(), &shape, hydrodynamics) {
+            (None | Some("cylinder"), _, _) => PoreModel::Cylinder,
+            (Some("nearest_wall"), Shape::Cylinder { .. }, Some(_)) => PoreModel::NearestWall,
+            (Some("nearest_wall"), _, _) => {
+                return Err(bad(
+                    "pore_mobility",
+                    "\"nearest_wall\"".into(),
+                    "it is only used with kind = \"cylinder\" and wall_hydrodynamics = true".into(),
+                ))
+            }
+            (Some(other), _, _) => {
+                return Err(bad(
+                    "pore_mobility",
+                    format!("{other:?}"),
+                    "allowed: \"cylinder\" (the default: position-dependent mobility of a sphere in a cylinder) or \"nearest_wall\" (planar approximation, for comparison)".into(),
+                ))
+            }
+        };
+        if raw.pore_mobility.is_some() && (kind != "cylinder" || hydrodynamics.is_none()) {
+            return Err(bad(
+                "pore_mobility",
+                "(given)".into(),
+                "it is only used with kind = \"cylinder\" and wall_hydrodynamics = true".into(),
+            ));
+        }
         Ok(Geometry {
             shape,
             hydrodynamics,
             flux_after_s,
+            pore_model,
         })
     }
 }
@@ -508,6 +542,10 @@ pub struct RawGeometry {
     /// "brenner" (default) or "bevan_prieve", with `wall_hydrodynamics = true`.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub perpendicular_model: Option<String>,
+    /// "cylinder" (default) or "nearest_wall": the pore mobility with
+    /// `wall_hydrodynamics = true` in a "cylinder".
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pore_mobility: Option<String>,
     /// Pore radius in nm ("cylinder"; "membrane" with arranged pores).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub pore_radius_nm: Option<f64>,

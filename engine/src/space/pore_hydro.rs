@@ -410,6 +410,26 @@ fn combine(near: (f64, f64), far: (f64, f64), ds: f64, excess: f64, d_excess: f6
     (f, df)
 }
 
+/// Which mobility a sphere has in a cylindrical pore with wall hydrodynamics.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PoreModel {
+    /// [`CylinderMobility`]: Bungay–Brenner on the axis, plane-wall forms
+    /// near the wall, section averages of Dechadilok & Deen (the default).
+    Cylinder,
+    /// Only the nearest wall, treated as a plane at its distance (kept for comparison).
+    NearestWall,
+}
+
+impl PoreModel {
+    /// The scenario key's value.
+    pub fn name(self) -> &'static str {
+        match self {
+            PoreModel::Cylinder => "cylinder",
+            PoreModel::NearestWall => "nearest_wall",
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -200,3 +200,45 @@ impl Displacement for NearestWall {
         ]
     }
 }
+
+/// Wall hydrodynamics in a cylindrical pore along z: the position-dependent
+/// tensor of a sphere in a cylinder (`space::pore_hydro`), D = D0 (f_r e_r e_r
+/// + f_θ e_θ e_θ + f_z e_z e_z), with the Itô drift (∇·D)_r along e_r.
+#[derive(Debug, Clone)]
+pub struct PoreTensor {
+    /// Nodes [σ_z, σ_r, σ_θ, (∇·D)_r Δt] against the gap h = (R − a) − r.
+    pub table: MobilityTable,
+    /// Axis position (x, y), nm.
+    pub axis_nm: [f64; 2],
+    /// R − a, nm: the largest distance of the centre from the axis.
+    pub open_nm: f64,
+    /// Whether the Itô drift is applied.
+    pub ito_drift: bool,
+}
+
+impl Displacement for PoreTensor {
+    const SYMMETRIC: bool = false;
+    const INTERLEAVE: bool = true;
+
+    #[inline(always)]
+    fn draw(&self, x: &[f64; 3], g: &mut ParticleRng) -> [f64; 3] {
+        let xi = [standard_normal(g), standard_normal(g), standard_normal(g)];
+        let (dx, dy) = (x[0] - self.axis_nm[0], x[1] - self.axis_nm[1]);
+        let rho = (dx * dx + dy * dy).sqrt();
+        let v = self.table.eval(self.open_nm - rho);
+        // On the axis f_r = f_θ, so any radial direction serves.
+        let (c, s) = if rho > 0.0 {
+            (dx / rho, dy / rho)
+        } else {
+            (1.0, 0.0)
+        };
+        let drift = if self.ito_drift { v[3] } else { 0.0 };
+        let radial = drift + v[1] * xi[0];
+        let around = v[2] * xi[1];
+        [
+            radial * c - around * s,
+            radial * s + around * c,
+            v[0] * xi[2],
+        ]
+    }
+}

@@ -17,6 +17,7 @@ use crate::space::mobility::{
     superpose_two_walls, superpose_two_walls_with_gradient, PerpendicularModel, WallMobilityTable,
 };
 use crate::space::neighbors::{Blocker, ObstacleGrid};
+use crate::space::pore_hydro::{CylinderMobility, PoreModel};
 use crate::space::shape::Shape;
 use crate::space::SimBox;
 use crate::step::boundary::{
@@ -24,7 +25,9 @@ use crate::step::boundary::{
 };
 use crate::step::contact::{Contact, NoContact, Reject};
 use crate::step::crowd::{place_crowd, Crowd};
-use crate::step::displacement::{Displacement, Isotropic, MobilityTable, NearestWall, PlanarWalls};
+use crate::step::displacement::{
+    Displacement, Isotropic, MobilityTable, NearestWall, PlanarWalls, PoreTensor,
+};
 use crate::step::state::{draw_starts, kinetics, Kinetics, State};
 use rayon::prelude::*;
 
@@ -210,6 +213,7 @@ enum Move {
     Free(Isotropic),
     Planar(PlanarWalls),
     Nearest(NearestWall),
+    Pore(PoreTensor),
 }
 
 /// What folds one species' moves.
@@ -301,6 +305,11 @@ impl Stepper {
                             ito_drift: true,
                         })
                     }
+                    (Some(_), Shape::Cylinder { radius_nm, axis_nm })
+                        if geometry.pore_model == PoreModel::Cylinder =>
+                    {
+                        Move::Pore(pore_tensor(*radius_nm, *axis_nm, a, sigma, geometry))
+                    }
                     (Some(t), shape) => Move::Nearest(NearestWall {
                         shape: shape.clone(),
                         table: t.clone(),
@@ -375,6 +384,7 @@ impl Stepper {
                 Move::Free(_) => {}
                 Move::Planar(w) => w.ito_drift = false,
                 Move::Nearest(w) => w.ito_drift = false,
+                Move::Pore(w) => w.ito_drift = false,
             }
         }
         self
@@ -525,6 +535,7 @@ impl Stepper {
                     Move::Free(d) => self.with_boundary(s, d, state, steps),
                     Move::Planar(d) => self.with_boundary(s, d, state, steps),
                     Move::Nearest(d) => self.with_boundary(s, d, state, steps),
+                    Move::Pore(d) => self.with_boundary(s, d, state, steps),
                 }
             })
             .collect();
@@ -614,6 +625,58 @@ impl Stepper {
     /// Radius of species `s`, nm.
     pub fn radius_nm(&self, s: usize) -> f64 {
         self.pipelines[s].radius_nm
+    }
+}
+
+/// The cylinder model of one species as a table over the gap to the wall.
+fn pore_tensor(r: f64, axis: [f64; 2], a: f64, sigma: f64, geometry: &Geometry) -> PoreTensor {
+    let model = geometry
+        .hydrodynamics
+        .unwrap_or(PerpendicularModel::Brenner);
+    // Validation keeps a < R; λ from the steric radius (the sphere that touches the wall).
+    let m = CylinderMobility::new(a / r, model).expect("validated: the tracer fits the pore");
+    let d0_dt = 0.5 * sigma * sigma;
+    let open = r - a;
+    let table = MobilityTable::build(a, open, |h| {
+        let beta = ((open - h) / r).max(0.0);
+        let f = m.eval(beta);
+        [
+            sigma * f.axial.max(0.0).sqrt(),
+            sigma * f.radial.max(0.0).sqrt(),
+            sigma * f.azimuthal.max(0.0).sqrt(),
+            // radial_drift is in units of D0/R.
+            f.radial_drift * d0_dt / r,
+        ]
+    });
+    PoreTensor {
+        table,
+        axis_nm: axis,
+        open_nm: open,
+        ito_drift: true,
+    }
+}
+
+/// Mean axial (slit: lateral) mobility ⟨D∥⟩/D0 over the space open to the
+/// centre in the wall model the step uses: what a run with wall
+/// hydrodynamics must reproduce exactly (those moves have no drift and the
+/// equilibrium density is uniform). `None` for membranes.
+pub fn mean_axial_mobility(
+    geometry: &Geometry,
+    radius_nm: f64,
+    drag_radius_nm: f64,
+) -> Option<f64> {
+    match &geometry.shape {
+        Shape::Cylinder { radius_nm: r, .. } if geometry.pore_model == PoreModel::Cylinder => {
+            CylinderMobility::new(
+                radius_nm / r,
+                geometry
+                    .hydrodynamics
+                    .unwrap_or(PerpendicularModel::Brenner),
+            )
+            .ok()
+            .map(|m| m.averaged_axial_mobility())
+        }
+        shape => crate::space::mobility::mean_parallel_mobility(shape, radius_nm, drag_radius_nm),
     }
 }
 
