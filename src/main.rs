@@ -8,6 +8,7 @@ mod demo;
 mod models;
 mod progress;
 mod run;
+mod slurm;
 mod sweep;
 mod tracks;
 mod validate;
@@ -157,6 +158,11 @@ enum Command {
         /// Rerun points whose results exist.
         #[arg(long)]
         force: bool,
+        /// Worker threads (default: all cores). Results do not depend on it.
+        #[arg(long, value_parser = parse_threads)]
+        threads: Option<usize>,
+        #[command(flatten)]
+        slurm: slurm::SlurmArgs,
     },
     /// Run the published checks of the test suite (free, obstruction, crowders, walls, pores,
     /// membranes, camera) and report each with its source (exit 1 on a failure).
@@ -324,12 +330,21 @@ fn main() -> ExitCode {
             shard,
             merge,
             force,
+            threads,
+            slurm,
         } => {
             // By default the folder is named after the sweep file, in the current folder.
             let out = out.unwrap_or_else(|| {
                 PathBuf::from(sweep.file_stem().unwrap_or_else(|| "sweep".as_ref()))
             });
-            sweep::sweep(&sweep, &out, shard.as_deref(), merge, force)
+            if slurm.status {
+                slurm::status(&sweep, &out)
+            } else if slurm.slurm {
+                slurm::submit(&sweep, &out, &slurm)
+            } else {
+                run::set_threads(threads)
+                    .and_then(|_| sweep::sweep(&sweep, &out, shard.as_deref(), merge, force))
+            }
         }
         Command::Validate { quick, json } => validate::validate(quick, json),
         Command::Demo { out, force } => demo::demo(&out, force),

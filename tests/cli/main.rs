@@ -11,6 +11,7 @@ mod outputs;
 mod outside;
 mod results;
 mod resume;
+mod slurm;
 mod support;
 mod threads;
 mod validate;
