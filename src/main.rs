@@ -70,6 +70,9 @@ enum Command {
         /// Continue an interrupted run from its checkpoint.
         #[arg(long, conflicts_with = "force")]
         resume: bool,
+        /// Run only part I of N of the ensemble (non-interacting tracers: each species cut into N particle ranges, same medium and streams); default file NAME.partIofN.h5. `thicket analyze` joins the parts.
+        #[arg(long, value_name = "I/N")]
+        ensemble_part: Option<String>,
     },
     /// Validate a scenario and print derived quantities and warnings.
     Check {
@@ -121,6 +124,9 @@ enum Command {
     Analyze {
         /// Trajectory (HDF5, H5MD layout), or a tracks CSV: from `thicket tracks` (estimates against the truth beside it) or another pipeline (see the tracks CSV options).
         file: PathBuf,
+        /// The other parts of an ensemble split with `thicket run --ensemble-part I/N`: all N files are analysed as one ensemble.
+        #[arg(value_name = "MORE_PARTS")]
+        more: Vec<PathBuf>,
         /// Print one JSON object instead of a table.
         #[arg(long)]
         json: bool,
@@ -256,7 +262,16 @@ fn main() -> ExitCode {
             threads,
             force,
             resume,
-        } => run::run(&config, out, &sets, threads, force, resume),
+            ensemble_part,
+        } => run::run(
+            &config,
+            out,
+            &sets,
+            threads,
+            force,
+            resume,
+            ensemble_part.as_deref(),
+        ),
         Command::Check { config, sets, json } => check::check(&config, &sets, json),
         Command::Models {
             phi,
@@ -264,6 +279,17 @@ fn main() -> ExitCode {
             lambda,
             json,
         } => models::models(&phi, size_ratio, &lambda, json),
+        Command::Analyze { file, more, .. }
+            if !more.is_empty()
+                && std::iter::once(&file)
+                    .chain(&more)
+                    .any(|f| f.extension().is_some_and(|e| e.eq_ignore_ascii_case("csv"))) =>
+        {
+            Err(anyhow::anyhow!(
+                "{}: several files are joined only as the parts of a split trajectory (.h5); analyse a tracks CSV on its own",
+                file.display()
+            ))
+        }
         Command::Analyze {
             file,
             json,
@@ -273,6 +299,7 @@ fn main() -> ExitCode {
             d0,
             axes,
             track_csv: t,
+            ..
         } if file
             .extension()
             .is_some_and(|e| e.eq_ignore_ascii_case("csv")) =>
@@ -307,6 +334,7 @@ fn main() -> ExitCode {
         )),
         Command::Analyze {
             file,
+            more,
             json,
             plot,
             species,
@@ -316,6 +344,7 @@ fn main() -> ExitCode {
             track_csv,
         } => analyze::analyze_trajectory(&analyze::TrajectoryArgs {
             file: &file,
+            more: &more,
             species: species.as_deref(),
             window: window.as_deref(),
             axes: axes.as_deref(),

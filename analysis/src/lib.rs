@@ -10,6 +10,7 @@ pub mod membrane;
 pub mod model_table;
 pub mod models;
 pub mod msd;
+pub mod parts;
 pub mod plot;
 pub mod profile;
 pub mod read;

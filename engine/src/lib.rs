@@ -16,6 +16,7 @@ pub mod memory;
 pub mod mobility;
 pub mod neighbors;
 pub mod obstacles;
+pub mod part;
 pub mod rng;
 
 pub use config::Scenario;

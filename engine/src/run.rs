@@ -7,6 +7,7 @@ use crate::error::{EngineError, Result};
 use crate::integrate::{Dynamics, State};
 use crate::lock::OutputLock;
 use crate::obstacles::FixedObstacles;
+use crate::part::PartRun;
 use crate::trajectory::{checkpoint_path, recorded_steps, Checkpoint, TrajectoryWriter};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -57,6 +58,32 @@ pub fn run(
     stop: &AtomicBool,
     progress: &mut dyn FnMut(u64, u64),
 ) -> Result<RunOutcome> {
+    drive(scenario, None, options, stop, progress)
+}
+
+/// Runs one part of a split ensemble (see [`crate::part`]) to its end or
+/// until `stop` is set, as [`run`] does a whole scenario.
+///
+/// # Errors
+/// As [`run`].
+pub fn run_part(
+    part: &PartRun,
+    options: &RunOptions,
+    stop: &AtomicBool,
+    progress: &mut dyn FnMut(u64, u64),
+) -> Result<RunOutcome> {
+    drive(&part.scenario, Some(part), options, stop, progress)
+}
+
+/// The one run driver; `part` (whose scenario is `scenario`) only changes
+/// where a new run starts and what the file says it holds.
+fn drive(
+    scenario: &Scenario,
+    part: Option<&PartRun>,
+    options: &RunOptions,
+    stop: &AtomicBool,
+    progress: &mut dyn FnMut(u64, u64),
+) -> Result<RunOutcome> {
     let out = &options.out;
     let ckpt_path = checkpoint_path(out);
     // Obstacles come from the seed, so a resumed run rebuilds the same medium;
@@ -87,12 +114,16 @@ pub fn run(
             })?;
         }
         let _ = std::fs::remove_file(&ckpt_path);
-        let state = match (&dynamics, &confined) {
-            (Some(d), _) => d.initial_state(scenario)?,
-            (None, Some(c)) => c.initial_state(scenario)?,
-            (None, None) => unreachable!("a run has a kernel"),
+        let state = match (part, &dynamics, &confined) {
+            (Some(p), _, _) => p.initial_state(&obstacles)?,
+            (None, Some(d), _) => d.initial_state(scenario)?,
+            (None, None, Some(c)) => c.initial_state(scenario)?,
+            (None, None, None) => unreachable!("a run has a kernel"),
         };
         let mut writer = TrajectoryWriter::create(out, scenario)?;
+        if let Some(p) = part {
+            p.describe(&writer)?;
+        }
         writer.write_obstacles(&obstacles, scenario)?;
         writer.write_frame(&state, 0.0)?;
         writer.flush()?;

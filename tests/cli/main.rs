@@ -4,6 +4,7 @@ mod analysis;
 mod bad_input;
 mod confined;
 mod crash;
+mod ensemble;
 mod file_format;
 mod free;
 mod outputs;
