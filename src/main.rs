@@ -70,6 +70,8 @@ enum Command {
         /// Continue an interrupted run from its checkpoint.
         #[arg(long, conflicts_with = "force")]
         resume: bool,
+        #[command(flatten)]
+        slurm: slurm::SlurmArgs,
         /// Run only part I of N of the ensemble (non-interacting tracers: each species cut into N particle ranges, same medium and streams); default file NAME.partIofN.h5. `thicket analyze` joins the parts.
         #[arg(long, value_name = "I/N")]
         ensemble_part: Option<String>,
@@ -263,6 +265,45 @@ fn main() -> ExitCode {
             force,
             resume,
             ensemble_part,
+            slurm,
+        } if slurm.slurm || slurm.status => {
+            let given: Vec<&str> = [
+                (force, "--force"),
+                (resume, "--resume"),
+                (ensemble_part.is_some(), "--ensemble-part"),
+                (threads.is_some(), "--threads (use --task-cpus)"),
+            ]
+            .into_iter()
+            .filter_map(|(on, name)| on.then_some(name))
+            .collect();
+            // The folder of the parts, by default named after the scenario.
+            let out = out.unwrap_or_else(|| config.with_extension(""));
+            if !given.is_empty() {
+                Err(anyhow::anyhow!(
+                    "{} do not go with --slurm or --status: the tasks choose them",
+                    given.join(", ")
+                ))
+            } else {
+                let work = slurm::Work::Ensemble {
+                    config: &config,
+                    sets: &sets,
+                };
+                if slurm.status {
+                    slurm::status(&work, &out)
+                } else {
+                    slurm::submit(&work, &out, &slurm)
+                }
+            }
+        }
+        Command::Run {
+            config,
+            out,
+            sets,
+            threads,
+            force,
+            resume,
+            ensemble_part,
+            ..
         } => run::run(
             &config,
             out,
@@ -366,10 +407,25 @@ fn main() -> ExitCode {
             let out = out.unwrap_or_else(|| {
                 PathBuf::from(sweep.file_stem().unwrap_or_else(|| "sweep".as_ref()))
             });
-            if slurm.status {
-                slurm::status(&sweep, &out)
+            let work = slurm::Work::Sweep { file: &sweep };
+            let given: Vec<&str> = [
+                (shard.is_some(), "--shard"),
+                (merge, "--merge"),
+                (force, "--force"),
+                (threads.is_some(), "--threads (use --task-cpus)"),
+            ]
+            .into_iter()
+            .filter_map(|(on, name)| on.then_some(name))
+            .collect();
+            if (slurm.status || slurm.slurm) && !given.is_empty() {
+                Err(anyhow::anyhow!(
+                    "{} do not go with --slurm or --status: the tasks choose them",
+                    given.join(", ")
+                ))
+            } else if slurm.status {
+                slurm::status(&work, &out)
             } else if slurm.slurm {
-                slurm::submit(&sweep, &out, &slurm)
+                slurm::submit(&work, &out, &slurm)
             } else {
                 run::set_threads(threads)
                     .and_then(|_| sweep::sweep(&sweep, &out, shard.as_deref(), merge, force))
@@ -405,6 +461,8 @@ fn main() -> ExitCode {
 /// Refuses an `--out` that is empty or an existing folder, naming the option.
 fn check_out_option(command: &Command) -> anyhow::Result<()> {
     let out = match command {
+        // With --slurm or --status, a run's --out is the folder of its parts.
+        Command::Run { slurm, .. } if slurm.slurm || slurm.status => return Ok(()),
         Command::Run { out: Some(o), .. } | Command::Tracks { out: Some(o), .. } => o,
         _ => return Ok(()),
     };

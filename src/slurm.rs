@@ -24,13 +24,13 @@ const DEFAULT_MAX_TASKS: usize = 1000;
 #[derive(clap::Args, Debug, Clone, Default)]
 #[command(next_help_heading = "On a Slurm cluster")]
 pub struct SlurmArgs {
-    /// Submit the sweep to Slurm: a job array with one task per shard, and a merge job that writes the summary once every task succeeded. Submitting again runs only what is failed or missing.
-    #[arg(long, conflicts_with_all = ["shard", "merge", "force"])]
+    /// Submit to Slurm as a job array and a merge job that runs once every task succeeded: a sweep with one task per shard (the merge writes the summary), or a run split into --tasks parts of its ensemble (the merge analyses them together into DIR/analysis.json). Submitting again runs only what is failed or missing.
+    #[arg(long)]
     pub slurm: bool,
-    /// Report each run of the sweep as done, queued, running, failed or missing, and the merge job's state.
-    #[arg(long, conflicts_with_all = ["slurm", "shard", "merge", "force"])]
+    /// Report each run of the sweep (or part of the ensemble) in --out as done, queued, running, failed or missing, and the merge job's state.
+    #[arg(long, conflicts_with = "slurm")]
     pub status: bool,
-    /// Array tasks (shards) to split the runs into (default: one per run, at most 1000; a resubmission keeps the last count).
+    /// Array tasks: for a sweep, the shards to split its runs into (default: one per run, at most 1000; a resubmission keeps the last count); for a run, the parts to split its ensemble into.
     #[arg(long, value_name = "N", requires = "slurm")]
     pub tasks: Option<usize>,
     /// Slurm partition to run in (default: the cluster's default).
@@ -247,86 +247,6 @@ fn array_spec(shards: &[usize]) -> String {
     parts.join(",")
 }
 
-/// The job array script: task k runs shard k+1 of `tasks` with the CPUs it was given.
-fn task_script(
-    args: &SlurmArgs,
-    thicket: &Path,
-    sweep_file: &Path,
-    out: &Path,
-    title: &str,
-    tasks: usize,
-    shards: &[usize],
-) -> String {
-    let mut array = array_spec(shards);
-    if let Some(n) = args.at_once {
-        array.push_str(&format!("%{n}"));
-    }
-    let mut s = String::from("#!/bin/bash\n");
-    s.push_str(&format!("#SBATCH --job-name={}\n", job_name(title)));
-    s.push_str(&format!("#SBATCH --array={array}\n"));
-    s.push_str("#SBATCH --ntasks=1\n");
-    s.push_str(&format!("#SBATCH --cpus-per-task={}\n", args.task_cpus));
-    if let Some(m) = &args.task_memory {
-        s.push_str(&format!("#SBATCH --mem={m}\n"));
-    }
-    s.push_str(&format!(
-        "#SBATCH --output={}/%A_%a.out\n",
-        slurm_dir(out).join("logs").display()
-    ));
-    for line in args.common_lines() {
-        s.push_str(&format!("#SBATCH {line}\n"));
-    }
-    let marks = marks_dir(out);
-    s.push_str(&format!(
-        r#"# Written by thicket: one shard of the sweep per array task (task k runs shard k+1 of {tasks}).
-# The marks tell `thicket sweep --status` that a task started and how it ended.
-set -u
-mark() {{
-  local file={marks}/"${{SLURM_ARRAY_JOB_ID}}_${{SLURM_ARRAY_TASK_ID}}.$1"
-  echo "$2" >"$file.$$.tmp" && mv -f "$file.$$.tmp" "$file"
-}}
-mark started "$(hostname) $(date -u +%Y-%m-%dT%H:%M:%SZ)"
-{thicket} sweep {sweep} --out {out} \
-  --shard "$((SLURM_ARRAY_TASK_ID + 1))/{tasks}" --threads "${{SLURM_CPUS_PER_TASK:-1}}"
-code=$?
-mark exit "$code"
-exit "$code"
-"#,
-        marks = quote(&marks),
-        thicket = quote(thicket),
-        sweep = quote(sweep_file),
-        out = quote(out),
-    ));
-    s
-}
-
-/// The merge job script: joins every shard's results into the summary.
-fn merge_script(
-    args: &SlurmArgs,
-    thicket: &Path,
-    sweep_file: &Path,
-    out: &Path,
-    title: &str,
-) -> String {
-    let mut s = String::from("#!/bin/bash\n");
-    s.push_str(&format!("#SBATCH --job-name={}-merge\n", job_name(title)));
-    s.push_str("#SBATCH --ntasks=1\n#SBATCH --cpus-per-task=1\n");
-    s.push_str(&format!(
-        "#SBATCH --output={}/merge_%j.out\n",
-        slurm_dir(out).join("logs").display()
-    ));
-    for line in args.common_lines() {
-        s.push_str(&format!("#SBATCH {line}\n"));
-    }
-    s.push_str(&format!(
-        "# Written by thicket: the only writer of the summary, run after every task succeeded.\nexec {} sweep {} --out {} --merge --threads 1\n",
-        quote(thicket),
-        quote(sweep_file),
-        quote(out)
-    ));
-    s
-}
-
 /// A job name from the sweep's title: letters, digits, - and _.
 fn job_name(title: &str) -> String {
     let name: String = title
@@ -404,29 +324,253 @@ fn ask_queue() -> Queue {
     Some(queue)
 }
 
-/// The state of every run of the sweep, in run order.
+/// What a submission runs.
+pub enum Work<'a> {
+    /// A sweep file: one task per shard of its runs, merged into the summary.
+    Sweep {
+        /// The sweep file.
+        file: &'a Path,
+    },
+    /// A scenario split into `--tasks` parts of its ensemble, analysed together.
+    Ensemble {
+        /// The scenario file.
+        config: &'a Path,
+        /// Its `--set` overrides.
+        sets: &'a [String],
+    },
+}
+
+/// The units of work (runs of a sweep, parts of an ensemble) of one
+/// submission and how to run them.
+struct Plan {
+    title: String,
+    /// Name of each unit, for the status.
+    names: Vec<String>,
+    /// Which units have their result.
+    done: Vec<bool>,
+    /// Array tasks; unit k belongs to task k mod tasks.
+    tasks: usize,
+    /// The command a task runs (bash; `$SLURM_ARRAY_TASK_ID` and `$SLURM_CPUS_PER_TASK` are set).
+    task_command: String,
+    /// The command of the merge job.
+    merge_command: String,
+    /// What the merge leaves behind.
+    result: PathBuf,
+    /// How to ask for the status again.
+    status_hint: String,
+}
+
+fn part_file(out: &Path, stem: &str, i: usize, n: usize) -> PathBuf {
+    out.join(format!("{stem}.part{i}of{n}.h5"))
+}
+
+/// Builds the plan; `tasks` is the array size asked for (or kept from the
+/// last submission). Paths in the commands are absolute.
+fn plan(work: &Work, out: &Path, tasks: Option<usize>) -> Result<Plan> {
+    let thicket = std::env::current_exe().context("finding the thicket program")?;
+    // The output folder may not exist yet: nothing is created before every check passed.
+    let abs = |p: &Path| -> Result<PathBuf> {
+        if p.exists() {
+            p.canonicalize()
+                .with_context(|| format!("resolving {}", p.display()))
+        } else {
+            Ok(std::env::current_dir()
+                .context("finding the current folder")?
+                .join(p))
+        }
+    };
+    match work {
+        Work::Sweep { file } => {
+            let spec = Sweep::load(file)?;
+            let runs = spec.runs();
+            if let Some(n) = tasks {
+                ensure!(
+                    (1..=runs.len()).contains(&n),
+                    "--tasks {n}: the sweep has {} runs; give 1 to {} tasks",
+                    runs.len(),
+                    runs.len()
+                );
+            }
+            let tasks = tasks.unwrap_or(runs.len().min(DEFAULT_MAX_TASKS));
+            let (file_abs, out_abs) = (abs(file)?, abs(out)?);
+            Ok(Plan {
+                title: spec.title.clone(),
+                names: runs.iter().map(|(p, s)| format!("p{p:04}_s{s}")).collect(),
+                done: runs
+                    .iter()
+                    .map(|&(p, s)| spec.has_result(out, p, s))
+                    .collect(),
+                tasks,
+                task_command: format!(
+                    "{} sweep {} --out {} \\\n  --shard \"$((SLURM_ARRAY_TASK_ID + 1))/{tasks}\" --threads \"${{SLURM_CPUS_PER_TASK:-1}}\"",
+                    quote(&thicket),
+                    quote(&file_abs),
+                    quote(&out_abs)
+                ),
+                merge_command: format!(
+                    "exec {} sweep {} --out {} --merge --threads 1",
+                    quote(&thicket),
+                    quote(&file_abs),
+                    quote(&out_abs)
+                ),
+                result: out.join("summary.json"),
+                status_hint: format!(
+                    "thicket sweep {} --out {} --status",
+                    file.display(),
+                    out.display()
+                ),
+            })
+        }
+        Work::Ensemble { config, sets } => {
+            let n = tasks.ok_or_else(|| {
+                anyhow::anyhow!(
+                    "--slurm with a scenario splits its ensemble: give the number of parts with --tasks N"
+                )
+            })?;
+            let whole = thicket_engine::Scenario::load(config, sets)?;
+            // Refuses crowders, membranes and more parts than particles before anything is written.
+            thicket_engine::part::PartRun::new(
+                &whole,
+                thicket_engine::part::EnsemblePart { index: 0, parts: n },
+            )?;
+            let stem = config
+                .file_stem()
+                .map_or("run".into(), |s| s.to_string_lossy().into_owned());
+            let (config_abs, out_abs) = (abs(config)?, abs(out)?);
+            let done = (1..=n)
+                .map(|i| {
+                    let f = part_file(out, &stem, i, n);
+                    f.exists() && !thicket_engine::trajectory::checkpoint_path(&f).exists()
+                })
+                .collect();
+            let set_args: String = sets
+                .iter()
+                .map(|s| format!(" --set {}", quote(Path::new(s))))
+                .collect();
+            let part = quote(&out_abs.join(format!("{stem}.part")));
+            Ok(Plan {
+                title: stem.clone(),
+                names: (1..=n).map(|i| format!("part{i}of{n}")).collect(),
+                done,
+                tasks: n,
+                task_command: format!(
+                    r#"i=$((SLURM_ARRAY_TASK_ID + 1))
+file={part}"${{i}}of{n}.h5"
+# A part stopped with its checkpoint continues from it; any other is started afresh.
+if [ -e "$file.ckpt" ]; then again=--resume; else again=--force; fi
+{thicket} run {config}{set_args} --ensemble-part "$i/{n}" --out "$file" "$again" \
+  --threads "${{SLURM_CPUS_PER_TASK:-1}}""#,
+                    thicket = quote(&thicket),
+                    config = quote(&config_abs),
+                ),
+                merge_command: format!(
+                    r#"set -e
+{thicket} analyze {parts} --json >{json}.$$.tmp
+mv -f {json}.$$.tmp {json}"#,
+                    thicket = quote(&thicket),
+                    parts = (1..=n)
+                        .map(|i| quote(&part_file(&out_abs, &stem, i, n)))
+                        .collect::<Vec<_>>()
+                        .join(" "),
+                    json = quote(&out_abs.join("analysis.json")),
+                ),
+                result: out.join("analysis.json"),
+                status_hint: format!(
+                    "thicket run {} --out {} --status",
+                    config.display(),
+                    out.display()
+                ),
+            })
+        }
+    }
+}
+
+/// The job array script: task k runs its share of the units with the CPUs it was given.
+fn task_script(args: &SlurmArgs, out: &Path, plan: &Plan, shards: &[usize]) -> String {
+    let mut array = array_spec(shards);
+    if let Some(n) = args.at_once {
+        array.push_str(&format!("%{n}"));
+    }
+    let mut s = String::from("#!/bin/bash\n");
+    s.push_str(&format!("#SBATCH --job-name={}\n", job_name(&plan.title)));
+    s.push_str(&format!("#SBATCH --array={array}\n"));
+    s.push_str("#SBATCH --ntasks=1\n");
+    s.push_str(&format!("#SBATCH --cpus-per-task={}\n", args.task_cpus));
+    if let Some(m) = &args.task_memory {
+        s.push_str(&format!("#SBATCH --mem={m}\n"));
+    }
+    s.push_str(&format!(
+        "#SBATCH --output={}/%A_%a.out\n",
+        slurm_dir(out).join("logs").display()
+    ));
+    for line in args.common_lines() {
+        s.push_str(&format!("#SBATCH {line}\n"));
+    }
+    s.push_str(&format!(
+        r#"# Written by thicket: array task k runs share k+1 of {tasks}.
+# The marks tell `--status` that a task started and how it ended.
+set -u
+mark() {{
+  local file={marks}/"${{SLURM_ARRAY_JOB_ID}}_${{SLURM_ARRAY_TASK_ID}}.$1"
+  echo "$2" >"$file.$$.tmp" && mv -f "$file.$$.tmp" "$file"
+}}
+mark started "$(hostname) $(date -u +%Y-%m-%dT%H:%M:%SZ)"
+{command}
+code=$?
+mark exit "$code"
+exit "$code"
+"#,
+        tasks = plan.tasks,
+        marks = quote(&marks_dir(out)),
+        command = plan.task_command,
+    ));
+    s
+}
+
+/// The merge job script: the only writer of the joined result.
+fn merge_script(args: &SlurmArgs, out: &Path, plan: &Plan) -> String {
+    let mut s = String::from("#!/bin/bash\n");
+    s.push_str(&format!(
+        "#SBATCH --job-name={}-merge\n",
+        job_name(&plan.title)
+    ));
+    s.push_str("#SBATCH --ntasks=1\n#SBATCH --cpus-per-task=1\n");
+    s.push_str(&format!(
+        "#SBATCH --output={}/merge_%j.out\n",
+        slurm_dir(out).join("logs").display()
+    ));
+    for line in args.common_lines() {
+        s.push_str(&format!("#SBATCH {line}\n"));
+    }
+    s.push_str(&format!(
+        "# Written by thicket: the only writer of the joined result, run after every task succeeded.\n{}\n",
+        plan.merge_command
+    ));
+    s
+}
+
+/// The state of every unit, in order.
 fn run_states(
-    spec: &Sweep,
+    done: &[bool],
     out: &Path,
     submissions: &[Submission],
     queue: &Queue,
-) -> Vec<((usize, i64), RunState)> {
+) -> Vec<RunState> {
     let marks = marks_dir(out);
-    spec.runs()
-        .into_iter()
+    done.iter()
         .enumerate()
-        .map(|(k, (point, seed))| {
-            if spec.has_result(out, point, seed) {
-                return ((point, seed), RunState::Done);
+        .map(|(k, &done)| {
+            if done {
+                return RunState::Done;
             }
-            // The latest submission that included this run's shard.
+            // The latest submission that included this unit's task.
             let owner = submissions.iter().rev().find_map(|s| {
                 let shard = k % s.tasks;
                 s.shards
                     .contains(&shard)
                     .then(|| (s.array_job.clone(), shard))
             });
-            let state = match owner {
+            match owner {
                 None => RunState::Missing,
                 Some((job, task)) => match queue
                     .as_ref()
@@ -443,61 +587,42 @@ fn run_states(
                     }
                     None => RunState::Unknown { job, task },
                 },
-            };
-            ((point, seed), state)
+            }
         })
         .collect()
 }
 
-/// `thicket sweep --slurm`: writes the job scripts and submits them.
-pub fn submit(sweep_file: &Path, out: &Path, args: &SlurmArgs) -> Result<ExitCode> {
+/// `--slurm`: writes the job scripts and submits them.
+pub fn submit(work: &Work, out: &Path, args: &SlurmArgs) -> Result<ExitCode> {
     args.check()?;
-    let spec = Sweep::load(sweep_file)?;
-    let runs = spec.runs().len();
-    if let Some(n) = args.tasks {
-        ensure!(
-            (1..=runs).contains(&n),
-            "--tasks {n}: the sweep has {runs} runs; give 1 to {runs} tasks"
-        );
-    }
-    std::fs::create_dir_all(slurm_dir(out).join("logs"))
-        .and_then(|_| std::fs::create_dir_all(marks_dir(out)))
-        .with_context(|| format!("creating {}", slurm_dir(out).display()))?;
-    // The jobs may start in another folder, on another machine: every path is absolute.
-    let out = &out
-        .canonicalize()
-        .with_context(|| format!("resolving {}", out.display()))?;
-    let sweep_abs = sweep_file
-        .canonicalize()
-        .with_context(|| format!("resolving {}", sweep_file.display()))?;
-    let thicket = std::env::current_exe().context("finding the thicket program")?;
-
     let mut submissions = read_submissions(out)?;
+    let kept = submissions.last().map(|s| s.tasks);
+    let plan = plan(work, out, args.tasks.or(kept))?;
+    let units = plan.done.len();
     let queue = if submissions.is_empty() || args.write_only {
         None
     } else {
         Some(ask_queue().ok_or_else(|| {
             anyhow::anyhow!(
-                "cannot ask squeue whether the earlier submission of {} still runs; resubmitting needs Slurm's squeue on PATH",
+                "cannot ask squeue whether the earlier submission in {} still runs; resubmitting needs Slurm's squeue on PATH",
                 out.display()
             )
         })?)
     };
-    let states = run_states(&spec, out, &submissions, &queue);
+    let states = run_states(&plan.done, out, &submissions, &queue);
     let busy = states
         .iter()
-        .filter(|(_, s)| matches!(s, RunState::Queued | RunState::Running))
+        .filter(|s| matches!(s, RunState::Queued | RunState::Running))
         .count();
     if busy > 0 {
         let job = &submissions
             .last()
-            .expect("a busy run was submitted")
+            .expect("a busy unit was submitted")
             .array_job;
         bail!(
-            "{busy} run(s) of {} are still queued or running in job {job}; wait for them (thicket sweep {} --out {} --status) or cancel them (scancel {job}), then submit again",
+            "{busy} task share(s) in {} are still queued or running in job {job}; wait for them ({}) or cancel them (scancel {job}), then submit again",
             out.display(),
-            sweep_file.display(),
-            out.display()
+            plan.status_hint
         );
     }
     if let (Some(last), Some(q)) = (submissions.last(), &queue) {
@@ -509,34 +634,38 @@ pub fn submit(sweep_file: &Path, out: &Path, args: &SlurmArgs) -> Result<ExitCod
                 Some(QueueState::Queued) => {
                     // Its array ended with a failure, so it would never start.
                     let _ = Command::new("scancel").arg(merge).status();
-                    println!("cancelled the earlier merge job {merge}, which waited on a failed task");
+                    println!(
+                        "cancelled the earlier merge job {merge}, which waited on a failed task"
+                    );
                 }
                 None => {}
             }
         }
     }
-    let tasks = args
-        .tasks
-        .or(submissions.last().map(|s| s.tasks).filter(|&n| n <= runs))
-        .unwrap_or(runs.min(DEFAULT_MAX_TASKS));
     let shards: Vec<usize> = states
         .iter()
         .enumerate()
-        .filter(|(_, (_, s))| *s != RunState::Done)
-        .map(|(k, _)| k % tasks)
+        .filter(|(_, s)| **s != RunState::Done)
+        .map(|(k, _)| k % plan.tasks)
         .collect::<BTreeSet<_>>()
         .into_iter()
         .collect();
-    let todo = states.iter().filter(|(_, s)| *s != RunState::Done).count();
+    let todo = states.iter().filter(|s| **s != RunState::Done).count();
 
+    std::fs::create_dir_all(slurm_dir(out).join("logs"))
+        .and_then(|_| std::fs::create_dir_all(marks_dir(out)))
+        .with_context(|| format!("creating {}", slurm_dir(out).display()))?;
+    let out_abs = out
+        .canonicalize()
+        .with_context(|| format!("resolving {}", out.display()))?;
     let task_path = slurm_dir(out).join("tasks.sh");
     let merge_path = slurm_dir(out).join("merge.sh");
     if !shards.is_empty() {
-        let text = task_script(args, &thicket, &sweep_abs, out, &spec.title, tasks, &shards);
+        let text = task_script(args, &out_abs, &plan, &shards);
         write_atomically(&task_path, text.as_bytes())
             .with_context(|| format!("writing {}", task_path.display()))?;
     }
-    let text = merge_script(args, &thicket, &sweep_abs, out, &spec.title);
+    let text = merge_script(args, &out_abs, &plan);
     write_atomically(&merge_path, text.as_bytes())
         .with_context(|| format!("writing {}", merge_path.display()))?;
     let merge_after = |job: &str| {
@@ -545,16 +674,17 @@ pub fn submit(sweep_file: &Path, out: &Path, args: &SlurmArgs) -> Result<ExitCod
             "--kill-on-invalid-dep=yes".to_string(),
         ]
     };
+    let tasks = plan.tasks;
 
     if args.write_only {
         if shards.is_empty() {
             println!(
-                "every run has its result; join them with: sbatch {}",
+                "every share has its result; join them with: sbatch {}",
                 merge_path.display()
             );
         } else {
             println!(
-                "wrote {} ({} tasks of {tasks} shards, {todo} of {runs} runs) and {}",
+                "wrote {} ({} of {tasks} tasks, {todo} of {units} to run) and {}",
                 task_path.display(),
                 shards.len(),
                 merge_path.display()
@@ -571,7 +701,7 @@ pub fn submit(sweep_file: &Path, out: &Path, args: &SlurmArgs) -> Result<ExitCod
     }
 
     let (array_job, merge_job) = if shards.is_empty() {
-        println!("every run of the sweep has its result; submitting the merge only");
+        println!("every share has its result; submitting the merge only");
         (None, sbatch(&[], &merge_path)?)
     } else {
         let array = sbatch(&[], &task_path)?;
@@ -595,49 +725,40 @@ pub fn submit(sweep_file: &Path, out: &Path, args: &SlurmArgs) -> Result<ExitCod
         write_atomically(&path, text.as_bytes())
             .with_context(|| format!("writing {}", path.display()))?;
         println!(
-            "submitted job array {array}: {} task(s) for {todo} of {runs} runs ({tasks} shards)",
+            "submitted job array {array}: {} task(s) for {todo} of {units} (in {tasks} shares)",
             shards.len()
         );
     }
-    println!("submitted merge job {merge_job}: writes the summary after every task succeeded");
     println!(
-        "follow with: thicket sweep {} --out {} --status",
-        sweep_file.display(),
-        out.display()
+        "submitted merge job {merge_job}: writes {} after every task succeeded",
+        plan.result.display()
     );
+    println!("follow with: {}", plan.status_hint);
     Ok(ExitCode::SUCCESS)
 }
 
-/// `thicket sweep --status`.
-pub fn status(sweep_file: &Path, out: &Path) -> Result<ExitCode> {
-    let spec = Sweep::load(sweep_file)?;
+/// `--status`.
+pub fn status(work: &Work, out: &Path) -> Result<ExitCode> {
     ensure!(
         out.is_dir(),
-        "--out {}: no such folder; the sweep has not been started there",
+        "--out {}: no such folder; nothing has been submitted there",
         out.display()
     );
     let submissions = read_submissions(out)?;
+    let plan = plan(work, out, submissions.last().map(|s| s.tasks))?;
     let queue = if submissions.is_empty() {
         None
     } else {
         ask_queue()
     };
-    let states = run_states(&spec, out, &submissions, &queue);
-    let count = |f: &dyn Fn(&RunState) -> bool| states.iter().filter(|(_, s)| f(s)).count();
-    println!(
-        "{}: {} runs ({} points × {} seeds) in {}",
-        spec.title,
-        states.len(),
-        spec.points.len(),
-        spec.seeds.len(),
-        out.display()
-    );
-    let name = |(p, s): &(usize, i64)| format!("p{p:04}_s{s}");
+    let states = run_states(&plan.done, out, &submissions, &queue);
+    let count = |f: &dyn Fn(&RunState) -> bool| states.iter().filter(|s| f(s)).count();
     let list = |f: &dyn Fn(&RunState) -> bool| -> String {
-        let names: Vec<String> = states
+        let names: Vec<&str> = states
             .iter()
-            .filter(|(_, s)| f(s))
-            .map(|(r, _)| name(r))
+            .zip(&plan.names)
+            .filter(|(s, _)| f(s))
+            .map(|(_, n)| n.as_str())
             .take(20)
             .collect();
         if names.is_empty() {
@@ -646,6 +767,7 @@ pub fn status(sweep_file: &Path, out: &Path) -> Result<ExitCode> {
             format!("  {}", names.join(" "))
         }
     };
+    println!("{}: {} in {}", plan.title, states.len(), out.display());
     println!("done: {}", count(&|s| *s == RunState::Done));
     println!("queued: {}", count(&|s| *s == RunState::Queued));
     println!("running: {}", count(&|s| *s == RunState::Running));
@@ -666,7 +788,7 @@ pub fn status(sweep_file: &Path, out: &Path) -> Result<ExitCode> {
     );
     let logs: BTreeSet<String> = states
         .iter()
-        .filter_map(|(_, s)| match s {
+        .filter_map(|s| match s {
             RunState::Failed { job, task } => Some(
                 slurm_dir(out)
                     .join("logs")
@@ -691,19 +813,16 @@ pub fn status(sweep_file: &Path, out: &Path) -> Result<ExitCode> {
         println!("merge job {merge}: {state}");
     }
     println!(
-        "summary: {}",
-        if out.join("summary.json").exists() {
+        "result {}: {}",
+        plan.result.display(),
+        if plan.result.exists() {
             "written"
         } else {
             "not written yet"
         }
     );
     if count(&|s| failed(s) || *s == RunState::Missing) > 0 && !submissions.is_empty() {
-        println!(
-            "to run what failed or is missing: thicket sweep {} --out {} --slurm",
-            sweep_file.display(),
-            out.display()
-        );
+        println!("to run what failed or is missing, submit again with --slurm");
     }
     Ok(ExitCode::SUCCESS)
 }

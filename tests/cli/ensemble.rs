@@ -12,7 +12,7 @@ use crate::support::*;
 use std::path::Path;
 
 /// An invented probe among fixed random obstacles (the obstructed kernel), small enough for seconds.
-const OBSTACLES: &str = r#"seed = 4242
+pub const OBSTACLES: &str = r#"seed = 4242
 [medium]
 temperature_K = 310.15
 [box]

@@ -142,7 +142,7 @@ fn slurm_sweep_matches_the_local_sweep() {
         &["sweep", "sw.toml", "--out", "cluster", "--status"],
     ));
     assert_eq!(status_count(&status, "done"), 4, "{status}");
-    assert!(status.contains("summary: written"), "{status}");
+    assert!(status.contains("summary.json: written"), "{status}");
 }
 
 /// A task cancelled mid-run leaves its run failed and the merge unstarted;
@@ -213,7 +213,7 @@ fn a_killed_slurm_task_is_resubmitted_alone() {
 
     let second = submit();
     assert!(
-        second.contains("1 task(s) for 1 of 2 runs"),
+        second.contains("1 task(s) for 1 of 2 "),
         "the resubmission runs only the failed run:\n{second}"
     );
     let tasks = std::fs::read_to_string(out.join("slurm/tasks.sh")).unwrap();
@@ -223,4 +223,44 @@ fn a_killed_slurm_task_is_resubmitted_alone() {
     wait_for(&array2, &out);
     wait_for(&merge2, &out);
     assert_eq!(summary(&out), summary(&dir.path().join("local")));
+}
+
+/// A run split into 3 parts of its ensemble through --slurm: the merge job's
+/// joined analysis gives the D_eff and MSD of the same run made whole locally.
+#[test]
+fn a_split_ensemble_runs_through_slurm() {
+    if require(Tool::Slurm).is_none() {
+        return;
+    }
+    let dir = tempdir();
+    let d = dir.path();
+    std::fs::write(d.join("s.toml"), crate::ensemble::OBSTACLES).unwrap();
+    ok(&thicket(d, &["run", "s.toml", "--out", "whole.h5"]));
+    let whole: serde_json::Value =
+        serde_json::from_str(&ok(&thicket(d, &["analyze", "whole.h5", "--json"]))).unwrap();
+    let submitted = ok(&thicket(
+        d,
+        &["run", "s.toml", "--out", "parts", "--slurm", "--tasks", "3"],
+    ));
+    let out = d.join("parts");
+    wait_for(&job_id(&submitted, "job array "), &out);
+    wait_for(&job_id(&submitted, "merge job "), &out);
+    let text = std::fs::read_to_string(out.join("analysis.json")).unwrap_or_else(|_| {
+        panic!(
+            "the merge job wrote no analysis.json; logs in {}",
+            out.join("slurm/logs").display()
+        )
+    });
+    let joined: serde_json::Value = serde_json::from_str(&text).unwrap();
+    assert_eq!(joined["particles"], whole["particles"]);
+    assert_eq!(joined["d_eff_m2_per_s"], whole["d_eff_m2_per_s"]);
+    assert_eq!(
+        joined["curves"]["msd_axes_nm2"],
+        whole["curves"]["msd_axes_nm2"]
+    );
+    let status = ok(&thicket(
+        d,
+        &["run", "s.toml", "--out", "parts", "--status"],
+    ));
+    assert_eq!(status_count(&status, "done"), 3, "{status}");
 }
