@@ -264,3 +264,74 @@ fn a_split_ensemble_runs_through_slurm() {
     ));
     assert_eq!(status_count(&status, "done"), 3, "{status}");
 }
+
+/// Without a scheduler: --write-only writes both job scripts with the
+/// options asked for, and bad options are refused before any file is made.
+#[test]
+fn slurm_scripts_are_written_and_bad_options_refused() {
+    let dir = tempdir();
+    let d = dir.path();
+    write_sweep(d, "sw.toml", "[1, 2]", 2000, 100);
+    let printed = ok(&thicket(
+        d,
+        &[
+            "sweep",
+            "sw.toml",
+            "--out",
+            "o",
+            "--slurm",
+            "--write-only",
+            "--tasks",
+            "2",
+            "--at-once",
+            "1",
+            "--task-cpus",
+            "3",
+            "--task-memory",
+            "1G",
+            "--time-limit",
+            "1-00:00",
+            "--partition",
+            "short",
+            "--sbatch-line=--qos=low",
+        ],
+    ));
+    assert!(
+        printed.contains("--dependency=afterok:$job --kill-on-invalid-dep=yes"),
+        "{printed}"
+    );
+    let tasks = std::fs::read_to_string(d.join("o/slurm/tasks.sh")).unwrap();
+    for line in [
+        "#SBATCH --array=0-1%1\n",
+        "#SBATCH --cpus-per-task=3\n",
+        "#SBATCH --mem=1G\n",
+        "#SBATCH --time=1-00:00\n",
+        "#SBATCH --partition=short\n",
+        "#SBATCH --qos=low\n",
+        "--shard \"$((SLURM_ARRAY_TASK_ID + 1))/2\"",
+    ] {
+        assert!(tasks.contains(line), "tasks.sh lacks {line:?}:\n{tasks}");
+    }
+    let merge = std::fs::read_to_string(d.join("o/slurm/merge.sh")).unwrap();
+    assert!(merge.contains(" --merge"), "{merge}");
+    assert!(!d.join("o/summary.json").exists());
+
+    let refused = |args: &[&str], needle: &str| {
+        let mut all = vec!["sweep", "sw.toml", "--out", "bad", "--slurm"];
+        all.extend_from_slice(args);
+        let out = thicket(d, &all);
+        let err = stderr(&out);
+        assert_eq!(out.status.code(), Some(2), "{all:?}: {err}");
+        assert!(
+            err.contains(needle),
+            "{all:?}: message lacks {needle:?}: {err}"
+        );
+        assert!(!d.join("bad").exists(), "{all:?} made the output folder");
+    };
+    refused(&["--time-limit", "2h"], "--time-limit 2h");
+    refused(&["--task-memory", "lots"], "--task-memory lots");
+    refused(&["--tasks", "5"], "give 1 to 4 tasks");
+    refused(&["--partition", "a b"], "--partition");
+    refused(&["--shard", "1/2"], "--shard do not go with --slurm");
+    refused(&["--sbatch-line", "account=x"], "--sbatch-line");
+}
