@@ -564,12 +564,16 @@ fn run_states(
                 return RunState::Done;
             }
             // The latest submission that included this unit's task.
-            let owner = submissions.iter().rev().find_map(|s| {
-                let shard = k % s.tasks;
-                s.shards
-                    .contains(&shard)
-                    .then(|| (s.array_job.clone(), shard))
-            });
+            let owner = submissions
+                .iter()
+                .rev()
+                .filter(|s| s.tasks > 0)
+                .find_map(|s| {
+                    let shard = k % s.tasks;
+                    s.shards
+                        .contains(&shard)
+                        .then(|| (s.array_job.clone(), shard))
+                });
             match owner {
                 None => RunState::Missing,
                 Some((job, task)) => match queue
