@@ -24,6 +24,8 @@ const PLOT_FILES: [&str; 11] = [
 pub struct TrajectoryArgs<'a> {
     /// The trajectory.
     pub file: &'a Path,
+    /// The other parts of a split ensemble, analysed with `file` as one.
+    pub more: &'a [std::path::PathBuf],
     /// Species (default: the first tracer).
     pub species: Option<&'a str>,
     /// `--window T0,T1`.
@@ -45,6 +47,7 @@ pub struct TrajectoryArgs<'a> {
 pub fn analyze_trajectory(args: &TrajectoryArgs) -> Result<ExitCode> {
     let TrajectoryArgs {
         file,
+        more,
         species,
         window,
         axes,
@@ -101,9 +104,20 @@ pub fn analyze_trajectory(args: &TrajectoryArgs) -> Result<ExitCode> {
                 .map_err(|e| anyhow::anyhow!("--axes {e}"))?,
         );
     }
-    let analysis = analyze(file, species, &options)?;
+    let analysis = if more.is_empty() {
+        analyze(file, species, &options)?
+    } else {
+        let mut paths = vec![file];
+        paths.extend(more.iter().map(|p| p.as_path()));
+        thicket_analysis::estimators::analyze_parts(&paths, species, &options)?
+    };
     let report = &analysis.report;
-    let partition = crate::confined::partition_report(file, species, plot, force)?;
+    // The wall profile is per file; the parts are joined for the MSD only.
+    let partition = if more.is_empty() {
+        crate::confined::partition_report(file, species, plot, force)?
+    } else {
+        None
+    };
     if as_json {
         let mut value = serde_json::to_value(report)?;
         if let (Some(p), Some(map)) = (&partition, value.as_object_mut()) {

@@ -8,6 +8,7 @@ mod demo;
 mod models;
 mod progress;
 mod run;
+mod slurm;
 mod sweep;
 mod tracks;
 mod validate;
@@ -69,6 +70,11 @@ enum Command {
         /// Continue an interrupted run from its checkpoint.
         #[arg(long, conflicts_with = "force")]
         resume: bool,
+        #[command(flatten)]
+        slurm: slurm::SlurmArgs,
+        /// Run only part I of N of the ensemble (non-interacting tracers: each species cut into N particle ranges, same medium and streams); default file NAME.partIofN.h5. `thicket analyze` joins the parts.
+        #[arg(long, value_name = "I/N")]
+        ensemble_part: Option<String>,
     },
     /// Validate a scenario and print derived quantities and warnings.
     Check {
@@ -120,6 +126,9 @@ enum Command {
     Analyze {
         /// Trajectory (HDF5, H5MD layout), or a tracks CSV: from `thicket tracks` (estimates against the truth beside it) or another pipeline (see the tracks CSV options).
         file: PathBuf,
+        /// The other parts of an ensemble split with `thicket run --ensemble-part I/N`: all N files are analysed as one ensemble.
+        #[arg(value_name = "MORE_PARTS")]
+        more: Vec<PathBuf>,
         /// Print one JSON object instead of a table.
         #[arg(long)]
         json: bool,
@@ -157,6 +166,11 @@ enum Command {
         /// Rerun points whose results exist.
         #[arg(long)]
         force: bool,
+        /// Worker threads (default: all cores). Results do not depend on it.
+        #[arg(long, value_parser = parse_threads)]
+        threads: Option<usize>,
+        #[command(flatten)]
+        slurm: slurm::SlurmArgs,
     },
     /// Run the published checks of the test suite (free, obstruction, crowders, walls, pores,
     /// membranes, camera) and report each with its source (exit 1 on a failure).
@@ -250,7 +264,55 @@ fn main() -> ExitCode {
             threads,
             force,
             resume,
-        } => run::run(&config, out, &sets, threads, force, resume),
+            ensemble_part,
+            slurm,
+        } if slurm.slurm || slurm.status => {
+            let given: Vec<&str> = [
+                (force, "--force"),
+                (resume, "--resume"),
+                (ensemble_part.is_some(), "--ensemble-part"),
+                (threads.is_some(), "--threads (use --task-cpus)"),
+            ]
+            .into_iter()
+            .filter_map(|(on, name)| on.then_some(name))
+            .collect();
+            // The folder of the parts, by default named after the scenario.
+            let out = out.unwrap_or_else(|| config.with_extension(""));
+            if !given.is_empty() {
+                Err(anyhow::anyhow!(
+                    "{} do not go with --slurm or --status: the tasks choose them",
+                    given.join(", ")
+                ))
+            } else {
+                let work = slurm::Work::Ensemble {
+                    config: &config,
+                    sets: &sets,
+                };
+                if slurm.status {
+                    slurm::status(&work, &out)
+                } else {
+                    slurm::submit(&work, &out, &slurm)
+                }
+            }
+        }
+        Command::Run {
+            config,
+            out,
+            sets,
+            threads,
+            force,
+            resume,
+            ensemble_part,
+            ..
+        } => run::run(
+            &config,
+            out,
+            &sets,
+            threads,
+            force,
+            resume,
+            ensemble_part.as_deref(),
+        ),
         Command::Check { config, sets, json } => check::check(&config, &sets, json),
         Command::Models {
             phi,
@@ -258,6 +320,17 @@ fn main() -> ExitCode {
             lambda,
             json,
         } => models::models(&phi, size_ratio, &lambda, json),
+        Command::Analyze { file, more, .. }
+            if !more.is_empty()
+                && std::iter::once(&file)
+                    .chain(&more)
+                    .any(|f| f.extension().is_some_and(|e| e.eq_ignore_ascii_case("csv"))) =>
+        {
+            Err(anyhow::anyhow!(
+                "{}: several files are joined only as the parts of a split trajectory (.h5); analyse a tracks CSV on its own",
+                file.display()
+            ))
+        }
         Command::Analyze {
             file,
             json,
@@ -267,6 +340,7 @@ fn main() -> ExitCode {
             d0,
             axes,
             track_csv: t,
+            ..
         } if file
             .extension()
             .is_some_and(|e| e.eq_ignore_ascii_case("csv")) =>
@@ -301,6 +375,7 @@ fn main() -> ExitCode {
         )),
         Command::Analyze {
             file,
+            more,
             json,
             plot,
             species,
@@ -310,6 +385,7 @@ fn main() -> ExitCode {
             track_csv,
         } => analyze::analyze_trajectory(&analyze::TrajectoryArgs {
             file: &file,
+            more: &more,
             species: species.as_deref(),
             window: window.as_deref(),
             axes: axes.as_deref(),
@@ -324,12 +400,36 @@ fn main() -> ExitCode {
             shard,
             merge,
             force,
+            threads,
+            slurm,
         } => {
             // By default the folder is named after the sweep file, in the current folder.
             let out = out.unwrap_or_else(|| {
                 PathBuf::from(sweep.file_stem().unwrap_or_else(|| "sweep".as_ref()))
             });
-            sweep::sweep(&sweep, &out, shard.as_deref(), merge, force)
+            let work = slurm::Work::Sweep { file: &sweep };
+            let given: Vec<&str> = [
+                (shard.is_some(), "--shard"),
+                (merge, "--merge"),
+                (force, "--force"),
+                (threads.is_some(), "--threads (use --task-cpus)"),
+            ]
+            .into_iter()
+            .filter_map(|(on, name)| on.then_some(name))
+            .collect();
+            if (slurm.status || slurm.slurm) && !given.is_empty() {
+                Err(anyhow::anyhow!(
+                    "{} do not go with --slurm or --status: the tasks choose them",
+                    given.join(", ")
+                ))
+            } else if slurm.status {
+                slurm::status(&work, &out)
+            } else if slurm.slurm {
+                slurm::submit(&work, &out, &slurm)
+            } else {
+                run::set_threads(threads)
+                    .and_then(|_| sweep::sweep(&sweep, &out, shard.as_deref(), merge, force))
+            }
         }
         Command::Validate { quick, json } => validate::validate(quick, json),
         Command::Demo { out, force } => demo::demo(&out, force),
@@ -361,6 +461,8 @@ fn main() -> ExitCode {
 /// Refuses an `--out` that is empty or an existing folder, naming the option.
 fn check_out_option(command: &Command) -> anyhow::Result<()> {
     let out = match command {
+        // With --slurm or --status, a run's --out is the folder of its parts.
+        Command::Run { slurm, .. } if slurm.slurm || slurm.status => return Ok(()),
         Command::Run { out: Some(o), .. } | Command::Tracks { out: Some(o), .. } => o,
         _ => return Ok(()),
     };

@@ -6,7 +6,8 @@ use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::Arc;
-use thicket_engine::run::driver::{RunOptions, RunOutcome};
+use thicket_engine::run::part::{EnsemblePart, PartRun};
+use thicket_engine::run::{RunOptions, RunOutcome};
 use thicket_engine::Scenario;
 
 /// Exit code after an interrupt (128 + SIGINT, the shell convention).
@@ -39,7 +40,27 @@ pub fn stop_flag() -> Result<Arc<AtomicBool>> {
     Ok(stop)
 }
 
-/// Runs a scenario file to completion or interruption.
+/// Parses `--ensemble-part I/N` (1 ≤ I ≤ N) into the engine's 0-based part.
+pub fn parse_part(text: &str) -> Result<EnsemblePart> {
+    let bad = || {
+        anyhow::anyhow!(
+            "--ensemble-part {text}: expected I/N with 1 ≤ I ≤ N, e.g. --ensemble-part 2/8"
+        )
+    };
+    let (i, n) = text.split_once('/').ok_or_else(bad)?;
+    let (i, n): (usize, usize) = (
+        i.trim().parse().map_err(|_| bad())?,
+        n.trim().parse().map_err(|_| bad())?,
+    );
+    anyhow::ensure!(n >= 1 && (1..=n).contains(&i), bad());
+    Ok(EnsemblePart {
+        index: i - 1,
+        parts: n,
+    })
+}
+
+/// Runs a scenario file (or, with `part`, one part of its ensemble) to
+/// completion or interruption.
 pub fn run(
     config: &Path,
     out: Option<PathBuf>,
@@ -47,10 +68,22 @@ pub fn run(
     threads: Option<usize>,
     force: bool,
     resume: bool,
+    part: Option<&str>,
 ) -> Result<ExitCode> {
     set_threads(threads)?;
-    let scenario = Scenario::load(config, sets)?;
-    let out = output_path(config, &scenario, out);
+    let part = part.map(parse_part).transpose()?;
+    let whole = Scenario::load(config, sets)?;
+    let part = part.map(|p| PartRun::new(&whole, p)).transpose()?;
+    let scenario = part.as_ref().map_or(&whole, |p| &p.scenario);
+    // A part's file is named after its part unless --out says otherwise.
+    let out = match (&part, out) {
+        (Some(p), None) => output_path(config, &whole, None).with_extension(format!(
+            "part{}of{}.h5",
+            p.part.index + 1,
+            p.part.parts
+        )),
+        (_, out) => output_path(config, &whole, out),
+    };
     for w in scenario.warnings() {
         eprintln!("thicket: warning: {w}");
     }
@@ -61,9 +94,11 @@ pub fn run(
         force,
         resume,
     };
-    let outcome = thicket_engine::run::driver::run(&scenario, &options, &stop, &mut |step, _| {
-        bar.set_position(step)
-    })?;
+    let mut progress = |step, _| bar.set_position(step);
+    let outcome = match &part {
+        Some(p) => thicket_engine::run::run_part(p, &options, &stop, &mut progress)?,
+        None => thicket_engine::run::run(scenario, &options, &stop, &mut progress)?,
+    };
     bar.finish_and_clear();
     match outcome {
         RunOutcome::Completed { frames } => {
@@ -74,11 +109,26 @@ pub fn run(
                 scenario.particle_count(),
                 scenario.steps
             );
-            print_membrane_results(&scenario, &out);
+            if let Some(p) = &part {
+                println!(
+                    "part {} of {} of the ensemble of {} particles; analyse all parts together: thicket analyze PART1.h5 PART2.h5 …",
+                    p.part.index + 1,
+                    p.part.parts,
+                    p.whole.particle_count()
+                );
+            }
+            print_membrane_results(scenario, &out);
             Ok(ExitCode::SUCCESS)
         }
         RunOutcome::Interrupted { step, frames } => {
-            let sets: String = sets.iter().map(|s| format!(" --set {s}")).collect();
+            let mut sets: String = sets.iter().map(|s| format!(" --set {s}")).collect();
+            if let Some(p) = &part {
+                sets.push_str(&format!(
+                    " --ensemble-part {}/{}",
+                    p.part.index + 1,
+                    p.part.parts
+                ));
+            }
             eprintln!(
                 "thicket: interrupted at step {step} of {}; {} holds {frames} frames. Continue with: thicket run {}{sets} --out {} --resume",
                 scenario.steps,

@@ -31,7 +31,8 @@ pub fn sweep(
     let spec = Sweep::load(file)?;
     let stop = crate::run::stop_flag()?;
     if !merge {
-        let total = spec.points.len() * spec.seeds.len();
+        // This shard's runs: every N-th from the I-th.
+        let total = (spec.runs().len() + shard.1 - shard.0) / shard.1;
         let bar = progress::bar(total as u64, "sweep");
         run_sweep(&spec, out, shard, force, &stop, &|done, _| {
             bar.set_position(done as u64)
@@ -40,6 +41,16 @@ pub fn sweep(
         if stop.load(Ordering::Relaxed) {
             eprintln!("thicket: sweep interrupted; finished points are kept in {}, run the same command again to continue", out.join("points").display());
             return Ok(ExitCode::from(130));
+        }
+        // Shards may run at once on a shared folder: only --merge writes the summary.
+        if shard.1 > 1 {
+            println!(
+                "shard {}/{} done: its results are in {}; join all shards with --merge",
+                shard.0,
+                shard.1,
+                out.join("points").display()
+            );
+            return Ok(ExitCode::SUCCESS);
         }
     }
     let summary = summarize(&spec, out)

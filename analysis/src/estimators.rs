@@ -20,7 +20,7 @@ use std::path::Path;
 use serde::Serialize;
 
 use crate::error::{Error, ErrorKind, Result};
-use crate::msd::{compute_msd, weighted_mean_se, LocalExponent, Msd, MsdMethod, MsdOptions};
+use crate::msd::{weighted_mean_se, LocalExponent, Msd, MsdMethod, MsdOptions};
 use crate::read::Trajectory;
 
 /// 1 nm²/s in m²/s.
@@ -295,7 +295,24 @@ pub fn analyze(
     species: Option<&str>,
     options: &AnalyzeOptions,
 ) -> Result<Analysis> {
-    let path = path.as_ref();
+    analyze_parts(&[path.as_ref()], species, options)
+}
+
+/// As [`analyze`], for one trajectory or the parts of a split ensemble
+/// (`thicket run --ensemble-part I/N`, all N given in any order): the parts
+/// are checked to come from one whole run and joined particle by particle.
+///
+/// # Errors
+/// As [`analyze`], and [`ErrorKind::BadValue`] for files that are not the
+/// complete set of parts of one run.
+pub fn analyze_parts(
+    paths: &[&Path],
+    species: Option<&str>,
+    options: &AnalyzeOptions,
+) -> Result<Analysis> {
+    if paths.is_empty() {
+        return Err(Error::invalid_option("files", 0, "at least one trajectory"));
+    }
     if let Some(d0) = options.d0_m2_per_s {
         if !(d0.is_finite() && d0 > 0.0) {
             return Err(Error::invalid_option(
@@ -305,17 +322,32 @@ pub fn analyze(
             ));
         }
     }
-    let trajectory = Trajectory::open(path)?;
-    let scenario = crate::report::scenario_of(&trajectory, path);
+    let mut trajectories = paths
+        .iter()
+        .map(Trajectory::open)
+        .collect::<Result<Vec<_>>>()?;
+    if paths.len() > 1 {
+        crate::parts::order_parts(&mut trajectories)?;
+    }
+    let trajectory = &trajectories[0];
+    let path = trajectory.path();
+    let scenario = crate::report::scenario_of(trajectory, path);
     // By default the first tracer: crowders are the medium, not what is measured.
     let default_species = scenario
         .as_ref()
         .and_then(crate::sweep::default_species)
         .filter(|name| trajectory.species_names().iter().any(|n| n == name));
-    let mut reader = trajectory.species(species.or(default_species.as_deref()))?;
-    // No particle of an MSD analysis jumps: a wrong image count would inflate D_eff without bound.
-    reader.check_image_jumps(true);
-    let meta = reader.meta().clone();
+    let mut readers = trajectories
+        .iter()
+        .map(|t| t.species(species.or(default_species.as_deref())))
+        .collect::<Result<Vec<_>>>()?;
+    for reader in &mut readers {
+        // No particle of an MSD analysis jumps: a wrong image count would inflate D_eff without bound.
+        reader.check_image_jumps(true);
+    }
+    crate::parts::check_joined(&trajectories, &readers)?;
+    let mut meta = readers[0].meta().clone();
+    meta.particles = readers.iter().map(|r| r.meta().particles).sum();
     let mut warnings = Vec::new();
     if species.is_none() && trajectory.species_names().len() > 1 {
         warnings.push(format!(
@@ -388,7 +420,7 @@ pub fn analyze(
     } else {
         options.msd.clone()
     };
-    let msd = compute_msd(&reader, &msd_options)?;
+    let msd = crate::msd::compute_msd_joined(&readers, &msd_options)?;
     if msd.suspicious_jumps > 0 {
         warnings.push(format!(
             "the box is periodic but the file has no image counts, and {} frame-to-frame jumps exceed half a box edge: positions look wrapped, so the MSD is too small",
@@ -466,7 +498,11 @@ pub fn analyze(
         .map(|s| crate::model_table::scenario_model_table(s, &meta.name))
         .unwrap_or_default();
     let report = Report {
-        file: path.display().to_string(),
+        file: paths
+            .iter()
+            .map(|p| p.display().to_string())
+            .collect::<Vec<_>>()
+            .join(" + "),
         species: meta.name.clone(),
         scenario: scenario
             .as_ref()

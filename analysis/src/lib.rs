@@ -11,6 +11,7 @@ pub mod membrane;
 pub mod model_table;
 pub mod models;
 pub mod msd;
+pub mod parts;
 pub mod plot;
 pub mod profile;
 pub mod read;

@@ -946,16 +946,37 @@ impl MsdAccumulator {
 /// Reading errors from [`SpeciesReader::read_block`] and option errors from
 /// [`MsdAccumulator::new`].
 pub fn compute_msd(reader: &SpeciesReader<'_>, options: &MsdOptions) -> Result<Msd> {
-    let meta = reader.meta();
+    compute_msd_joined(std::slice::from_ref(reader), options)
+}
+
+/// Computes the MSD of one species held by several readers in order — the
+/// parts of a split ensemble — as one ensemble: every particle enters the
+/// same accumulator under its index in the whole run, so the result is that
+/// of the whole run, not an average of the parts' averages.
+///
+/// # Errors
+/// As [`compute_msd`]; readers must share frames and dimensions.
+pub fn compute_msd_joined(readers: &[SpeciesReader<'_>], options: &MsdOptions) -> Result<Msd> {
+    let meta = readers
+        .first()
+        .ok_or_else(|| Error::invalid_option("readers", 0, "at least one"))?
+        .meta();
+    let total = readers.iter().map(|r| r.meta().particles).sum();
     let mut acc = MsdAccumulator::new(
         meta.frames,
-        meta.particles,
+        total,
         meta.dims,
         meta.frame_interval_s,
         options,
     )?;
-    for block in reader.blocks(options.memory_budget_bytes) {
-        acc.add_block(&block?)?;
+    let mut offset = 0;
+    for reader in readers {
+        for block in reader.blocks(options.memory_budget_bytes) {
+            let mut block = block?;
+            block.first_particle += offset;
+            acc.add_block(&block)?;
+        }
+        offset += reader.meta().particles;
     }
     acc.finish()
 }

@@ -75,6 +75,19 @@ pub struct SpeciesParameters {
     pub count: Option<u64>,
 }
 
+/// What a part of a split ensemble says about itself.
+#[derive(Debug, Clone, PartialEq)]
+pub struct EnsemblePartInfo {
+    /// 0-based index of the part.
+    pub index: usize,
+    /// Number of parts.
+    pub parts: usize,
+    /// The whole run's resolved scenario (TOML text).
+    pub whole_scenario: String,
+    /// Per species: (index of the part's first particle in the whole run, whole count).
+    pub species: BTreeMap<String, (usize, usize)>,
+}
+
 /// The simulation box of a species (`/particles/<species>/box`).
 #[derive(Debug, Clone, PartialEq)]
 pub struct SimulationBox {
@@ -227,6 +240,63 @@ impl Trajectory {
     /// The file's path.
     pub fn path(&self) -> &Path {
         &self.path
+    }
+
+    /// Which part of a split ensemble the file holds
+    /// (`/parameters/thicket/ensemble_part`, written by `thicket run
+    /// --ensemble-part`), or `None` for a whole run.
+    ///
+    /// # Errors
+    /// [`ErrorKind::BadValue`] for a group with missing or out-of-range
+    /// attributes, [`ErrorKind::Hdf5`] if the library fails.
+    pub fn ensemble_part(&self) -> Result<Option<EnsemblePartInfo>> {
+        let name = "/parameters/thicket/ensemble_part";
+        if !self.file.link_exists("parameters/thicket/ensemble_part") {
+            return Ok(None);
+        }
+        let path = &self.path;
+        let g = self
+            .file
+            .group(name)
+            .map_err(|e| Error::hdf5(path, name, e))?;
+        let bad = |attr: &str, value: String| {
+            Error::bad_value(
+                path,
+                format!("{name} attribute {attr}"),
+                value,
+                "what thicket run --ensemble-part writes: index < parts, and per species first ≤ whole count",
+            )
+        };
+        let int = |attr: &str| -> Result<usize> {
+            match attr_i64(path, &g, name, attr)? {
+                Some(n) if n >= 0 => Ok(n as usize),
+                other => Err(bad(attr, format!("{other:?}"))),
+            }
+        };
+        let (index, parts) = (int("index")?, int("parts")?);
+        if index >= parts {
+            return Err(bad("index", format!("{index} of {parts} parts")));
+        }
+        let whole_scenario = attr_strings(path, &g, name, "whole_scenario")?
+            .and_then(|v| v.into_iter().next())
+            .ok_or_else(|| bad("whole_scenario", "absent".into()))?;
+        let mut species = BTreeMap::new();
+        for s in &self.species {
+            let (first, count) = (
+                int(&format!("first_{s}"))?,
+                int(&format!("whole_count_{s}"))?,
+            );
+            if first > count {
+                return Err(bad(&format!("first_{s}"), format!("{first} > {count}")));
+            }
+            species.insert(s.clone(), (first, count));
+        }
+        Ok(Some(EnsemblePartInfo {
+            index,
+            parts,
+            whole_scenario,
+            species,
+        }))
     }
 
     /// Numeric steady-state membrane results of a species (attributes of

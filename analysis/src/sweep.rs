@@ -497,6 +497,45 @@ fn point_json(dir: &Path, point: usize, seed: i64) -> PathBuf {
     dir.join("points").join(format!("p{point:04}_s{seed}.json"))
 }
 
+impl Sweep {
+    /// Every (point, seed) run in order; the k-th belongs to shard k mod N
+    /// (0-based) of N, the order `run_sweep` shards by.
+    pub fn runs(&self) -> Vec<(usize, i64)> {
+        (0..self.points.len())
+            .flat_map(|p| self.seeds.iter().map(move |&s| (p, s)))
+            .collect()
+    }
+
+    /// `true` when `dir` holds a result of this run made from the scenario
+    /// the sweep now gives it.
+    pub fn has_result(&self, dir: &Path, point: usize, seed: i64) -> bool {
+        let path = point_json(dir, point, seed);
+        path.exists()
+            && self
+                .point_hash(point, seed)
+                .is_ok_and(|h| read_point(&path).is_ok_and(|r| r.scenario_hash == Some(h)))
+    }
+}
+
+/// Writes `bytes` to a temporary file beside `path` and renames it over
+/// `path`: readers see the old file or the new one, never part of one. The
+/// temporary name carries the host and process, so writers on several
+/// machines sharing the folder never write one temporary file.
+///
+/// # Errors
+/// The write or the rename failed.
+pub fn write_atomically(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
+    let host = std::fs::read_to_string("/proc/sys/kernel/hostname").unwrap_or_default();
+    let mut name = path.file_name().unwrap_or_default().to_os_string();
+    name.push(format!(".{}.{}.tmp", host.trim(), std::process::id()));
+    let tmp = path.with_file_name(name);
+    let written = std::fs::write(&tmp, bytes).and_then(|_| std::fs::rename(&tmp, path));
+    if written.is_err() {
+        let _ = std::fs::remove_file(&tmp);
+    }
+    written
+}
+
 /// Runs the sweep's (point, seed) pairs selected by `shard` = (i, n) — every
 /// n-th pair starting at i (1-based) — skipping pairs whose result exists
 /// unless `force`. `progress(done, total)` is called as pairs finish.
@@ -518,8 +557,9 @@ pub fn run_sweep(
     std::fs::create_dir_all(dir.join("points")).map_err(|e| out_err(dir, e))?;
     std::fs::create_dir_all(dir.join("runs")).map_err(|e| out_err(dir, e))?;
     let (shard_i, shard_n) = shard;
-    let pairs: Vec<(usize, i64)> = (0..sweep.points.len())
-        .flat_map(|p| sweep.seeds.iter().map(move |&s| (p, s)))
+    let pairs: Vec<(usize, i64)> = sweep
+        .runs()
+        .into_iter()
         .enumerate()
         .filter(|(k, _)| k % shard_n == shard_i - 1)
         .map(|(_, pair)| pair)
@@ -530,14 +570,8 @@ pub fn run_sweep(
     let results: Vec<Result<Option<PointResult>>> = pairs
         .par_iter()
         .map(|&(point, seed)| {
-            let json_path = point_json(dir, point, seed);
-            let reusable = !force
-                && json_path.exists()
-                && sweep.point_hash(point, seed).is_ok_and(|h| {
-                    read_point(&json_path).is_ok_and(|r| r.scenario_hash == Some(h))
-                });
-            let result = if reusable {
-                read_point(&json_path).map(Some)
+            let result = if !force && sweep.has_result(dir, point, seed) {
+                read_point(&point_json(dir, point, seed)).map(Some)
             } else {
                 run_point(sweep, dir, point, seed, stop)
             };
@@ -635,13 +669,10 @@ fn run_point(
     let json_path = point_json(dir, point, seed);
     let text = serde_json::to_string_pretty(&result).map_err(|e| fail(e.to_string()))?;
     // Write then rename, so a killed sweep never leaves half a result.
-    let tmp = json_path.with_extension("json.tmp");
-    std::fs::write(&tmp, text)
-        .and_then(|_| std::fs::rename(&tmp, &json_path))
-        .map_err(|e| SweepError::Output {
-            path: json_path.clone(),
-            message: e.to_string(),
-        })?;
+    write_atomically(&json_path, text.as_bytes()).map_err(|e| SweepError::Output {
+        path: json_path.clone(),
+        message: e.to_string(),
+    })?;
     Ok(Some(result))
 }
 
@@ -825,7 +856,8 @@ pub fn write_summary(summary: &Summary, dir: &Path) -> Result<Vec<PathBuf>> {
     let json_path = dir.join("summary.json");
     let json =
         serde_json::to_string_pretty(summary).map_err(|e| out_err(&json_path, e.to_string()))?;
-    std::fs::write(&json_path, json).map_err(|e| out_err(&json_path, e.to_string()))?;
+    write_atomically(&json_path, json.as_bytes())
+        .map_err(|e| out_err(&json_path, e.to_string()))?;
     let model_names: Vec<String> = {
         let mut names: Vec<String> = summary
             .points
@@ -924,7 +956,7 @@ pub fn write_summary(summary: &Summary, dir: &Path) -> Result<Vec<PathBuf>> {
         csv.push('\n');
     }
     let csv_path = dir.join("summary.csv");
-    std::fs::write(&csv_path, csv).map_err(|e| out_err(&csv_path, e.to_string()))?;
+    write_atomically(&csv_path, csv.as_bytes()).map_err(|e| out_err(&csv_path, e.to_string()))?;
     Ok(vec![csv_path, json_path])
 }
 

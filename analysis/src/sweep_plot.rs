@@ -178,9 +178,11 @@ pub fn axis_label(key: &str) -> String {
 pub fn write_sweep_plots(summary: &Summary, prefix: &Path) -> Result<Vec<PathBuf>, SweepError> {
     let fig = sweep_figure(summary);
     let svg = prefix.with_extension("svg");
-    std::fs::write(&svg, render_svg(&fig)).map_err(|e| SweepError::Output {
-        path: svg.clone(),
-        message: e.to_string(),
+    crate::sweep::write_atomically(&svg, render_svg(&fig).as_bytes()).map_err(|e| {
+        SweepError::Output {
+            path: svg.clone(),
+            message: e.to_string(),
+        }
     })?;
     let png = prefix.with_extension("png");
     render_png(&fig, &png, png_font_available()).map_err(|e| SweepError::Output {

@@ -1,5 +1,6 @@
 //! Outside checks: tools from outside the project that read our files —
-//! Python with h5py, numpy, scipy and pandas, and h5dump (hdf5-tools).
+//! Python with h5py, numpy, scipy and pandas, and h5dump (hdf5-tools) — or
+//! run our jobs: a one-node Slurm cluster (ci/start-slurm.sh).
 //!
 //! Each is provisioned when it can be: Python packages into a virtual
 //! environment under target/ from the package registry (h5py's wheels bring
@@ -22,6 +23,8 @@ pub enum Tool {
     Python,
     /// The h5dump command.
     H5dump,
+    /// A Slurm cluster with an idle node (the path is sbatch).
+    Slurm,
 }
 
 /// Python packages the outside checks import (pandas reads our CSV tables).
@@ -199,12 +202,72 @@ fn provision_h5dump() -> Result<PathBuf, String> {
     }
 }
 
+fn slurm_node_up() -> bool {
+    // Without its configuration file sinfo retries for a minute before giving up.
+    let conf = std::env::var_os("SLURM_CONF")
+        .map_or_else(|| PathBuf::from("/etc/slurm/slurm.conf"), PathBuf::from);
+    if !conf.exists() {
+        return false;
+    }
+    // An unreachable controller is given 20 s, not sinfo's own retries.
+    Command::new("timeout")
+        .args(["20", "sinfo", "-h", "-N", "-o", "%T"])
+        .output()
+        .is_ok_and(|o| {
+            o.status.success()
+                && String::from_utf8_lossy(&o.stdout)
+                    .lines()
+                    .any(|l| ["idle", "mixed", "allocated"].contains(&l.trim()))
+        })
+}
+
+/// A reachable Slurm cluster, else (as root, under CI=true or
+/// THICKET_TEST_APT=1) the one-node cluster ci/start-slurm.sh starts.
+fn provision_slurm() -> Result<PathBuf, String> {
+    if slurm_node_up() {
+        return Ok(PathBuf::from("sbatch"));
+    }
+    if !apt_allowed() {
+        return Err(
+            "no Slurm cluster is reachable (sinfo shows no idle node); run ci/start-slurm.sh as root to start a one-node cluster, or set THICKET_TEST_APT=1 to let the tests start it"
+                .into(),
+        );
+    }
+    // The script lives at the workspace root, above whichever crate runs the test.
+    let script = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .ancestors()
+        .map(|d| d.join("ci").join("start-slurm.sh"))
+        .find(|p| p.exists())
+        .ok_or("ci/start-slurm.sh is not found above the crate")?;
+    let out = Command::new("bash")
+        .arg(&script)
+        .output()
+        .map_err(|e| format!("{} did not run: {e}", script.display()))?;
+    if !out.status.success() {
+        return Err(format!(
+            "{} failed: {}",
+            script.display(),
+            last_line(&out.stderr)
+        ));
+    }
+    if slurm_node_up() {
+        Ok(PathBuf::from("sbatch"))
+    } else {
+        Err(format!(
+            "{} ended but sinfo shows no idle node",
+            script.display()
+        ))
+    }
+}
+
 fn provisioned(tool: Tool) -> &'static Result<PathBuf, String> {
     static PYTHON: OnceLock<Result<PathBuf, String>> = OnceLock::new();
     static H5DUMP: OnceLock<Result<PathBuf, String>> = OnceLock::new();
+    static SLURM: OnceLock<Result<PathBuf, String>> = OnceLock::new();
     match tool {
         Tool::Python => PYTHON.get_or_init(provision_python),
         Tool::H5dump => H5DUMP.get_or_init(provision_h5dump),
+        Tool::Slurm => SLURM.get_or_init(provision_slurm),
     }
 }
 

@@ -6,6 +6,7 @@ use crate::io::lock::OutputLock;
 use crate::io::trajectory::{checkpoint_path, recorded_steps, Checkpoint, TrajectoryWriter};
 use crate::obstacles::FixedObstacles;
 use crate::run::observe::{Frames, Observer, Progress, WallsAndBaths};
+use crate::run::part::PartRun;
 use crate::scenario::Scenario;
 use crate::step::pipeline::Stepper;
 use crate::step::state::State;
@@ -58,6 +59,32 @@ pub fn run(
     stop: &AtomicBool,
     progress: &mut dyn FnMut(u64, u64),
 ) -> Result<RunOutcome> {
+    drive(scenario, None, options, stop, progress)
+}
+
+/// Runs one part of a split ensemble (see [`crate::run::part`]) to its end or
+/// until `stop` is set, as [`run`] does a whole scenario.
+///
+/// # Errors
+/// As [`run`].
+pub fn run_part(
+    part: &PartRun,
+    options: &RunOptions,
+    stop: &AtomicBool,
+    progress: &mut dyn FnMut(u64, u64),
+) -> Result<RunOutcome> {
+    drive(&part.scenario, Some(part), options, stop, progress)
+}
+
+/// The one run driver; `part` (whose scenario is `scenario`) only changes
+/// where a new run starts and what the file says it holds.
+fn drive(
+    scenario: &Scenario,
+    part: Option<&PartRun>,
+    options: &RunOptions,
+    stop: &AtomicBool,
+    progress: &mut dyn FnMut(u64, u64),
+) -> Result<RunOutcome> {
     let out = &options.out;
     let ckpt_path = checkpoint_path(out);
     // Obstacles come from the seed, so a resumed run rebuilds the same medium;
@@ -96,8 +123,14 @@ pub fn run(
             })?;
         }
         let _ = std::fs::remove_file(&ckpt_path);
-        let state = stepper.initial_state(scenario)?;
+        let state = match part {
+            Some(p) => p.initial_state(&obstacles)?,
+            None => stepper.initial_state(scenario)?,
+        };
         let mut writer = TrajectoryWriter::create(out, scenario)?;
+        if let Some(p) = part {
+            p.describe(&writer)?;
+        }
         writer.write_obstacles(&obstacles, scenario)?;
         for o in &mut observers {
             o.start(&mut writer, &stepper, &state)?;

@@ -4,5 +4,6 @@
 pub mod driver;
 pub mod membrane;
 pub mod observe;
+pub mod part;
 
-pub use driver::{run, RunOptions, RunOutcome};
+pub use driver::{run, run_part, RunOptions, RunOutcome};
