@@ -7,6 +7,7 @@
 //! file, the key, the value and the allowed range. Nothing downstream sees an
 //! unchecked value.
 
+use crate::contact::ContactRule;
 use crate::crowders::Sweep;
 use crate::error::{EngineError, Result};
 use crate::fibres::{FibreSpec, Orientation};
@@ -266,6 +267,10 @@ pub struct RawIntegrator {
     /// (the reference sweep); both give the same result.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub sweep: Option<String>,
+    /// Hard contacts: "reject" (default) rejects a move into overlap,
+    /// "reflect" reflects it at the contact (contact.rs).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub contact: Option<String>,
 }
 
 /// `[output]`.
@@ -380,6 +385,8 @@ pub struct Scenario {
     pub fibres: Option<FibreSpec>,
     /// Update order of particles with hard contacts.
     pub sweep: Sweep,
+    /// How hard contacts are handled.
+    pub contact: ContactRule,
     /// Confining geometry, if any.
     pub geometry: Option<Geometry>,
     /// The resolved scenario (defaults filled in) as TOML text.
@@ -1002,6 +1009,26 @@ impl RawScenario {
                 ))
             }
         };
+        let contact = match self.integrator.contact.as_deref() {
+            None => ContactRule::Reject,
+            Some(text) => ContactRule::parse(text).ok_or_else(|| {
+                invalid(
+                    file,
+                    "integrator.contact",
+                    format!("{text:?}"),
+                    "allowed: \"reject\" (default) or \"reflect\"",
+                )
+            })?,
+        };
+        if contact == ContactRule::Reflect && self.geometry.is_some() {
+            return Err(invalid(
+                file,
+                "integrator.contact",
+                "\"reflect\"",
+                "reflecting contacts are not implemented with a [geometry] (walls, pores, membranes) yet; \
+                 use \"reject\" there, or a box with walls on box.periodic",
+            ));
+        }
         // A geometry decides which axes are walled, so it comes before anything that uses the box.
         let geometry = match &self.geometry {
             None => None,
@@ -1194,6 +1221,7 @@ impl RawScenario {
             obstacles,
             fibres,
             sweep,
+            contact,
             geometry,
             resolved_toml,
         };

@@ -6,6 +6,7 @@
 //! particle draws from its own random stream.
 
 use crate::config::{Scenario, SimBox};
+use crate::contact::{billiard, Bounds, ContactRule};
 use crate::crowders::Crowd;
 use crate::error::{EngineError, Result};
 use crate::neighbors::{Blocker, ObstacleGrid};
@@ -279,6 +280,96 @@ fn advance_one_obstructed<B: Blocker>(
     *im = n;
 }
 
+/// The box as the centres of species `kin` see it (contact.rs).
+pub fn bounds(kin: &Kinetics, sim_box: &SimBox) -> Bounds {
+    Bounds {
+        periodic: sim_box.periodic,
+        edges_nm: sim_box.edges_nm,
+        lower_nm: kin.lower_nm,
+        upper_nm: kin.upper_nm,
+    }
+}
+
+/// Advances non-interacting particles among fixed obstacles by `steps`
+/// steps, reflecting each Gaussian move at the obstacles and walls it meets
+/// instead of rejecting it (contact.rs; `[integrator] contact = "reflect"`).
+/// Particle-major like [`advance_obstructed`], with the same draws.
+pub fn advance_reflecting(
+    state: &mut State,
+    kinetics: &[Kinetics],
+    grids: &[ObstacleGrid],
+    sim_box: &SimBox,
+    steps: u64,
+) {
+    for (kin, grid) in kinetics.iter().zip(grids) {
+        let r = kin.range.clone();
+        let bounds = bounds(kin, sim_box);
+        let pos = &mut state.positions[r.clone()];
+        let img = &mut state.images[r.clone()];
+        let rng = &mut state.rngs[r];
+        pos.par_chunks_mut(OBSTRUCTED_CHUNK)
+            .zip(img.par_chunks_mut(OBSTRUCTED_CHUNK))
+            .zip(rng.par_chunks_mut(OBSTRUCTED_CHUNK))
+            .for_each(|((p, im), g)| {
+                for ((p, im), g) in p.iter_mut().zip(im.iter_mut()).zip(g.iter_mut()) {
+                    advance_one_reflecting(p, im, g, kin, grid, &bounds, steps);
+                    debug_assert!(
+                        !grid.blocked(p),
+                        "a tracer ended inside an obstacle at {p:?}"
+                    );
+                }
+            });
+    }
+    state.step += steps;
+}
+
+/// One particle through `steps` reflecting steps, its state kept in registers.
+#[inline(always)]
+fn advance_one_reflecting(
+    p: &mut [f64; 3],
+    im: &mut [i32; 3],
+    g: &mut ParticleRng,
+    kin: &Kinetics,
+    grid: &ObstacleGrid,
+    bounds: &Bounds,
+    steps: u64,
+) {
+    let mut x = *p;
+    let mut n = *im;
+    let sigma = kin.sigma_nm;
+    // A ball around `anchor` known to be open: a move whose end stays inside
+    // it (and inside the walls) meets nothing, as both ends lie in a convex open set.
+    let mut anchor = x;
+    let mut safe2 = -1.0;
+    for _ in 0..steps {
+        let d = [0, 1, 2].map(|_| sigma * standard_normal(g));
+        let mut y = [x[0] + d[0], x[1] + d[1], x[2] + d[2]];
+        let e = [y[0] - anchor[0], y[1] - anchor[1], y[2] - anchor[2]];
+        let inside_walls = (0..3).all(|k| {
+            bounds.periodic[k] || (y[k] >= bounds.lower_nm[k] && y[k] <= bounds.upper_nm[k])
+        });
+        let clear = inside_walls && e[0] * e[0] + e[1] * e[1] + e[2] * e[2] < safe2;
+        if !clear {
+            y = billiard(&x, &d, bounds, grid).0;
+        }
+        let (w, crossed) = bounds.wrap(&y);
+        x = w;
+        for k in 0..3 {
+            n[k] += crossed[k];
+        }
+        if !clear {
+            let c = grid.clearance(&x);
+            anchor = x;
+            safe2 = if c > 0.0 { c * c } else { -1.0 };
+        } else if crossed != [0; 3] {
+            // The anchor stays in the frame it was found in: a wrapped point needs a new one.
+            safe2 = -1.0;
+        }
+    }
+    *p = x;
+    *im = n;
+}
+
 /// The step kernel a scenario needs, with its prepared neighbour structures.
 #[derive(Debug, Clone)]
 pub struct Dynamics {
@@ -290,7 +381,7 @@ pub struct Dynamics {
 #[derive(Debug, Clone)]
 enum Kernel {
     Free,
-    Obstructed(Vec<ObstacleGrid>),
+    Obstructed(Vec<ObstacleGrid>, ContactRule),
     Crowded(Box<Crowd>),
 }
 
@@ -311,7 +402,7 @@ impl Dynamics {
         } else if obstacles.is_empty() {
             Kernel::Free
         } else {
-            Kernel::Obstructed(grids())
+            Kernel::Obstructed(grids(), scenario.contact)
         };
         Self {
             sim_box: scenario.sim_box,
@@ -324,7 +415,7 @@ impl Dynamics {
     pub fn name(&self) -> &'static str {
         match self.kernel {
             Kernel::Free => "free",
-            Kernel::Obstructed(_) => "obstructed",
+            Kernel::Obstructed(..) => "obstructed",
             Kernel::Crowded(_) => "crowded",
         }
     }
@@ -334,7 +425,7 @@ impl Dynamics {
     pub fn relative_cost(&self) -> u64 {
         match self.kernel {
             Kernel::Free => 1,
-            Kernel::Obstructed(_) => 2,
+            Kernel::Obstructed(..) => 2,
             Kernel::Crowded(_) => 8,
         }
     }
@@ -374,7 +465,7 @@ impl Dynamics {
                 let grids = c.grids();
                 crate::crowders::place_crowd(scenario, &self.kinetics, grids)
             }
-            Kernel::Obstructed(grids) => {
+            Kernel::Obstructed(grids, _) => {
                 let n = scenario.particle_count();
                 let mut rngs: Vec<ParticleRng> = (0..n as u64)
                     .map(|i| ParticleRng::for_particle(scenario.seed, i))
@@ -420,8 +511,11 @@ impl Dynamics {
     pub fn advance(&mut self, state: &mut State, steps: u64) {
         match &mut self.kernel {
             Kernel::Free => advance_free(state, &self.kinetics, &self.sim_box, steps),
-            Kernel::Obstructed(grids) => {
+            Kernel::Obstructed(grids, ContactRule::Reject) => {
                 advance_obstructed(state, &self.kinetics, grids, &self.sim_box, steps)
+            }
+            Kernel::Obstructed(grids, ContactRule::Reflect) => {
+                advance_reflecting(state, &self.kinetics, grids, &self.sim_box, steps)
             }
             Kernel::Crowded(c) => c.advance(state, &self.kinetics, &self.sim_box, steps),
         }

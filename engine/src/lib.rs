@@ -6,6 +6,7 @@
 
 pub mod config;
 pub mod confined;
+pub mod contact;
 pub mod crowders;
 pub mod error;
 pub mod fibres;
