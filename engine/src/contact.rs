@@ -249,13 +249,12 @@ impl Bounds {
     pub fn min_image(&self, d: &[f64; 3]) -> [f64; 3] {
         // Differences of points within a box length of each other: at most one shift.
         let mut out = *d;
-        for k in 0..3 {
-            if self.periodic[k] {
-                let l = self.edges_nm[k];
-                if out[k] > 0.5 * l {
-                    out[k] -= l;
-                } else if out[k] < -0.5 * l {
-                    out[k] += l;
+        for ((o, &periodic), &l) in out.iter_mut().zip(&self.periodic).zip(&self.edges_nm) {
+            if periodic {
+                if *o > 0.5 * l {
+                    *o -= l;
+                } else if *o < -0.5 * l {
+                    *o += l;
                 }
             }
         }

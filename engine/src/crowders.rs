@@ -718,8 +718,8 @@ impl Crowd {
             untouched += u64::from(end[s] == slots.y[s]);
             let (p, m) = bounds[slots.species[s] as usize].wrap(&end[s]);
             slots.pos[s] = p;
-            for k in 0..3 {
-                slots.img[s][k] += m[k];
+            for (image, crossed) in slots.img[s].iter_mut().zip(m) {
+                *image += crossed;
             }
         }
         self.stats.accepted += untouched;
