@@ -83,6 +83,10 @@ pub struct RawSweep {
     /// Title for the report and plot.
     #[serde(default)]
     pub title: Option<String>,
+    /// Extrapolate D_eff to Δt → 0 over the grid key `integrator.dt_s`
+    /// (which must list two or more steps), per combination of the other keys.
+    #[serde(default)]
+    pub extrapolate_dt: bool,
 }
 
 /// The largest number of (point, seed) runs one sweep may hold.
@@ -122,6 +126,138 @@ pub struct Sweep {
     pub species: Option<String>,
     /// Title.
     pub title: String,
+    /// Extrapolate D_eff to Δt → 0 over `integrator.dt_s`.
+    pub extrapolate_dt: bool,
+}
+
+/// The grid key a Δt extrapolation runs over.
+pub const DT_KEY: &str = "integrator.dt_s";
+
+/// D_eff/D0 extrapolated to Δt → 0 for one combination of the other grid keys.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct DtExtrapolation {
+    /// Values of the other grid keys.
+    pub values: BTreeMap<String, toml::Value>,
+    /// Contact rule of the runs ("reject" or "reflect").
+    pub contact: String,
+    /// Leading order fitted: D(Δt) = D(0) + c·Δt^order (½ for rejection, 1 for reflection).
+    pub order: f64,
+    /// Steps used, s.
+    pub dt_s: Vec<f64>,
+    /// Extrapolated D_eff/D0.
+    pub d_eff_over_d0: f64,
+    /// 95 % interval, including the fit's uncertainty (scaled up by the
+    /// residual χ²/dof when that exceeds 1, with Student's t for the dof).
+    pub d_eff_over_d0_ci95: [f64; 2],
+    /// Residual χ² per degree of freedom (None with two steps: an exact fit).
+    pub chi2_per_dof: Option<f64>,
+}
+
+/// Weighted least-squares line y = a + b·x through (x, y ± se): the
+/// intercept a, its standard error (scaled by √(χ²/dof) when that exceeds
+/// 1), and χ²/dof (None with two points). None with fewer than two distinct x.
+pub fn weighted_intercept(x: &[f64], y: &[f64], se: &[f64]) -> Option<(f64, f64, Option<f64>)> {
+    let w: Vec<f64> = se.iter().map(|s| 1.0 / (s * s).max(1e-300)).collect();
+    let (mut sw, mut sx, mut sy, mut sxx, mut sxy) = (0.0, 0.0, 0.0, 0.0, 0.0);
+    for i in 0..x.len() {
+        sw += w[i];
+        sx += w[i] * x[i];
+        sy += w[i] * y[i];
+        sxx += w[i] * x[i] * x[i];
+        sxy += w[i] * x[i] * y[i];
+    }
+    let det = sw * sxx - sx * sx;
+    if x.len() < 2 || det.abs() <= 1e-12 * sw * sxx {
+        return None;
+    }
+    let a = (sxx * sy - sx * sxy) / det;
+    let b = (sw * sxy - sx * sy) / det;
+    let mut var_a = sxx / det;
+    let dof = x.len() - 2;
+    let chi2 = (dof > 0).then(|| {
+        (0..x.len())
+            .map(|i| w[i] * (y[i] - a - b * x[i]).powi(2))
+            .sum::<f64>()
+            / dof as f64
+    });
+    if let Some(c) = chi2 {
+        var_a *= c.max(1.0);
+    }
+    Some((a, var_a.sqrt(), chi2))
+}
+
+/// Two-sided 95 % quantile of Student's t with `dof` degrees of freedom
+/// (statistical tables [NIST/SEMATECH e-Handbook]; the normal 1.96 for dof 0,
+/// i.e. an exact fit whose interval comes from the points' errors alone).
+fn t95(dof: usize) -> f64 {
+    const T: [f64; 10] = [
+        12.706, 4.303, 3.182, 2.776, 2.571, 2.447, 2.365, 2.306, 2.262, 2.228,
+    ];
+    match dof {
+        0 => 1.959_963_984_540_054,
+        d if d <= 10 => T[d - 1],
+        _ => 1.959_963_984_540_054 + 2.5 / dof as f64,
+    }
+}
+
+/// The Δt extrapolations of a summary's rows (empty unless the sweep asks).
+fn extrapolate_dt(sweep: &Sweep, rows: &[SummaryRow]) -> Vec<DtExtrapolation> {
+    if !sweep.extrapolate_dt {
+        return Vec::new();
+    }
+    let z = 1.959_963_984_540_054;
+    let mut groups: BTreeMap<String, Vec<&SummaryRow>> = BTreeMap::new();
+    for r in rows {
+        let mut others = r.values.clone();
+        others.remove(DT_KEY);
+        groups.entry(format!("{others:?}")).or_default().push(r);
+    }
+    let mut out = Vec::new();
+    for members in groups.values() {
+        let first = members[0];
+        let contact = Scenario::load(
+            &sweep.scenario_file,
+            &sweep.overrides(first.point, sweep.seeds[0]),
+        )
+        .map(|sc| sc.contact)
+        .unwrap_or_default();
+        let order = match contact {
+            thicket_engine::space::collisions::ContactRule::Reject => 0.5,
+            thicket_engine::space::collisions::ContactRule::Reflect => 1.0,
+        };
+        let dt: Vec<f64> = members
+            .iter()
+            .filter_map(|r| {
+                r.values
+                    .get(DT_KEY)
+                    .and_then(|v| v.as_float().or(v.as_integer().map(|i| i as f64)))
+            })
+            .collect();
+        if dt.len() != members.len() {
+            continue;
+        }
+        let x: Vec<f64> = dt.iter().map(|d| d.powf(order)).collect();
+        let y: Vec<f64> = members.iter().map(|r| r.d_eff_over_d0).collect();
+        let se: Vec<f64> = members
+            .iter()
+            .map(|r| (r.d_eff_over_d0_ci95[1] - r.d_eff_over_d0_ci95[0]) / (2.0 * z))
+            .collect();
+        if let Some((a, sa, chi2)) = weighted_intercept(&x, &y, &se) {
+            let half = t95(x.len() - 2) * sa;
+            let mut values = first.values.clone();
+            values.remove(DT_KEY);
+            out.push(DtExtrapolation {
+                values,
+                contact: contact.name().into(),
+                order,
+                dt_s: dt,
+                d_eff_over_d0: a,
+                d_eff_over_d0_ci95: [a - half, a + half],
+                chi2_per_dof: chi2,
+            });
+        }
+    }
+    out
 }
 
 /// One finished (point, seed) run.
@@ -255,6 +391,9 @@ pub struct Summary {
     /// The models' D_eff/D0 along the first key on a fine grid (from 0 for
     /// a volume fraction), for smooth curves beside the points.
     pub model_curves: Vec<ModelCurve>,
+    /// D_eff/D0 extrapolated to Δt → 0 (with `extrapolate_dt = true`).
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub dt_extrapolation: Vec<DtExtrapolation>,
     /// The usual caution.
     pub caution: String,
 }
@@ -451,7 +590,20 @@ impl Sweep {
             fixed,
             species: raw.species,
             title: raw.title.unwrap_or_else(|| "sweep".into()),
+            extrapolate_dt: raw.extrapolate_dt,
         };
+        if sweep.extrapolate_dt {
+            let steps = sweep
+                .keys
+                .iter()
+                .position(|k| k == DT_KEY)
+                .map_or(0, |i| lists[i].len());
+            if steps < 2 {
+                return Err(spec_err(format!(
+                    "key `extrapolate_dt` = true needs the grid key `{DT_KEY}` with two or more steps (e.g. [4e-6, 2e-6, 1e-6])"
+                )));
+            }
+        }
         // Validate every value on its own, so the message names the key at fault.
         for (k, list) in sweep.keys.iter().zip(&lists) {
             for v in list {
@@ -704,6 +856,7 @@ pub fn summarize(sweep: &Sweep, dir: &Path) -> Result<Summary> {
         rows.push(combine(point, &results));
     }
     let (gamma, gamma_se) = fit_gamma(sweep, &rows);
+    let dt_extrapolation = extrapolate_dt(sweep, &rows);
     let too_short = rows
         .iter()
         .filter(|r| r.apparent)
@@ -728,6 +881,7 @@ pub fn summarize(sweep: &Sweep, dir: &Path) -> Result<Summary> {
         missing_points: missing,
         too_short,
         model_curves: model_curves(sweep),
+        dt_extrapolation,
         caution: CAUTION.into(),
     })
 }
@@ -966,5 +1120,38 @@ fn csv_field(s: &str) -> String {
         format!("\"{}\"", s.replace('"', "\"\""))
     } else {
         s.to_string()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // Exact identities of least squares: a line through noiseless points is
+    // recovered, and with two points the intercept's error is the
+    // propagation of the points' errors, Var a = (x₂² s₁² + x₁² s₂²)/(x₂ − x₁)².
+    #[test]
+    fn weighted_intercept_recovers_lines_and_propagates_errors() {
+        let x = [1.0, 2.0, 4.0];
+        let y: Vec<f64> = x.iter().map(|v| 0.86 - 0.03 * v).collect();
+        let (a, _, chi2) = weighted_intercept(&x, &y, &[0.01, 0.01, 0.01]).unwrap();
+        assert!((a - 0.86).abs() < 1e-12 && chi2.unwrap() < 1e-20);
+        let (a, sa, chi2) = weighted_intercept(&[1.0, 4.0], &[0.80, 0.70], &[0.01, 0.02]).unwrap();
+        assert!((a - (4.0 * 0.80 - 0.70) / 3.0).abs() < 1e-12);
+        let expect = ((16.0 * 1e-4 + 4e-4) / 9.0f64).sqrt();
+        assert!((sa - expect).abs() < 1e-12 && chi2.is_none());
+        // A poor fit widens the interval by √(χ²/dof).
+        let (_, tight, _) = weighted_intercept(&x, &[0.83, 0.80, 0.74], &[0.01; 3]).unwrap();
+        let (_, wide, c) = weighted_intercept(&x, &[0.83, 0.78, 0.74], &[0.01; 3]).unwrap();
+        assert!(c.unwrap() > 1.0 && wide > tight);
+        assert!(weighted_intercept(&[1.0, 1.0], &[0.8, 0.7], &[0.01, 0.01]).is_none());
+    }
+
+    // Student's t two-sided 95 % points (NIST/SEMATECH e-Handbook table).
+    #[test]
+    fn t_quantiles_match_the_table() {
+        assert_eq!(t95(1), 12.706);
+        assert_eq!(t95(4), 2.776);
+        assert!((t95(0) - 1.96).abs() < 1e-3);
     }
 }

@@ -16,6 +16,7 @@ use crate::scenario::media::Sweep;
 use crate::scenario::media::{FibreSpec, Orientation};
 use crate::scenario::media::{Generator, ObstacleSpec, RadiusDistribution, Target};
 pub use crate::scenario::species::Species;
+use crate::space::collisions::ContactRule;
 use crate::space::SimBox;
 use serde::{Deserialize, Serialize};
 use std::path::{Path, PathBuf};
@@ -27,6 +28,12 @@ pub const MAX_STEPS: i64 = 1_000_000_000_000;
 /// Step length as a fraction of the smallest feature above which `check` warns
 /// (a tenth: common practice, REFERENCES.md "Numerics").
 pub const STEP_WARNING_FRACTION: f64 = 0.1;
+/// Estimated contact bias above which `check` warns.
+pub const CONTACT_BIAS_WARNING: f64 = 0.01;
+/// Rule of thumb: relative bias of rejection per unit Σℓ (contact_bias_estimate).
+const REJECT_BIAS_PER_CONTACT_STEP: f64 = 0.4;
+/// Rule of thumb: relative bias of reflection per unit Σℓ²/R (contact_bias_estimate).
+const REFLECT_BIAS_PER_CONTACT_STEP: f64 = 0.1;
 /// The largest number of fixed obstacles (spheres or fibres) a scenario may ask for.
 pub const MAX_OBSTACLES: i64 = 20_000_000;
 /// Temperatures the Stokes–Einstein and Langevin formulas are used for, in K
@@ -205,6 +212,10 @@ pub struct RawIntegrator {
     /// (the reference sweep); both give the same result.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub sweep: Option<String>,
+    /// Hard contacts: "reject" (default) rejects a move into overlap,
+    /// "reflect" reflects it at the contact (contact.rs).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub contact: Option<String>,
 }
 
 /// `[output]`.
@@ -278,6 +289,8 @@ pub struct Scenario {
     pub fibres: Option<FibreSpec>,
     /// Update order of particles with hard contacts.
     pub sweep: Sweep,
+    /// How hard contacts are handled.
+    pub contact: ContactRule,
     /// Confining geometry, if any.
     pub geometry: Option<Geometry>,
     /// The resolved scenario (defaults filled in) as TOML text.
@@ -384,9 +397,97 @@ impl Scenario {
         }
     }
 
+    /// Rule of thumb (common practice, calibrated on this project's own Δt
+    /// series at φ = 0.3, REFERENCES.md "Numerics"): the relative bias of a
+    /// species' long-time diffusivity from the handling of hard contacts.
+    /// With Σ the contact surface per open volume (fixed spheres
+    /// n·4π(a + b)²/(1 − φ), walls 1/L per wall, partners n·4π(a + a')²·g(σ⁺)
+    /// with Carnahan–Starling's contact value) and ℓ the rms step (relative
+    /// step for mobile pairs), rejection costs about 0.4·Σℓ (√Δt) and
+    /// reflection about 0.1·Σℓ·ℓ/R at a contact distance R (Δt); measured
+    /// within a factor of 2. None when the scenario has no such contacts or
+    /// its obstacles are not described by a fixed radius and volume fraction.
+    pub fn contact_bias_estimate(&self, s: &Species) -> Option<f64> {
+        let step = s.step_rms_nm(self.dt_s);
+        let volume: f64 = self.sim_box.edges_nm.iter().product();
+        // (Σ·ℓ, Σ·ℓ²/R) summed over kinds of contact.
+        let (mut first, mut second) = (0.0, 0.0);
+        let mut any = false;
+        for k in 0..3 {
+            if !self.sim_box.periodic[k] {
+                let sigma = 2.0 / self.sim_box.edges_nm[k];
+                // A plane wall has no curvature: reflection is exact there.
+                first += sigma * step;
+                any = true;
+            }
+        }
+        let phi_c = self.crowder_volume_fraction();
+        let g = if phi_c < 1.0 {
+            (1.0 - 0.5 * phi_c) / (1.0 - phi_c).powi(3)
+        } else {
+            return None;
+        };
+        for o in self.species.iter().filter(|o| s.crowder || o.crowder) {
+            let count = if std::ptr::eq(o, s) {
+                o.count.saturating_sub(1)
+            } else {
+                o.count
+            };
+            let r = s.radius_nm + o.radius_nm;
+            let sigma = count as f64 / volume * 4.0 * std::f64::consts::PI * r * r * g;
+            let rel = (step * step + o.step_rms_nm(self.dt_s).powi(2)).sqrt();
+            first += sigma * rel;
+            second += sigma * rel * rel / r;
+            any = true;
+        }
+        match &self.obstacles {
+            None => {}
+            Some(ObstacleSpec::Generated {
+                radii: RadiusDistribution::Fixed { radius_nm },
+                target: Target::VolumeFraction(phi),
+                ..
+            }) if *phi < 1.0 => {
+                let b = *radius_nm;
+                let r = s.radius_nm + b;
+                let n = phi / (4.0 / 3.0 * std::f64::consts::PI * b.powi(3));
+                let sigma = n * 4.0 * std::f64::consts::PI * r * r / (1.0 - phi);
+                first += sigma * step;
+                second += sigma * step * step / r;
+                any = true;
+            }
+            Some(_) => return None,
+        }
+        if self.fibres.is_some() {
+            return None;
+        }
+        any.then_some(match self.contact {
+            ContactRule::Reject => REJECT_BIAS_PER_CONTACT_STEP * first,
+            ContactRule::Reflect => REFLECT_BIAS_PER_CONTACT_STEP * second,
+        })
+    }
+
     /// Warnings a careful user would want before running.
     pub fn warnings(&self) -> Vec<String> {
         let mut out = Vec::new();
+        for s in &self.species {
+            if let Some(bias) = self
+                .contact_bias_estimate(s)
+                .filter(|&b| b > CONTACT_BIAS_WARNING)
+            {
+                out.push(format!(
+                    "species '{}': the hard contacts may bias its diffusivity by about {:.1} % at this step \
+                     (integrator.contact = \"{}\"; a rule of thumb from the step and the contact density, good to a \
+                     factor of 2); {}",
+                    s.name,
+                    100.0 * bias,
+                    self.contact.name(),
+                    match self.contact {
+                        ContactRule::Reject => "integrator.contact = \"reflect\" shrinks this bias like Δt instead of √Δt",
+                        ContactRule::Reflect => "a smaller integrator.dt_s reduces it in proportion",
+                    }
+                ));
+            }
+        }
         for s in self.species.iter().filter(|_| self.has_contacts()) {
             let step = s.step_rms_nm(self.dt_s);
             let feature = self.smallest_feature_nm(s);
@@ -764,6 +865,26 @@ impl RawScenario {
                 ))
             }
         };
+        let contact = match self.integrator.contact.as_deref() {
+            None => ContactRule::Reject,
+            Some(text) => ContactRule::parse(text).ok_or_else(|| {
+                invalid(
+                    file,
+                    "integrator.contact",
+                    format!("{text:?}"),
+                    "allowed: \"reject\" (default) or \"reflect\"",
+                )
+            })?,
+        };
+        if contact == ContactRule::Reflect && self.geometry.is_some() {
+            return Err(invalid(
+                file,
+                "integrator.contact",
+                "\"reflect\"",
+                "reflecting contacts are not implemented with a [geometry] (walls, pores, membranes) yet; \
+                 use \"reject\" there, or a box with walls on box.periodic",
+            ));
+        }
         // A geometry decides which axes are walled, so it comes before anything that uses the box.
         let geometry = match &self.geometry {
             None => None,
@@ -956,6 +1077,7 @@ impl RawScenario {
             obstacles,
             fibres,
             sweep,
+            contact,
             geometry,
             resolved_toml,
         };

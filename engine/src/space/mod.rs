@@ -3,6 +3,7 @@
 //! bodies and neighbour searches. Imports only `base`.
 
 pub mod bodies;
+pub mod collisions;
 pub mod mobility;
 pub mod neighbors;
 pub mod pore_hydro;

@@ -511,6 +511,54 @@ impl ObstacleGrid {
     }
 }
 
+/// Contact queries for reflecting moves (contact.rs): a cell lists every
+/// obstacle within the margin of its faces, so a move no longer than the
+/// margin from a point of the cell meets only obstacles the cell lists.
+impl crate::space::collisions::Surfaces for ObstacleGrid {
+    fn horizon_nm(&self) -> f64 {
+        self.margin_nm
+    }
+
+    fn first_contact(&self, p: &[f64; 3], d: &[f64; 3]) -> Option<(f64, [f64; 3])> {
+        use crate::space::collisions::{ball_entry, capsule_entry, widened2};
+        let c = self.cells.index_of(p);
+        let mut best: Option<(f64, [f64; 3])> = None;
+        let (s, e) = (
+            self.sphere_start[c] as usize,
+            self.sphere_start[c + 1] as usize,
+        );
+        for q in &self.spheres[s..e] {
+            let w = [p[0] - q[0], p[1] - q[1], p[2] - q[2]];
+            if let Some(t) = ball_entry(&w, d, widened2(q[3])) {
+                if best.is_none_or(|b| t < b.0) {
+                    let h = [w[0] + t * d[0], w[1] + t * d[1], w[2] + t * d[2]];
+                    let r = (h[0] * h[0] + h[1] * h[1] + h[2] * h[2]).sqrt();
+                    best = Some((t, [h[0] / r, h[1] / r, h[2] / r]));
+                }
+            }
+        }
+        if !self.capsule_start.is_empty() {
+            let (s, e) = (
+                self.capsule_start[c] as usize,
+                self.capsule_start[c + 1] as usize,
+            );
+            for cap in &self.capsules[s..e] {
+                let w = [
+                    p[0] - cap.centre[0],
+                    p[1] - cap.centre[1],
+                    p[2] - cap.centre[2],
+                ];
+                let hit =
+                    capsule_entry(&w, d, &cap.direction, cap.half_length, widened2(cap.reach2));
+                if let Some(h) = hit.filter(|h| best.is_none_or(|b| h.0 < b.0)) {
+                    best = Some(h);
+                }
+            }
+        }
+        best
+    }
+}
+
 /// Anything that answers "would a centre here overlap a fixed obstacle?":
 /// the step kernel is generic over it so that each path can be measured.
 pub trait Blocker: Sync {

@@ -23,9 +23,10 @@
 //! result does not depend on the number of threads.
 
 use crate::base::error::{EngineError, Result};
-use crate::base::rng::ParticleRng;
+use crate::base::rng::{standard_normal, ParticleRng};
 use crate::scenario::config::{Scenario, LATTICE_START_FRACTION};
 use crate::scenario::media::Sweep;
+use crate::space::collisions::{Bounds, ContactRule, EventStep};
 use crate::space::neighbors::{CellList, DynamicGrid, MinImage, ObstacleGrid, VerletList};
 use crate::space::shape::Shape;
 use crate::space::sim_box::SimBox;
@@ -40,6 +41,9 @@ const CHUNK: usize = 1024;
 /// unit of (1 + skin/contact)³: 27 cells scanned against the ~8φ neighbours
 /// tested per step, twice as dear per candidate (measured).
 const REBUILD_WEIGHT: f64 = 13.0;
+/// Path length an event step allows for, in units of the drawn displacement,
+/// when deciding whether the Verlet list still holds (checked after the step).
+const PATH_ALLOWANCE: f64 = 1.2;
 /// Fewest steps a Verlet list should last.
 const MIN_STEPS_PER_BUILD: f64 = 2.0;
 /// Below this many particles a step runs on one thread: a rayon pass costs
@@ -79,6 +83,8 @@ pub struct Crowd {
     /// Confining walls beyond the box faces (a pore), if any.
     region: Option<Shape>,
     sweep: Sweep,
+    /// Rejection, or the event-driven step (contact.rs).
+    contact: ContactRule,
     parallel_min: usize,
     skin_nm: f64,
     cells: Option<CellList>,
@@ -156,6 +162,16 @@ impl Slots {
     }
 }
 
+/// The box as the centres of one species see it, for the event-driven step.
+fn bounds(kin: &Kinetics, sim_box: &SimBox) -> Bounds {
+    Bounds {
+        periodic: sim_box.periodic,
+        edges_nm: sim_box.edges_nm,
+        lower_nm: kin.lower_nm,
+        upper_nm: kin.upper_nm,
+    }
+}
+
 /// One Gaussian proposal from `g`: the same displacement and box faces as
 /// every particle that steps alone (`pipeline`).
 #[inline(always)]
@@ -202,13 +218,19 @@ impl Crowd {
                 contact = contact.min(a.radius_nm + b.radius_nm);
             }
         }
-        let skin_nm = choose_skin_nm(contact, step, n);
+        // An event step's paths may outrun its draws (checked after each step): lists sized for that.
+        let allowance = match scenario.contact {
+            ContactRule::Reject => 1.0,
+            ContactRule::Reflect => PATH_ALLOWANCE,
+        };
+        let skin_nm = choose_skin_nm(contact, allowance * step, n);
         Self {
             radius_nm,
             crowder,
             grids,
             region: curved_region(scenario),
             sweep: scenario.sweep,
+            contact: scenario.contact,
             parallel_min: PARALLEL_MIN_PARTICLES,
             skin_nm,
             cells: None,
@@ -221,6 +243,11 @@ impl Crowd {
     /// Overrides the update order (for comparisons of the two).
     pub fn set_sweep(&mut self, sweep: Sweep) {
         self.sweep = sweep;
+    }
+
+    /// Overrides the contact rule (for comparisons of the two).
+    pub fn set_contact(&mut self, contact: ContactRule) {
+        self.contact = contact;
     }
 
     /// Sets the particle count from which the parallel sweep is used
@@ -354,6 +381,10 @@ impl Crowd {
     }
 
     fn step(&mut self, state: &mut State, kinetics: &[Kinetics], sim_box: &SimBox) {
+        if self.contact == ContactRule::Reflect {
+            self.step_events(state, kinetics, sim_box);
+            return;
+        }
         let sequential = self.sweep == Sweep::Sequential || state.len() < self.parallel_min;
         let drift2 = self.draw_proposals(kinetics, sim_box, sequential);
         self.ensure_list(state, sim_box, drift2);
@@ -610,6 +641,112 @@ impl Crowd {
             accepted += u64::from(!clash);
         }
         accepted
+    }
+
+    /// One step with reflecting contacts (`contact = "reflect"`): every
+    /// particle draws its displacement from its own stream (x, y, z, as the
+    /// proposals), then contact.rs runs the step as event-driven hard-sphere
+    /// dynamics. The Verlet list must hold every pair that can meet during
+    /// the step: each particle's drift from the list's reference plus its
+    /// path length must stay within half the skin, else the list is rebuilt
+    /// wider and the step run again from the same draws.
+    fn step_events(&mut self, state: &mut State, kinetics: &[Kinetics], sim_box: &SimBox) {
+        let wrap = MinImage::new(sim_box);
+        let n = self.slots.id.len();
+        let mut d2max: f64 = 0.0;
+        {
+            let list = self.verlet.as_ref().expect("list built by load");
+            let slots = &mut self.slots;
+            debug_assert!(!slots.pending, "the event step makes its moves at once");
+            for s in 0..n {
+                let kin = &kinetics[slots.species[s] as usize];
+                let g = &mut slots.rng[s];
+                let p = slots.pos[s];
+                let d = [0, 1, 2].map(|_| kin.sigma_nm * standard_normal(g));
+                slots.y[s] = [p[0] + d[0], p[1] + d[1], p[2] + d[2]];
+                slots.blocked[s] = false;
+                // Collisions can lengthen a path: checked after the step.
+                let reach = list.drift2_at(&wrap, s, &p).sqrt()
+                    + (d[0] * d[0] + d[1] * d[1] + d[2] * d[2]).sqrt();
+                d2max = d2max.max(reach * reach);
+            }
+        }
+        // `y` holds start + displacement (not wrapped), so it survives the reordering.
+        self.ensure_list(state, sim_box, d2max);
+        // Inverse masses: D0 of each species (the displacements are Maxwellian velocities).
+        let mobility: Vec<f64> = kinetics
+            .iter()
+            .map(|k| 0.5 * k.sigma_nm * k.sigma_nm)
+            .collect();
+        let bounds: Vec<_> = kinetics.iter().map(|k| bounds(k, sim_box)).collect();
+        let mut end = vec![[0.0; 3]; n];
+        let mut path = vec![0.0; n];
+        loop {
+            let displacement: Vec<[f64; 3]> = (0..n)
+                .map(|s| {
+                    let (y, p) = (&self.slots.y[s], &self.slots.pos[s]);
+                    [y[0] - p[0], y[1] - p[1], y[2] - p[2]]
+                })
+                .collect();
+            let list = self.verlet.as_ref().expect("list built by load");
+            let slots = &self.slots;
+            let step = EventStep {
+                start: &slots.pos,
+                displacement: &displacement,
+                radius: &slots.radius,
+                species: &slots.species,
+                mobility: &mobility,
+                bounds: &bounds,
+                surfaces: &self.grids,
+            };
+            let counts = step.run(|s| list.neighbour_slots_at(s), &mut end, &mut path);
+            debug_assert_eq!(counts.stalled, 0, "a particle stalled in the event step");
+            let reach = (0..n)
+                .map(|s| list.drift2_at(&wrap, s, &slots.pos[s]).sqrt() + path[s])
+                .fold(0.0, f64::max);
+            if reach * reach <= list.max_drift2() {
+                break;
+            }
+            // Some path left the list's reach: a list from here, wide enough for every path.
+            let widest = 2.0 * 1.01 * path.iter().cloned().fold(0.0, f64::max);
+            self.rebuild_at_least(state, sim_box, widest);
+        }
+        let slots = &mut self.slots;
+        let mut untouched = 0;
+        for s in 0..n {
+            // A move that met nothing ends where it was drawn to.
+            untouched += u64::from(end[s] == slots.y[s]);
+            let (p, m) = bounds[slots.species[s] as usize].wrap(&end[s]);
+            slots.pos[s] = p;
+            for (image, crossed) in slots.img[s].iter_mut().zip(m) {
+                *image += crossed;
+            }
+        }
+        self.stats.accepted += untouched;
+        self.stats.proposed += n as u64;
+        state.step += 1;
+    }
+
+    /// Rebuilds the Verlet list at the current positions with a skin of at
+    /// least `skin_nm`, reordering the slots.
+    fn rebuild_at_least(&mut self, state: &mut State, sim_box: &SimBox, skin_nm: f64) {
+        let list = self.verlet.as_ref().expect("list built by load");
+        let pos = &self.slots.pos;
+        // The build reads positions by index; the state's array is scratch until `store`.
+        state
+            .positions
+            .par_iter_mut()
+            .enumerate()
+            .for_each(|(i, p)| *p = pos[list.slot_of(i)]);
+        let fresh = self.build_list(&state.positions, sim_box, skin_nm.max(self.skin_nm));
+        let old = self.verlet.as_ref().expect("list built by load");
+        let from: Vec<u32> = fresh
+            .cell_order()
+            .iter()
+            .map(|&i| old.slot_of(i as usize) as u32)
+            .collect();
+        self.slots.permute(&from);
+        self.verlet = Some(fresh);
     }
 
     /// The first overlapping interacting pair, or a particle inside an

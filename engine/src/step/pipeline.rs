@@ -13,6 +13,7 @@ use crate::base::rng::ParticleRng;
 use crate::obstacles::FixedObstacles;
 use crate::scenario::geometry::Geometry;
 use crate::scenario::Scenario;
+use crate::space::collisions::{Bounds, ContactRule};
 use crate::space::mobility::{
     superpose_two_walls, superpose_two_walls_with_gradient, PerpendicularModel, WallMobilityTable,
 };
@@ -23,7 +24,7 @@ use crate::space::SimBox;
 use crate::step::boundary::{
     Baths, Boundary, BoxFaces, Counts, Events, Pore, Slab, Walls, PLACEMENT_ATTEMPTS,
 };
-use crate::step::contact::{Contact, NoContact, Reject};
+use crate::step::contact::{Contact, NoContact, Reflect, Reject};
 use crate::step::crowd::{place_crowd, Crowd};
 use crate::step::displacement::{
     Displacement, Isotropic, MobilityTable, NearestWall, PlanarWalls, PoreTensor,
@@ -59,9 +60,7 @@ fn one_step<D: Displacement, B: Boundary, C: Contact>(
     events: &mut B::Events,
 ) {
     let dx = d.draw(x, g);
-    let y = [x[0] + dx[0], x[1] + dx[1], x[2] + dx[2]];
-    let moved = b.fold(x, n, y, g, D::SYMMETRIC);
-    if c.accepts(&moved.at, memo) {
+    if let Some(moved) = c.settle(b, x, n, &dx, g, D::SYMMETRIC, memo) {
         *x = moved.at;
         *n = moved.image;
         *events += moved.events;
@@ -245,6 +244,8 @@ pub struct Stepper {
     /// Fixed obstacles as seen by each species' centre (empty without obstacles).
     grids: Vec<ObstacleGrid>,
     crowd: Option<Box<Crowd>>,
+    /// How moves meet fixed obstacles (rejection or reflection).
+    contact: ContactRule,
 }
 
 /// Particles of one species in each region of a membrane at one instant.
@@ -372,6 +373,7 @@ impl Stepper {
             pipelines,
             grids,
             crowd,
+            contact: scenario.contact,
         }
     }
 
@@ -572,6 +574,17 @@ impl Stepper {
             None => {
                 let chunk = if walled { WALLED_CHUNK } else { FREE_CHUNK };
                 advance_species((d, b, &NoContact), state, range, steps, chunk)
+            }
+            Some(grid) if self.contact == ContactRule::Reflect && !walled => {
+                let kin = &self.pipelines[s].kinetics;
+                let bounds = Bounds {
+                    periodic: self.sim_box.periodic,
+                    edges_nm: self.sim_box.edges_nm,
+                    lower_nm: kin.lower_nm,
+                    upper_nm: kin.upper_nm,
+                };
+                let c = Reflect { grid, bounds };
+                advance_species((d, b, &c), state, range, steps, OBSTRUCTED_CHUNK)
             }
             Some(grid) => {
                 let chunk = if walled {
