@@ -31,6 +31,7 @@
 //! slab's mid-plane.
 
 use crate::base::rng::ParticleRng;
+use crate::space::collisions::Bounds;
 use crate::space::reflect;
 use crate::space::shape::{Membrane, Shape};
 use serde::{Deserialize, Serialize};
@@ -157,21 +158,9 @@ pub fn wrap(x: &mut f64, image: &mut i32, l: f64) {
     }
 }
 
-/// The box alone: periodic axes wrap, walled axes reflect the centre into
-/// [`lower_nm`, `upper_nm`].
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct BoxFaces {
-    /// Periodic per axis.
-    pub periodic: [bool; 3],
-    /// Box edges, nm.
-    pub edges_nm: [f64; 3],
-    /// Lowest centre coordinate per axis.
-    pub lower_nm: [f64; 3],
-    /// Highest centre coordinate per axis.
-    pub upper_nm: [f64; 3],
-}
-
-impl Boundary for BoxFaces {
+/// The box alone ([`Bounds`]): periodic axes wrap, walled axes reflect the
+/// centre into [`lower_nm`, `upper_nm`].
+impl Boundary for Bounds {
     type Events = NoEvents;
 
     #[inline(always)]

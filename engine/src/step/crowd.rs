@@ -23,14 +23,14 @@
 //! result does not depend on the number of threads.
 
 use crate::base::error::{EngineError, Result};
-use crate::base::rng::{standard_normal, ParticleRng};
+use crate::base::rng::ParticleRng;
 use crate::scenario::config::{Scenario, LATTICE_START_FRACTION};
 use crate::scenario::media::Sweep;
-use crate::space::collisions::{Bounds, ContactRule, EventStep};
+use crate::space::collisions::{ContactRule, EventStep};
 use crate::space::neighbors::{CellList, DynamicGrid, MinImage, ObstacleGrid, VerletList};
 use crate::space::shape::Shape;
 use crate::space::sim_box::SimBox;
-use crate::step::boundary::{Boundary, BoxFaces};
+use crate::step::boundary::Boundary;
 use crate::step::displacement::{Displacement, Isotropic};
 use crate::step::state::{Kinetics, State};
 use rayon::prelude::*;
@@ -162,16 +162,6 @@ impl Slots {
     }
 }
 
-/// The box as the centres of one species see it, for the event-driven step.
-fn bounds(kin: &Kinetics, sim_box: &SimBox) -> Bounds {
-    Bounds {
-        periodic: sim_box.periodic,
-        edges_nm: sim_box.edges_nm,
-        lower_nm: kin.lower_nm,
-        upper_nm: kin.upper_nm,
-    }
-}
-
 /// One Gaussian proposal from `g`: the same displacement and box faces as
 /// every particle that steps alone (`pipeline`).
 #[inline(always)]
@@ -186,13 +176,9 @@ fn propose(
         sigma_nm: kin.sigma_nm,
     }
     .draw(p, g);
-    let faces = BoxFaces {
-        periodic: sim_box.periodic,
-        edges_nm: sim_box.edges_nm,
-        lower_nm: kin.lower_nm,
-        upper_nm: kin.upper_nm,
-    };
-    let moved = faces.fold(p, im, [p[0] + d[0], p[1] + d[1], p[2] + d[2]], g, true);
+    let moved = kin
+        .bounds(sim_box)
+        .fold(p, im, [p[0] + d[0], p[1] + d[1], p[2] + d[2]], g, true);
     (moved.at, moved.image)
 }
 
@@ -662,7 +648,10 @@ impl Crowd {
                 let kin = &kinetics[slots.species[s] as usize];
                 let g = &mut slots.rng[s];
                 let p = slots.pos[s];
-                let d = [0, 1, 2].map(|_| kin.sigma_nm * standard_normal(g));
+                let d = Isotropic {
+                    sigma_nm: kin.sigma_nm,
+                }
+                .draw(&p, g);
                 slots.y[s] = [p[0] + d[0], p[1] + d[1], p[2] + d[2]];
                 slots.blocked[s] = false;
                 // Collisions can lengthen a path: checked after the step.
@@ -678,7 +667,7 @@ impl Crowd {
             .iter()
             .map(|k| 0.5 * k.sigma_nm * k.sigma_nm)
             .collect();
-        let bounds: Vec<_> = kinetics.iter().map(|k| bounds(k, sim_box)).collect();
+        let bounds: Vec<_> = kinetics.iter().map(|k| k.bounds(sim_box)).collect();
         let mut end = vec![[0.0; 3]; n];
         let mut path = vec![0.0; n];
         loop {

@@ -22,7 +22,7 @@ use crate::space::pore_hydro::{CylinderMobility, PoreModel};
 use crate::space::shape::Shape;
 use crate::space::SimBox;
 use crate::step::boundary::{
-    Baths, Boundary, BoxFaces, Counts, Events, Pore, Slab, Walls, PLACEMENT_ATTEMPTS,
+    Baths, Boundary, Counts, Events, Pore, Slab, Walls, PLACEMENT_ATTEMPTS,
 };
 use crate::step::contact::{Contact, NoContact, Reflect, Reject};
 use crate::step::crowd::{place_crowd, Crowd};
@@ -151,16 +151,6 @@ pub fn advance_species<D: Displacement, B: Boundary, C: Contact>(
         .counts()
 }
 
-/// The box faces of one species.
-fn box_faces(kin: &Kinetics, sim_box: &SimBox) -> BoxFaces {
-    BoxFaces {
-        periodic: sim_box.periodic,
-        edges_nm: sim_box.edges_nm,
-        lower_nm: kin.lower_nm,
-        upper_nm: kin.upper_nm,
-    }
-}
-
 /// Advances free (non-interacting) particles by `steps` steps: the box's
 /// faces and nothing else.
 pub fn advance_free(state: &mut State, kinetics: &[Kinetics], sim_box: &SimBox, steps: u64) {
@@ -168,7 +158,7 @@ pub fn advance_free(state: &mut State, kinetics: &[Kinetics], sim_box: &SimBox, 
         let d = Isotropic {
             sigma_nm: kin.sigma_nm,
         };
-        let b = box_faces(kin, sim_box);
+        let b = kin.bounds(sim_box);
         advance_species(
             (&d, &b, &NoContact),
             state,
@@ -193,7 +183,7 @@ pub fn advance_obstructed<B: Blocker>(
         let d = Isotropic {
             sigma_nm: kin.sigma_nm,
         };
-        let b = box_faces(kin, sim_box);
+        let b = kin.bounds(sim_box);
         let c = Reject { blocker };
         advance_species(
             (&d, &b, &c),
@@ -218,7 +208,7 @@ enum Move {
 /// What folds one species' moves.
 #[derive(Debug, Clone)]
 enum Fold {
-    Box(BoxFaces),
+    Box(Bounds),
     Slab(Slab),
     Pore(Pore),
     Baths(Baths),
@@ -228,7 +218,6 @@ enum Fold {
 #[derive(Debug, Clone)]
 struct Pipeline {
     kinetics: Kinetics,
-    radius_nm: f64,
     displacement: Move,
     boundary: Fold,
 }
@@ -286,9 +275,8 @@ impl Stepper {
                 let Some(geometry) = &geometry else {
                     return Pipeline {
                         kinetics: kin.clone(),
-                        radius_nm: a,
                         displacement: Move::Free(free),
-                        boundary: Fold::Box(box_faces(kin, &scenario.sim_box)),
+                        boundary: Fold::Box(kin.bounds(&scenario.sim_box)),
                     };
                 };
                 let table = wall_table
@@ -343,7 +331,6 @@ impl Stepper {
                 };
                 Pipeline {
                     kinetics: kin.clone(),
-                    radius_nm: a,
                     displacement,
                     boundary,
                 }
@@ -576,13 +563,7 @@ impl Stepper {
                 advance_species((d, b, &NoContact), state, range, steps, chunk)
             }
             Some(grid) if self.contact == ContactRule::Reflect && !walled => {
-                let kin = &self.pipelines[s].kinetics;
-                let bounds = Bounds {
-                    periodic: self.sim_box.periodic,
-                    edges_nm: self.sim_box.edges_nm,
-                    lower_nm: kin.lower_nm,
-                    upper_nm: kin.upper_nm,
-                };
+                let bounds = self.pipelines[s].kinetics.bounds(&self.sim_box);
                 let c = Reflect { grid, bounds };
                 advance_species((d, b, &c), state, range, steps, OBSTRUCTED_CHUNK)
             }
@@ -633,11 +614,6 @@ impl Stepper {
                 })
                 .collect(),
         )
-    }
-
-    /// Radius of species `s`, nm.
-    pub fn radius_nm(&self, s: usize) -> f64 {
-        self.pipelines[s].radius_nm
     }
 }
 

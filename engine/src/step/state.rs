@@ -2,6 +2,7 @@
 
 use crate::base::rng::ParticleRng;
 use crate::scenario::Scenario;
+use crate::space::collisions::Bounds;
 use crate::space::SimBox;
 use rayon::prelude::*;
 use std::ops::Range;
@@ -30,6 +31,18 @@ pub struct Kinetics {
     pub lower_nm: [f64; 3],
     /// Highest allowed centre coordinate per axis.
     pub upper_nm: [f64; 3],
+}
+
+impl Kinetics {
+    /// The box as this species' centres see it.
+    pub fn bounds(&self, sim_box: &SimBox) -> Bounds {
+        Bounds {
+            periodic: sim_box.periodic,
+            edges_nm: sim_box.edges_nm,
+            lower_nm: self.lower_nm,
+            upper_nm: self.upper_nm,
+        }
+    }
 }
 
 /// Per-species kinetics for a scenario.
