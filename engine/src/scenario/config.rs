@@ -10,6 +10,10 @@
 use crate::base::error::{EngineError, Result};
 use crate::base::medium;
 pub use crate::scenario::csv::{read_numeric_csv, CsvRow};
+use crate::scenario::drive::{
+    species_force_pn, thermal_energy_pn_nm, validate_flow, validate_forces, FlowSpec, RawFlow,
+    RawForces, SpeciesDriveKeys,
+};
 use crate::scenario::geometry::Geometry;
 use crate::scenario::geometry::RawGeometry;
 use crate::scenario::media::Sweep;
@@ -88,6 +92,12 @@ pub struct RawScenario {
     /// Stepper: walls, slit, cylindrical pore or membrane (see `geometry`).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub geometry: Option<RawGeometry>,
+    /// A flow carrying the particles (see `drive`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub flow: Option<RawFlow>,
+    /// Fields acting on every species: gravity, an electric field.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub forces: Option<RawForces>,
 }
 
 /// `[obstacles]`: fixed spheres.
@@ -164,6 +174,9 @@ pub struct RawMedium {
         skip_serializing_if = "Option::is_none"
     )]
     pub viscosity_pa_s: Option<f64>,
+    /// Density, kg/m³ (needed for buoyancy under `forces.gravity_m_per_s2`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub density_kg_per_m3: Option<f64>,
 }
 
 /// `[box]`.
@@ -198,6 +211,15 @@ pub struct RawSpecies {
     /// contacts with every particle).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub role: Option<String>,
+    /// A constant external force [x, y, z] in pN.
+    #[serde(rename = "force_pN", default, skip_serializing_if = "Option::is_none")]
+    pub force_pn: Option<Vec<f64>>,
+    /// Particle density, kg/m³ (buoyant weight under `forces.gravity_m_per_s2`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub density_kg_per_m3: Option<f64>,
+    /// Charge in elementary charges (force under `forces.electric_field_V_per_m`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub charge_e: Option<f64>,
 }
 
 /// `[integrator]`.
@@ -293,6 +315,8 @@ pub struct Scenario {
     pub contact: ContactRule,
     /// Confining geometry, if any.
     pub geometry: Option<Geometry>,
+    /// The flow carrying the particles, if any.
+    pub flow: Option<FlowSpec>,
     /// The resolved scenario (defaults filled in) as TOML text.
     pub resolved_toml: String,
 }
@@ -320,6 +344,23 @@ impl Scenario {
             || self.obstacles.is_some()
             || self.fibres.is_some()
             || self.has_crowders()
+    }
+
+    /// k_B T, pN·nm.
+    pub fn thermal_energy_pn_nm(&self) -> f64 {
+        thermal_energy_pn_nm(self.temperature_k)
+    }
+
+    /// The drift per step D0 Δt F/k_BT, nm, that species `s`'s constant
+    /// force gives it in free solution (Einstein's mobility D0/k_BT).
+    pub fn force_drift_nm(&self, s: &Species) -> [f64; 3] {
+        let scale = s.d0_nm2_per_s() * self.dt_s / self.thermal_energy_pn_nm();
+        s.force_pn.map(|f| f * scale)
+    }
+
+    /// True when some species feels a force or a flow carries particles.
+    pub fn is_driven(&self) -> bool {
+        self.flow.is_some() || self.species.iter().any(|s| s.force_pn != [0.0; 3])
     }
 
     /// True when some species has hard contacts with other particles.
@@ -834,6 +875,7 @@ impl RawScenario {
                 d0_m2_per_s,
                 d0_explicit,
                 crowder,
+                force_pn: [0.0; 3],
             });
         }
 
@@ -911,6 +953,14 @@ impl RawScenario {
             None => None,
             Some(f) => Some(validate_fibres(f, file, &crowd_box, max_species_radius)?),
         };
+        let flow = self.validate_drive(
+            file,
+            &mut species,
+            geometry.as_ref(),
+            viscosity_pa_s,
+            obstacles.is_some() || fibres.is_some(),
+            &periodic,
+        )?;
         if species.iter().any(|s| s.crowder) {
             let min_edge = edges_nm.iter().cloned().fold(f64::INFINITY, f64::min);
             if min_edge <= 4.0 * max_species_radius {
@@ -1079,9 +1129,96 @@ impl RawScenario {
             sweep,
             contact,
             geometry,
+            flow,
             resolved_toml,
         };
         Ok(scenario)
+    }
+}
+
+impl RawScenario {
+    /// Validates `[flow]`, `[forces]` and each species' force keys, storing
+    /// each species' total force; returns the flow.
+    fn validate_drive(
+        &self,
+        file: &Path,
+        species: &mut [Species],
+        geometry: Option<&Geometry>,
+        viscosity_pa_s: f64,
+        has_obstacles: bool,
+        periodic: &[bool; 3],
+    ) -> Result<Option<FlowSpec>> {
+        if let Some(f) = &self.forces {
+            validate_forces(file, f)?;
+        }
+        let medium_density = match self.medium.density_kg_per_m3 {
+            None => None,
+            Some(d) => Some(positive(file, "medium.density_kg_per_m3", d)?),
+        };
+        let has_crowders = species.iter().any(|s| s.crowder);
+        for (i, (s, raw)) in species.iter_mut().zip(&self.species).enumerate() {
+            let force_pn = match &raw.force_pn {
+                None => None,
+                Some(v) if v.len() == 3 => Some([v[0], v[1], v[2]]),
+                Some(v) => {
+                    return Err(invalid(
+                        file,
+                        format!("species[{i}].force_pN"),
+                        format!("{v:?}"),
+                        "it must list three components [x, y, z] in pN",
+                    ))
+                }
+            };
+            if let Some(d) = raw.density_kg_per_m3 {
+                positive(file, &format!("species[{i}].density_kg_per_m3"), d)?;
+            }
+            let keys = SpeciesDriveKeys {
+                force_pn,
+                density_kg_per_m3: raw.density_kg_per_m3,
+                charge_e: raw.charge_e,
+            };
+            s.force_pn = species_force_pn(file, i, s, &keys, self.forces.as_ref(), medium_density)?;
+            if s.force_pn != [0.0; 3] {
+                let refuse = if s.crowder || has_crowders {
+                    Some("forces are not available with crowders yet (the crowd's step has no drift)")
+                } else if matches!(
+                    geometry.map(|g| &g.shape),
+                    Some(crate::space::shape::Shape::Membrane(_))
+                ) {
+                    Some("forces are not available in a membrane yet (its baths assume free diffusion at their faces)")
+                } else {
+                    None
+                };
+                if let Some(reason) = refuse {
+                    return Err(invalid(
+                        file,
+                        format!("species[{i}] (force)"),
+                        format!("{:?} pN", s.force_pn),
+                        reason,
+                    ));
+                }
+            }
+        }
+        let Some(raw) = &self.flow else {
+            return Ok(None);
+        };
+        let flow = validate_flow(
+            file,
+            raw,
+            geometry,
+            viscosity_pa_s,
+            has_obstacles,
+            has_crowders,
+        )?;
+        if matches!(flow, FlowSpec::Shear { .. }) && !(periodic[0] && periodic[2]) {
+            return Err(invalid(
+                file,
+                "box.periodic",
+                format!("{periodic:?}"),
+                "uniform shear (u along x, varying along z) needs a box periodic in x and z",
+            ));
+        }
+        Ok(Some(flow))
     }
 }
 

@@ -20,6 +20,8 @@ pub struct Species {
     /// True for a crowder (hard contacts with every particle); tracers only
     /// touch crowders, obstacles and walls.
     pub crowder: bool,
+    /// Total constant external force [x, y, z], pN (zero without one).
+    pub force_pn: [f64; 3],
 }
 
 impl Species {

@@ -250,6 +250,13 @@ pub struct CylinderMobility {
     lag_shape: f64,
 }
 
+/// The lag U/u of a sphere carried by a shear flow at s sphere radii from
+/// its centre to one plane wall (far field, Goldman, Cox & Brenner 1967,
+/// from memory); 11/16 at contact, as the far-field form is used there too.
+pub fn plane_shear_lag(s: f64) -> f64 {
+    shear_lag(s).0
+}
+
 /// Shear lag near one plane wall and its derivative in s.
 fn shear_lag(s: f64) -> (f64, f64) {
     let inv = 1.0 / s;

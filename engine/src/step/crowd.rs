@@ -175,7 +175,7 @@ fn propose(
     let d = Isotropic {
         sigma_nm: kin.sigma_nm,
     }
-    .draw(p, g);
+    .draw(p, im, g);
     let moved = kin
         .bounds(sim_box)
         .fold(p, im, [p[0] + d[0], p[1] + d[1], p[2] + d[2]], g, true);
@@ -651,7 +651,7 @@ impl Crowd {
                 let d = Isotropic {
                     sigma_nm: kin.sigma_nm,
                 }
-                .draw(&p, g);
+                .draw(&p, &[0; 3], g);
                 slots.y[s] = [p[0] + d[0], p[1] + d[1], p[2] + d[2]];
                 slots.blocked[s] = false;
                 // Collisions can lengthen a path: checked after the step.

@@ -31,15 +31,17 @@ pub const TABLE_INTERVALS: usize = 4096;
 
 /// What a particle at `x` proposes to move by in one step.
 pub trait Displacement: Sync {
-    /// True when the proposal is a symmetric Gaussian of fixed width, so a
-    /// fold at a curved wall can be corrected by its Metropolis ratio.
-    const SYMMETRIC: bool;
+    /// True when the proposal is a symmetric Gaussian of fixed width across
+    /// the walls (a drift along a pore's axis leaves it so), so a fold at a
+    /// curved wall can be corrected by its Metropolis ratio.
+    fn symmetric(&self) -> bool;
     /// True when each step waits on the previous position (tables, square
     /// roots), so that interleaving several particles pays.
     const INTERLEAVE: bool;
 
-    /// Draws the displacement, nm, from the particle's own stream.
-    fn draw(&self, x: &[f64; 3], g: &mut ParticleRng) -> [f64; 3];
+    /// Draws the displacement, nm, of the particle at `x` (periodic images
+    /// `n`) from its own stream.
+    fn draw(&self, x: &[f64; 3], n: &[i32; 3], g: &mut ParticleRng) -> [f64; 3];
 }
 
 /// Free diffusion: √(2 D0 Δt)·ξ on every axis.
@@ -50,11 +52,15 @@ pub struct Isotropic {
 }
 
 impl Displacement for Isotropic {
-    const SYMMETRIC: bool = true;
     const INTERLEAVE: bool = false;
 
     #[inline(always)]
-    fn draw(&self, _x: &[f64; 3], g: &mut ParticleRng) -> [f64; 3] {
+    fn symmetric(&self) -> bool {
+        true
+    }
+
+    #[inline(always)]
+    fn draw(&self, _x: &[f64; 3], _n: &[i32; 3], g: &mut ParticleRng) -> [f64; 3] {
         // x, y, z in order: every kernel draws the same numbers for the same particle.
         [
             self.sigma_nm * standard_normal(g),
@@ -65,20 +71,21 @@ impl Displacement for Isotropic {
 }
 
 /// Mobility of one species against the wall gap h = d − a, tabulated on a
-/// grid uniform in u = √(h/a). Each node holds
-/// [σ∥, σ⊥, (D⊥ − D∥) Δt, (dD⊥/dd) Δt] in nm, nm, nm², nm.
+/// grid uniform in u = √(h/a). Each node holds `N` values; the wall tables
+/// hold [σ∥, σ⊥, (D⊥ − D∥) Δt, (dD⊥/dd) Δt, flow Δt] in nm, nm, nm², nm, nm
+/// (the last the particle's displacement per step by the flow, lag included).
 #[derive(Debug, Clone)]
-pub struct MobilityTable {
+pub struct MobilityTable<const N: usize = 5> {
     inverse_radius: f64,
     inverse_du: f64,
     /// Single precision (6e-8 relative, far below the interpolation error):
     /// half the cache footprint for the hot loop.
-    nodes: Vec<[f32; 4]>,
+    nodes: Vec<[f32; N]>,
 }
 
-impl MobilityTable {
+impl<const N: usize> MobilityTable<N> {
     /// Tabulates `f(h)` for h in [0, h_max].
-    pub fn build(radius_nm: f64, h_max_nm: f64, f: impl Fn(f64) -> [f64; 4]) -> Self {
+    pub fn build(radius_nm: f64, h_max_nm: f64, f: impl Fn(f64) -> [f64; N]) -> Self {
         let u_max = (h_max_nm.max(1e-9 * radius_nm) / radius_nm).sqrt();
         let du = u_max / TABLE_INTERVALS as f64;
         let nodes = (0..=TABLE_INTERVALS + 1)
@@ -96,20 +103,140 @@ impl MobilityTable {
 
     /// Interpolated node values at gap `h_nm` (clamped to the table).
     #[inline(always)]
-    pub fn eval(&self, h_nm: f64) -> [f64; 4] {
+    pub fn eval(&self, h_nm: f64) -> [f64; N] {
         let u = (h_nm.max(0.0) * self.inverse_radius).sqrt();
         let t = (u * self.inverse_du).min(TABLE_INTERVALS as f64);
         let i = t as usize;
         let f = t - i as f64;
-        let (a, b) = (
-            self.nodes[i].map(f64::from),
-            self.nodes[i + 1].map(f64::from),
-        );
+        let (a, b) = (&self.nodes[i], &self.nodes[i + 1]);
+        std::array::from_fn(|k| {
+            let (a, b) = (f64::from(a[k]), f64::from(b[k]));
+            a + f * (b - a)
+        })
+    }
+}
+
+/// The deterministic part of a step besides the Itô drift: the species'
+/// constant external force and the flow that carries it.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Drive {
+    /// D0 Δt F/k_BT, nm: the drift per step a free particle gets from its
+    /// constant force (Einstein: mobility D0/k_BT). Near walls each
+    /// component is scaled by the local mobility D_k/D0.
+    pub force_nm: [f64; 3],
+    /// The flow, evaluated at the centre (without wall hydrodynamics the
+    /// particle moves with the fluid there; with them the wall tables hold
+    /// the lagging velocity instead).
+    pub flow: Flow,
+}
+
+/// A steady flow, as the displacement per step it gives a particle.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub enum Flow {
+    /// No flow.
+    #[default]
+    Still,
+    /// Uniform shear u_x = γ̇ (z − z_mid), z unwrapped (an unbounded linear
+    /// shear flow, exact for particles that do not interact).
+    Shear {
+        /// γ̇ Δt.
+        rate_dt: f64,
+        /// z of the plane at rest, nm.
+        z_mid_nm: f64,
+        /// Box edge along z, nm (to unwrap z).
+        lz_nm: f64,
+    },
+    /// Poiseuille flow along a cylinder's axis (z): u = 2V (1 − ρ²/R²).
+    Tube {
+        /// Axis (x, y), nm.
+        axis_nm: [f64; 2],
+        /// 2 V Δt, nm: the displacement per step on the axis.
+        peak_nm: f64,
+        /// 1/R², 1/nm².
+        inv_r2: f64,
+    },
+    /// Plane Poiseuille flow along x between walls at z = 0 and w:
+    /// u = 6V (z/w)(1 − z/w).
+    Channel {
+        /// 6 V Δt, nm.
+        scale_nm: f64,
+        /// 1/w, 1/nm.
+        inv_w: f64,
+    },
+}
+
+impl Flow {
+    /// The fluid's displacement per step at `x` (images `n`), nm.
+    #[inline(always)]
+    pub fn step_at(&self, x: &[f64; 3], n: &[i32; 3]) -> [f64; 3] {
+        match *self {
+            Flow::Still => [0.0; 3],
+            Flow::Shear {
+                rate_dt,
+                z_mid_nm,
+                lz_nm,
+            } => [
+                rate_dt * (x[2] + f64::from(n[2]) * lz_nm - z_mid_nm),
+                0.0,
+                0.0,
+            ],
+            Flow::Tube {
+                axis_nm,
+                peak_nm,
+                inv_r2,
+            } => {
+                let (dx, dy) = (x[0] - axis_nm[0], x[1] - axis_nm[1]);
+                [0.0, 0.0, peak_nm * (1.0 - (dx * dx + dy * dy) * inv_r2)]
+            }
+            Flow::Channel { scale_nm, inv_w } => {
+                let s = x[2] * inv_w;
+                [scale_nm * s * (1.0 - s), 0.0, 0.0]
+            }
+        }
+    }
+
+    /// True for a flow that moves nothing.
+    pub fn is_still(&self) -> bool {
+        matches!(self, Flow::Still)
+    }
+}
+
+impl Drive {
+    /// True when neither a force nor a flow acts.
+    pub fn is_idle(&self) -> bool {
+        self.force_nm == [0.0; 3] && self.flow.is_still()
+    }
+}
+
+/// Free diffusion carried by a drive: √(2 D0 Δt)·ξ plus the force's drift
+/// and the fluid's displacement at the centre.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Driven {
+    /// √(2 D0 Δt), nm.
+    pub sigma_nm: f64,
+    /// Force and flow.
+    pub drive: Drive,
+}
+
+impl Displacement for Driven {
+    const INTERLEAVE: bool = false;
+
+    #[inline(always)]
+    fn symmetric(&self) -> bool {
+        // Drifts along z (a pore's axis) leave the move across the wall symmetric.
+        self.drive.force_nm[0] == 0.0
+            && self.drive.force_nm[1] == 0.0
+            && matches!(self.drive.flow, Flow::Still | Flow::Tube { .. })
+    }
+
+    #[inline(always)]
+    fn draw(&self, x: &[f64; 3], n: &[i32; 3], g: &mut ParticleRng) -> [f64; 3] {
+        let u = self.drive.flow.step_at(x, n);
+        let f = &self.drive.force_nm;
         [
-            a[0] + f * (b[0] - a[0]),
-            a[1] + f * (b[1] - a[1]),
-            a[2] + f * (b[2] - a[2]),
-            a[3] + f * (b[3] - a[3]),
+            self.sigma_nm * standard_normal(g) + f[0] + u[0],
+            self.sigma_nm * standard_normal(g) + f[1] + u[1],
+            self.sigma_nm * standard_normal(g) + f[2] + u[2],
         ]
     }
 }
@@ -128,14 +255,24 @@ pub struct PlanarWalls {
     pub two_walls: bool,
     /// Whether the Itô drift is applied (off only to show what it prevents).
     pub ito_drift: bool,
+    /// The species' force drift D0 Δt F/k_BT, nm, scaled here by D∥/D0 and D⊥/D0.
+    pub force_nm: [f64; 3],
+    /// 1/σ0² = 1/(2 D0 Δt), 1/nm²: turns σ_k² into D_k/D0.
+    pub inverse_variance: f64,
+    /// Whether the table's flow column (along x) is applied.
+    pub flowing: bool,
 }
 
 impl Displacement for PlanarWalls {
-    const SYMMETRIC: bool = false;
     const INTERLEAVE: bool = true;
 
     #[inline(always)]
-    fn draw(&self, x: &[f64; 3], g: &mut ParticleRng) -> [f64; 3] {
+    fn symmetric(&self) -> bool {
+        false
+    }
+
+    #[inline(always)]
+    fn draw(&self, x: &[f64; 3], _n: &[i32; 3], g: &mut ParticleRng) -> [f64; 3] {
         // Gap to the nearer wall, and the direction away from it, without a branch
         // (which side a particle is on is unpredictable across interleaved particles).
         let below = x[2] - self.lower_nm;
@@ -148,11 +285,24 @@ impl Displacement for PlanarWalls {
         let away = if below <= above { 1.0 } else { -1.0 };
         let v = self.table.eval(h);
         let drift = if self.ito_drift { away * v[3] } else { 0.0 };
-        [
+        let mut d = [
             v[0] * standard_normal(g),
             v[0] * standard_normal(g),
             drift + v[1] * standard_normal(g),
-        ]
+        ];
+        if self.flowing {
+            d[0] += v[4];
+        }
+        if self.force_nm != [0.0; 3] {
+            let (par, perp) = (
+                v[0] * v[0] * self.inverse_variance,
+                v[1] * v[1] * self.inverse_variance,
+            );
+            d[0] += par * self.force_nm[0];
+            d[1] += par * self.force_nm[1];
+            d[2] += perp * self.force_nm[2];
+        }
+        d
     }
 }
 
@@ -170,14 +320,23 @@ pub struct NearestWall {
     pub divergence_cap_per_nm: f64,
     /// Whether the Itô drift is applied.
     pub ito_drift: bool,
+    /// The species' force drift D0 Δt F/k_BT, nm, scaled by D∥/D0 along
+    /// the wall and D⊥/D0 across it.
+    pub force_nm: [f64; 3],
+    /// 1/σ0², 1/nm².
+    pub inverse_variance: f64,
 }
 
 impl Displacement for NearestWall {
-    const SYMMETRIC: bool = false;
     const INTERLEAVE: bool = true;
 
     #[inline(always)]
-    fn draw(&self, x: &[f64; 3], g: &mut ParticleRng) -> [f64; 3] {
+    fn symmetric(&self) -> bool {
+        false
+    }
+
+    #[inline(always)]
+    fn draw(&self, x: &[f64; 3], _n: &[i32; 3], g: &mut ParticleRng) -> [f64; 3] {
         let xi = [standard_normal(g), standard_normal(g), standard_normal(g)];
         let w = self.shape.nearest_wall(x);
         let v = self.table.eval(w.distance_nm - self.radius_nm);
@@ -193,11 +352,24 @@ impl Displacement for NearestWall {
         };
         // D^½ ξ = σ∥ ξ + (σ⊥ − σ∥)(ξ·n) n, then the drift along n.
         let normal_part = (v[1] - v[0]) * along_normal + drift;
-        [
+        let mut d = [
             v[0] * xi[0] + normal_part * n[0],
             v[0] * xi[1] + normal_part * n[1],
             v[0] * xi[2] + normal_part * n[2],
-        ]
+        ];
+        let f = &self.force_nm;
+        if *f != [0.0; 3] {
+            // (D∥ (I − n n) + D⊥ n n) F / D0.
+            let (par, perp) = (
+                v[0] * v[0] * self.inverse_variance,
+                v[1] * v[1] * self.inverse_variance,
+            );
+            let f_n = f[0] * n[0] + f[1] * n[1] + f[2] * n[2];
+            for k in 0..3 {
+                d[k] += par * f[k] + (perp - par) * f_n * n[k];
+            }
+        }
+        d
     }
 }
 
@@ -206,7 +378,8 @@ impl Displacement for NearestWall {
 /// + f_θ e_θ e_θ + f_z e_z e_z), with the Itô drift (∇·D)_r along e_r.
 #[derive(Debug, Clone)]
 pub struct PoreTensor {
-    /// Nodes [σ_z, σ_r, σ_θ, (∇·D)_r Δt] against the gap h = (R − a) − r.
+    /// Nodes [σ_z, σ_r, σ_θ, (∇·D)_r Δt, U Δt] against the gap
+    /// h = (R − a) − r, U the particle's axial velocity in the flow.
     pub table: MobilityTable,
     /// Axis position (x, y), nm.
     pub axis_nm: [f64; 2],
@@ -214,14 +387,24 @@ pub struct PoreTensor {
     pub open_nm: f64,
     /// Whether the Itô drift is applied.
     pub ito_drift: bool,
+    /// The species' force drift D0 Δt F/k_BT, nm, scaled by f_r, f_θ, f_z.
+    pub force_nm: [f64; 3],
+    /// 1/σ0², 1/nm².
+    pub inverse_variance: f64,
+    /// Whether the table's flow column is applied.
+    pub flowing: bool,
 }
 
 impl Displacement for PoreTensor {
-    const SYMMETRIC: bool = false;
     const INTERLEAVE: bool = true;
 
     #[inline(always)]
-    fn draw(&self, x: &[f64; 3], g: &mut ParticleRng) -> [f64; 3] {
+    fn symmetric(&self) -> bool {
+        false
+    }
+
+    #[inline(always)]
+    fn draw(&self, x: &[f64; 3], _n: &[i32; 3], g: &mut ParticleRng) -> [f64; 3] {
         let xi = [standard_normal(g), standard_normal(g), standard_normal(g)];
         let (dx, dy) = (x[0] - self.axis_nm[0], x[1] - self.axis_nm[1]);
         let rho = (dx * dx + dy * dy).sqrt();
@@ -233,12 +416,19 @@ impl Displacement for PoreTensor {
             (1.0, 0.0)
         };
         let drift = if self.ito_drift { v[3] } else { 0.0 };
-        let radial = drift + v[1] * xi[0];
-        let around = v[2] * xi[1];
-        [
-            radial * c - around * s,
-            radial * s + around * c,
-            v[0] * xi[2],
-        ]
+        let mut radial = drift + v[1] * xi[0];
+        let mut around = v[2] * xi[1];
+        let mut axial = v[0] * xi[2];
+        if self.flowing {
+            axial += v[4];
+        }
+        let f = &self.force_nm;
+        if *f != [0.0; 3] {
+            let w = self.inverse_variance;
+            radial += v[1] * v[1] * w * (f[0] * c + f[1] * s);
+            around += v[2] * v[2] * w * (f[1] * c - f[0] * s);
+            axial += v[0] * v[0] * w * f[2];
+        }
+        [radial * c - around * s, radial * s + around * c, axial]
     }
 }

@@ -11,6 +11,7 @@
 use crate::base::error::{EngineError, Result};
 use crate::base::rng::ParticleRng;
 use crate::obstacles::FixedObstacles;
+use crate::scenario::drive::FlowSpec;
 use crate::scenario::geometry::Geometry;
 use crate::scenario::Scenario;
 use crate::space::collisions::{Bounds, ContactRule};
@@ -18,6 +19,7 @@ use crate::space::mobility::{
     superpose_two_walls, superpose_two_walls_with_gradient, PerpendicularModel, WallMobilityTable,
 };
 use crate::space::neighbors::{Blocker, ObstacleGrid};
+use crate::space::pore_hydro::plane_shear_lag;
 use crate::space::pore_hydro::{CylinderMobility, PoreModel};
 use crate::space::shape::Shape;
 use crate::space::SimBox;
@@ -27,7 +29,8 @@ use crate::step::boundary::{
 use crate::step::contact::{Contact, NoContact, Reflect, Reject};
 use crate::step::crowd::{place_crowd, Crowd};
 use crate::step::displacement::{
-    Displacement, Isotropic, MobilityTable, NearestWall, PlanarWalls, PoreTensor,
+    Displacement, Drive, Driven, Flow, Isotropic, MobilityTable, NearestWall, PlanarWalls,
+    PoreTensor,
 };
 use crate::step::state::{draw_starts, kinetics, Kinetics, State};
 use rayon::prelude::*;
@@ -59,8 +62,8 @@ fn one_step<D: Displacement, B: Boundary, C: Contact>(
     memo: &mut C::Memo,
     events: &mut B::Events,
 ) {
-    let dx = d.draw(x, g);
-    if let Some(moved) = c.settle(b, x, n, &dx, g, D::SYMMETRIC, memo) {
+    let dx = d.draw(x, n, g);
+    if let Some(moved) = c.settle(b, x, n, &dx, g, d.symmetric(), memo) {
         *x = moved.at;
         *n = moved.image;
         *events += moved.events;
@@ -200,6 +203,7 @@ pub fn advance_obstructed<B: Blocker>(
 #[derive(Debug, Clone)]
 enum Move {
     Free(Isotropic),
+    Driven(Driven),
     Planar(PlanarWalls),
     Nearest(NearestWall),
     Pore(PoreTensor),
@@ -271,20 +275,44 @@ impl Stepper {
             .map(|(s, kin)| {
                 let a = s.radius_nm;
                 let sigma = kin.sigma_nm;
-                let free = Isotropic { sigma_nm: sigma };
+                let drive = Drive {
+                    force_nm: scenario.force_drift_nm(s),
+                    flow: flow_field(scenario, geometry.as_ref()),
+                };
+                let free = if drive.is_idle() {
+                    Move::Free(Isotropic { sigma_nm: sigma })
+                } else {
+                    Move::Driven(Driven {
+                        sigma_nm: sigma,
+                        drive,
+                    })
+                };
                 let Some(geometry) = &geometry else {
                     return Pipeline {
                         kinetics: kin.clone(),
-                        displacement: Move::Free(free),
+                        displacement: free,
                         boundary: Fold::Box(kin.bounds(&scenario.sim_box)),
                     };
                 };
-                let table = wall_table
-                    .as_ref()
-                    .map(|wt| mobility_table(wt, &geometry.shape, a, s.drag_radius_nm, sigma));
+                let mean_velocity_dt = match scenario.flow {
+                    Some(FlowSpec::Poiseuille {
+                        mean_velocity_nm_per_s,
+                    }) => Some(mean_velocity_nm_per_s * scenario.dt_s),
+                    _ => None,
+                };
+                let table = wall_table.as_ref().map(|wt| {
+                    mobility_table(
+                        wt,
+                        &geometry.shape,
+                        (a, s.drag_radius_nm),
+                        sigma,
+                        mean_velocity_dt,
+                    )
+                });
                 let edges = scenario.sim_box.edges_nm;
+                let inverse_variance = 1.0 / (sigma * sigma);
                 let displacement = match (&table, &geometry.shape) {
-                    (None, _) => Move::Free(free),
+                    (None, _) => free,
                     (Some(t), Shape::PlaneWall { .. } | Shape::Slit { .. }) => {
                         Move::Planar(PlanarWalls {
                             table: t.clone(),
@@ -292,12 +320,18 @@ impl Stepper {
                             upper_nm: edges[2] - a,
                             two_walls: matches!(geometry.shape, Shape::Slit { .. }),
                             ito_drift: true,
+                            force_nm: drive.force_nm,
+                            inverse_variance,
+                            flowing: mean_velocity_dt.is_some(),
                         })
                     }
                     (Some(_), Shape::Cylinder { radius_nm, axis_nm })
                         if geometry.pore_model == PoreModel::Cylinder =>
                     {
-                        Move::Pore(pore_tensor(*radius_nm, *axis_nm, a, sigma, geometry))
+                        let mut p =
+                            pore_tensor(*radius_nm, *axis_nm, a, sigma, geometry, mean_velocity_dt);
+                        p.force_nm = drive.force_nm;
+                        Move::Pore(p)
                     }
                     (Some(t), shape) => Move::Nearest(NearestWall {
                         shape: shape.clone(),
@@ -305,6 +339,8 @@ impl Stepper {
                         radius_nm: a,
                         divergence_cap_per_nm: 1.0 / sigma,
                         ito_drift: true,
+                        force_nm: drive.force_nm,
+                        inverse_variance,
                     }),
                 };
                 let bath_sigma_nm = match (&geometry.shape, &table) {
@@ -370,7 +406,7 @@ impl Stepper {
     pub fn without_ito_drift(mut self) -> Self {
         for p in &mut self.pipelines {
             match &mut p.displacement {
-                Move::Free(_) => {}
+                Move::Free(_) | Move::Driven(_) => {}
                 Move::Planar(w) => w.ito_drift = false,
                 Move::Nearest(w) => w.ito_drift = false,
                 Move::Pore(w) => w.ito_drift = false,
@@ -522,6 +558,7 @@ impl Stepper {
                 let p = &self.pipelines[s];
                 match &p.displacement {
                     Move::Free(d) => self.with_boundary(s, d, state, steps),
+                    Move::Driven(d) => self.with_boundary(s, d, state, steps),
                     Move::Planar(d) => self.with_boundary(s, d, state, steps),
                     Move::Nearest(d) => self.with_boundary(s, d, state, steps),
                     Move::Pore(d) => self.with_boundary(s, d, state, steps),
@@ -618,7 +655,14 @@ impl Stepper {
 }
 
 /// The cylinder model of one species as a table over the gap to the wall.
-fn pore_tensor(r: f64, axis: [f64; 2], a: f64, sigma: f64, geometry: &Geometry) -> PoreTensor {
+fn pore_tensor(
+    r: f64,
+    axis: [f64; 2],
+    a: f64,
+    sigma: f64,
+    geometry: &Geometry,
+    mean_velocity_dt: Option<f64>,
+) -> PoreTensor {
     let model = geometry
         .hydrodynamics
         .unwrap_or(PerpendicularModel::Brenner);
@@ -635,6 +679,7 @@ fn pore_tensor(r: f64, axis: [f64; 2], a: f64, sigma: f64, geometry: &Geometry) 
             sigma * f.azimuthal.max(0.0).sqrt(),
             // radial_drift is in units of D0/R.
             f.radial_drift * d0_dt / r,
+            mean_velocity_dt.unwrap_or(0.0) * f.velocity_over_mean,
         ]
     });
     PoreTensor {
@@ -642,6 +687,9 @@ fn pore_tensor(r: f64, axis: [f64; 2], a: f64, sigma: f64, geometry: &Geometry) 
         axis_nm: axis,
         open_nm: open,
         ito_drift: true,
+        force_nm: [0.0; 3],
+        inverse_variance: 1.0 / (sigma * sigma),
+        flowing: mean_velocity_dt.is_some(),
     }
 }
 
@@ -669,23 +717,28 @@ pub fn mean_axial_mobility(
     }
 }
 
-/// The wall mobility of one species as a table over the gap to the
-/// nearest wall (both walls superposed in a slit).
+/// The wall mobility of one species (steric and drag radii `a`, `ah`) as a
+/// table over the gap to the nearest wall (both walls superposed in a
+/// slit); in a slit with Poiseuille flow of mean velocity V (`mean_velocity_dt`
+/// = VΔt) the last column is the particle's displacement per step along x,
+/// u(z) times the two walls' shear lags superposed, γ(s₁) + γ(s₂) − 1
+/// (far-field plane-wall lag, a model: no published average to check).
 fn mobility_table(
     wt: &WallMobilityTable,
     shape: &Shape,
-    a: f64,
-    ah: f64,
+    (a, ah): (f64, f64),
     sigma: f64,
+    mean_velocity_dt: Option<f64>,
 ) -> MobilityTable {
     let d0_dt = 0.5 * sigma * sigma;
     // Node values from D∥/D0, D⊥/D0 and dD⊥/dd (1/nm).
-    let node = |par: f64, perp: f64, dperp_dd: f64| {
+    let node = |par: f64, perp: f64, dperp_dd: f64, flow: f64| {
         [
             sigma * par.max(0.0).sqrt(),
             sigma * perp.max(0.0).sqrt(),
             (perp - par) * d0_dt,
             dperp_dd * d0_dt,
+            flow,
         ]
     };
     match shape {
@@ -698,13 +751,53 @@ fn mobility_table(
                 let (p2, q2, g2) = single_wall(wt, z2, ah);
                 // The far wall's distance shrinks as z grows: its gradient flips sign.
                 let (perp, grad) = superpose_two_walls_with_gradient(q1, g1, q2, -g2);
-                node(superpose_two_walls(p1, p2), perp, grad / ah)
+                let flow = mean_velocity_dt.map_or(0.0, |v| {
+                    let s = z1 / w;
+                    let lag = plane_shear_lag(z1 / ah) + plane_shear_lag(z2 / ah) - 1.0;
+                    6.0 * v * s * (1.0 - s) * lag
+                });
+                node(superpose_two_walls(p1, p2), perp, grad / ah, flow)
             })
         }
         shape => MobilityTable::build(a, (shape.max_wall_distance_nm() - a).max(a), |h| {
             let (par, perp, grad) = single_wall(wt, a + h, ah);
-            node(par, perp, grad / ah)
+            node(par, perp, grad / ah, 0.0)
         }),
+    }
+}
+
+/// The flow of a scenario as the step evaluates it (without wall
+/// hydrodynamics: the fluid's displacement at the centre).
+fn flow_field(scenario: &Scenario, geometry: Option<&Geometry>) -> Flow {
+    let dt = scenario.dt_s;
+    match (scenario.flow, geometry.map(|g| &g.shape)) {
+        (None, _) => Flow::Still,
+        (Some(FlowSpec::Shear { rate_per_s }), _) => Flow::Shear {
+            rate_dt: rate_per_s * dt,
+            z_mid_nm: 0.5 * scenario.sim_box.edges_nm[2],
+            lz_nm: scenario.sim_box.edges_nm[2],
+        },
+        (
+            Some(FlowSpec::Poiseuille {
+                mean_velocity_nm_per_s: v,
+            }),
+            Some(Shape::Cylinder { radius_nm, axis_nm }),
+        ) => Flow::Tube {
+            axis_nm: *axis_nm,
+            peak_nm: 2.0 * v * dt,
+            inv_r2: 1.0 / (radius_nm * radius_nm),
+        },
+        (
+            Some(FlowSpec::Poiseuille {
+                mean_velocity_nm_per_s: v,
+            }),
+            Some(Shape::Slit { width_nm }),
+        ) => Flow::Channel {
+            scale_nm: 6.0 * v * dt,
+            inv_w: 1.0 / width_nm,
+        },
+        // Validation admits Poiseuille flow only in cylinders and slits.
+        (Some(FlowSpec::Poiseuille { .. }), _) => Flow::Still,
     }
 }
 

@@ -1,0 +1,394 @@
+//! The validated `[flow]` and `[forces]` sections and the per-species force
+//! keys: what pushes or carries particles besides diffusion.
+//!
+//! A species' constant force is the sum of `force_pN`, its buoyant weight
+//! −(4/3)π a³ (ρ_p − ρ_medium) g ẑ under `forces.gravity_m_per_s2` (a the
+//! steric radius), and the bare Coulomb force q e E under
+//! `forces.electric_field_V_per_m` (no electrophoretic retardation, no
+//! electro-osmosis). It enters the step as the drift D·F/k_BT.
+//!
+//! A flow is Poiseuille flow along a cylinder's axis (z) or along x in a
+//! slit, set by its mean velocity or by a pressure gradient with the
+//! medium's viscosity (Hagen–Poiseuille: V = G R²/(8η) in a cylinder,
+//! G w²/(12η) in a slit of width w), or a uniform shear u_x = γ̇ (z − L_z/2)
+//! in a periodic box without obstacles.
+
+use crate::base::error::{EngineError, Result};
+use crate::base::medium::BOLTZMANN_J_PER_K;
+use crate::scenario::geometry::Geometry;
+use crate::scenario::species::Species;
+use crate::space::pore_hydro::PoreModel;
+use crate::space::shape::Shape;
+use serde::{Deserialize, Serialize};
+use std::path::Path;
+
+/// Elementary charge, C (exact, SI 2019).
+pub const ELEMENTARY_CHARGE_C: f64 = 1.602_176_634e-19;
+
+/// Forces and flow speeds accepted, in pN and m/s (far beyond any colloid).
+pub const FORCE_RANGE_PN: f64 = 1e6;
+/// Flow speeds accepted, m/s.
+pub const VELOCITY_RANGE_M_PER_S: f64 = 1e3;
+
+/// `[flow]` as written.
+#[derive(Debug, Clone, Default, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct RawFlow {
+    /// "poiseuille" (cylinder along z, slit along x) or "shear" (periodic box).
+    pub kind: String,
+    /// Poiseuille: mean velocity over the pore's or slit's cross-section, m/s.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub mean_velocity_m_per_s: Option<f64>,
+    /// Poiseuille: driving pressure gradient, Pa/m (instead of the mean velocity).
+    #[serde(
+        rename = "pressure_gradient_Pa_per_m",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub pressure_gradient_pa_per_m: Option<f64>,
+    /// Shear: rate γ̇, 1/s (u_x = γ̇ (z − L_z/2)).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub shear_rate_per_s: Option<f64>,
+}
+
+/// `[forces]` as written: fields acting on every species.
+#[derive(Debug, Clone, Default, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct RawForces {
+    /// Gravitational acceleration along −z, m/s² (needs `medium.density_kg_per_m3`
+    /// and each species' `density_kg_per_m3`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub gravity_m_per_s2: Option<f64>,
+    /// Uniform electric field [x, y, z], V/m (acts on `charge_e`).
+    #[serde(
+        rename = "electric_field_V_per_m",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub electric_field_v_per_m: Option<Vec<f64>>,
+}
+
+/// A validated flow.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum FlowSpec {
+    /// Poiseuille flow of this mean velocity over the section, nm/s.
+    Poiseuille {
+        /// Mean fluid velocity over the pore's (slit's) whole section, nm/s.
+        mean_velocity_nm_per_s: f64,
+    },
+    /// Uniform shear u_x = γ̇ (z − L_z/2).
+    Shear {
+        /// γ̇, 1/s.
+        rate_per_s: f64,
+    },
+}
+
+/// What the drive keys of one species say, as written.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct SpeciesDriveKeys {
+    /// `force_pN`.
+    pub force_pn: Option<[f64; 3]>,
+    /// `density_kg_per_m3`.
+    pub density_kg_per_m3: Option<f64>,
+    /// `charge_e`.
+    pub charge_e: Option<f64>,
+}
+
+/// Thermal energy k_B T in pN·nm.
+pub fn thermal_energy_pn_nm(temperature_k: f64) -> f64 {
+    BOLTZMANN_J_PER_K * temperature_k * 1e21
+}
+
+fn invalid(
+    file: &Path,
+    key: impl Into<String>,
+    value: impl ToString,
+    allowed: &str,
+) -> EngineError {
+    EngineError::InvalidValue {
+        file: file.to_path_buf(),
+        key: key.into(),
+        value: value.to_string(),
+        allowed: allowed.into(),
+    }
+}
+
+fn finite_within(file: &Path, key: &str, v: f64, limit: f64, unit: &str) -> Result<f64> {
+    if v.is_finite() && v.abs() <= limit {
+        Ok(v)
+    } else {
+        Err(invalid(
+            file,
+            key,
+            v,
+            &format!(
+                "it must be a finite number from {:e} to {limit:e} {unit}",
+                -limit
+            ),
+        ))
+    }
+}
+
+/// The total constant force on species `i`, pN, from its keys and the
+/// `[forces]` fields.
+///
+/// # Errors
+/// A key out of range, gravity without the densities it needs, a charge
+/// without a field (or the reverse is allowed: an uncharged species feels no field).
+pub fn species_force_pn(
+    file: &Path,
+    i: usize,
+    species: &Species,
+    keys: &SpeciesDriveKeys,
+    forces: Option<&RawForces>,
+    medium_density_kg_per_m3: Option<f64>,
+) -> Result<[f64; 3]> {
+    let key = |k: &str| format!("species[{i}].{k}");
+    let mut f = [0.0; 3];
+    if let Some(given) = keys.force_pn {
+        for (k, v) in given.iter().enumerate() {
+            f[k] = finite_within(
+                file,
+                &key(&format!("force_pN[{k}]")),
+                *v,
+                FORCE_RANGE_PN,
+                "pN",
+            )?;
+        }
+    }
+    let gravity = forces.and_then(|x| x.gravity_m_per_s2);
+    if let Some(g) = gravity {
+        let g = finite_within(file, "forces.gravity_m_per_s2", g, 1e6, "m/s²")?;
+        let Some(rho_p) = keys.density_kg_per_m3 else {
+            return Err(invalid(
+                file,
+                key("density_kg_per_m3"),
+                "(missing)",
+                "forces.gravity_m_per_s2 is set, so every species needs its density in kg/m³ (its buoyant weight)",
+            ));
+        };
+        let Some(rho_m) = medium_density_kg_per_m3 else {
+            return Err(invalid(
+                file,
+                "medium.density_kg_per_m3",
+                "(missing)",
+                "forces.gravity_m_per_s2 is set, so the medium's density in kg/m³ is needed for buoyancy",
+            ));
+        };
+        let a_m = species.radius_nm * 1e-9;
+        let volume = 4.0 / 3.0 * std::f64::consts::PI * a_m.powi(3);
+        f[2] -= volume * (rho_p - rho_m) * g * 1e12;
+    } else if keys.density_kg_per_m3.is_some() {
+        return Err(invalid(
+            file,
+            key("density_kg_per_m3"),
+            keys.density_kg_per_m3.unwrap_or(0.0),
+            "it is used only with forces.gravity_m_per_s2; set gravity or remove the density",
+        ));
+    }
+    if let Some(q) = keys.charge_e {
+        let q = finite_within(file, &key("charge_e"), q, 1e9, "elementary charges")?;
+        let field = forces.and_then(|x| x.electric_field_v_per_m.as_ref());
+        let Some(e) = field else {
+            return Err(invalid(
+                file,
+                key("charge_e"),
+                q,
+                "a charge is used only with forces.electric_field_V_per_m = [x, y, z]; set the field or remove the charge",
+            ));
+        };
+        for (k, ek) in e.iter().enumerate() {
+            f[k] += q * ELEMENTARY_CHARGE_C * ek * 1e12;
+        }
+    }
+    for (k, v) in f.iter().enumerate() {
+        if !v.is_finite() || v.abs() > FORCE_RANGE_PN {
+            return Err(invalid(
+                file,
+                key("(total force)"),
+                format!("{v:e} pN along {}", ["x", "y", "z"][k]),
+                &format!("the sum of force_pN, buoyant weight and charge × field must stay within ±{FORCE_RANGE_PN:e} pN"),
+            ));
+        }
+    }
+    Ok(f)
+}
+
+/// Checks `[forces]` on its own (the field's shape).
+///
+/// # Errors
+/// A field that is not three finite numbers.
+pub fn validate_forces(file: &Path, forces: &RawForces) -> Result<()> {
+    if let Some(e) = &forces.electric_field_v_per_m {
+        if e.len() != 3 {
+            return Err(invalid(
+                file,
+                "forces.electric_field_V_per_m",
+                format!("{e:?}"),
+                "it must list three components [x, y, z] in V/m",
+            ));
+        }
+        for (k, v) in e.iter().enumerate() {
+            finite_within(
+                file,
+                &format!("forces.electric_field_V_per_m[{k}]"),
+                *v,
+                1e10,
+                "V/m",
+            )?;
+        }
+    }
+    Ok(())
+}
+
+/// Validates `[flow]` against the geometry and media it must run in.
+///
+/// # Errors
+/// A key that does not belong to the kind, a missing or doubled speed, or
+/// a flow in a setting where it is not defined (named in the message).
+pub fn validate_flow(
+    file: &Path,
+    raw: &RawFlow,
+    geometry: Option<&Geometry>,
+    viscosity_pa_s: f64,
+    has_obstacles: bool,
+    has_crowders: bool,
+) -> Result<FlowSpec> {
+    if has_crowders {
+        return Err(invalid(
+            file,
+            "flow.kind",
+            format!("{:?}", raw.kind),
+            "flows are not available with crowders (the crowd's step has no drift yet)",
+        ));
+    }
+    if has_obstacles {
+        return Err(invalid(
+            file,
+            "flow.kind",
+            format!("{:?}", raw.kind),
+            "flows are not available among fixed obstacles or fibres: the flow around them is not modelled",
+        ));
+    }
+    match raw.kind.as_str() {
+        "poiseuille" => {
+            if raw.shear_rate_per_s.is_some() {
+                return Err(invalid(
+                    file,
+                    "flow.shear_rate_per_s",
+                    "(given)",
+                    "it is used only with flow.kind = \"shear\"",
+                ));
+            }
+            let g = geometry.ok_or_else(|| {
+                invalid(
+                    file,
+                    "flow.kind",
+                    "\"poiseuille\"",
+                    "Poiseuille flow needs a [geometry] of kind \"cylinder\" (along z) or \"slit\" (along x)",
+                )
+            })?;
+            // The square of the length that sets V from G: R²/8 (cylinder) or w²/12 (slit).
+            let (conductance_nm2, channel) = match &g.shape {
+                Shape::Cylinder { radius_nm, .. } => (radius_nm * radius_nm / 8.0, "cylinder"),
+                Shape::Slit { width_nm } => (width_nm * width_nm / 12.0, "slit"),
+                other => return Err(invalid(
+                    file,
+                    "flow.kind",
+                    "\"poiseuille\"",
+                    &format!(
+                        "Poiseuille flow is available in a \"cylinder\" or a \"slit\", not in a {}",
+                        other.kind()
+                    ),
+                )),
+            };
+            if g.hydrodynamics.is_some()
+                && channel == "cylinder"
+                && g.pore_model != PoreModel::Cylinder
+            {
+                return Err(invalid(
+                    file,
+                    "geometry.pore_mobility",
+                    "\"nearest_wall\"",
+                    "flow with wall hydrodynamics uses the cylinder model's convective lag; the nearest-wall approximation has none (use \"cylinder\")",
+                ));
+            }
+            let v_m_per_s = match (raw.mean_velocity_m_per_s, raw.pressure_gradient_pa_per_m) {
+                (Some(v), None) => finite_within(
+                    file,
+                    "flow.mean_velocity_m_per_s",
+                    v,
+                    VELOCITY_RANGE_M_PER_S,
+                    "m/s",
+                )?,
+                (None, Some(grad)) => {
+                    let grad = finite_within(file, "flow.pressure_gradient_Pa_per_m", grad, 1e15, "Pa/m")?;
+                    let v = grad * conductance_nm2 * 1e-18 / viscosity_pa_s;
+                    finite_within(file, "flow.pressure_gradient_Pa_per_m", v, VELOCITY_RANGE_M_PER_S, "m/s of mean velocity it gives")
+                        .map_err(|_| invalid(file, "flow.pressure_gradient_Pa_per_m", grad, &format!("it gives a mean velocity of {v:e} m/s, beyond ±{VELOCITY_RANGE_M_PER_S:e} m/s")))?
+                }
+                (Some(_), Some(_)) => {
+                    return Err(invalid(
+                        file,
+                        "flow.pressure_gradient_Pa_per_m",
+                        "(given with flow.mean_velocity_m_per_s)",
+                        "give the mean velocity or the pressure gradient, not both",
+                    ))
+                }
+                (None, None) => {
+                    return Err(invalid(
+                        file,
+                        "flow.mean_velocity_m_per_s",
+                        "(missing)",
+                        "Poiseuille flow needs flow.mean_velocity_m_per_s or flow.pressure_gradient_Pa_per_m",
+                    ))
+                }
+            };
+            Ok(FlowSpec::Poiseuille {
+                mean_velocity_nm_per_s: v_m_per_s * 1e9,
+            })
+        }
+        "shear" => {
+            for (k, given) in [
+                ("mean_velocity_m_per_s", raw.mean_velocity_m_per_s.is_some()),
+                (
+                    "pressure_gradient_Pa_per_m",
+                    raw.pressure_gradient_pa_per_m.is_some(),
+                ),
+            ] {
+                if given {
+                    return Err(invalid(
+                        file,
+                        format!("flow.{k}"),
+                        "(given)",
+                        "it is used only with flow.kind = \"poiseuille\"",
+                    ));
+                }
+            }
+            if geometry.is_some() {
+                return Err(invalid(
+                    file,
+                    "flow.kind",
+                    "\"shear\"",
+                    "uniform shear is available in a periodic box without a [geometry]",
+                ));
+            }
+            let rate = raw.shear_rate_per_s.ok_or_else(|| {
+                invalid(
+                    file,
+                    "flow.shear_rate_per_s",
+                    "(missing)",
+                    "shear needs its rate γ̇ in 1/s",
+                )
+            })?;
+            let rate = finite_within(file, "flow.shear_rate_per_s", rate, 1e12, "1/s")?;
+            Ok(FlowSpec::Shear { rate_per_s: rate })
+        }
+        other => Err(invalid(
+            file,
+            "flow.kind",
+            format!("{other:?}"),
+            "allowed: \"poiseuille\" or \"shear\"",
+        )),
+    }
+}
