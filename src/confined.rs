@@ -141,5 +141,17 @@ fn run_summary(r: &MembraneAnalysis) -> String {
         "    steric partition coefficient             {:.4}\n",
         r.partition_steric
     ));
+    if let Some(f) = &r.filtration {
+        s.push_str(&format!(
+            "    sieving coefficient S                    {}\n",
+            f.sieving_coefficient.describe_fixed(4)
+        ));
+        for m in &f.models {
+            s.push_str(&format!(
+                "      {:.4} at Pe = {:.3}: {}\n",
+                m.sieving_coefficient, m.peclet, m.name
+            ));
+        }
+    }
     s
 }

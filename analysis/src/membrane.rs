@@ -116,12 +116,163 @@ pub struct MembraneAnalysis {
     pub partition: Interval,
     /// Exact steric partition Σ(r − a)²/Σr².
     pub partition_steric: f64,
+    /// Filtration: sieving coefficient and transmissions (runs with a flow).
+    pub filtration: Option<Filtration>,
     /// Time-lag estimate.
     pub time_lag: TimeLag,
     /// Concentration profile across the membrane.
     pub profile: MembraneProfile,
     /// Where the profile CSV was written, if it was.
     pub profile_csv: Option<PathBuf>,
+}
+
+/// Sieving from the transits of one window: the membrane's forward and
+/// backward transmission and the sieving coefficient.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Sieving {
+    /// Forward transmission a = N_down/(A c_top) with the reservoir layers
+    /// removed, nm/s: the flux per unit feed concentration at the membrane face.
+    pub forward_nm_per_s: f64,
+    /// Backward transmission b (permeate face to feed bath), nm/s.
+    pub backward_nm_per_s: f64,
+    /// Sieving coefficient S = c_permeate/c_feed when the permeate is what
+    /// passes, c_p = N/J_v: S = a/(J_v + b).
+    pub coefficient: f64,
+}
+
+/// The sieving coefficient from counted transits (down from the top bath,
+/// up from the bottom one) over `steps` steps of `dt_s`, the simulated bath
+/// densities [bottom, top] (per nm³), the box area A (nm²), the diffusive
+/// resistances in series on each side [top, bottom] (s/nm: the reservoir
+/// layer H/D0 plus, where known, the pore-end access resistance) and the
+/// volume flux J_v per unit area (nm/s).
+///
+/// Tracers do not interact, so the flux is linear in the two bath
+/// concentrations, N = α c_top − β c_bottom, and counting transits by their
+/// bath of origin gives α and β from one run. The stirred reservoirs are
+/// diffusive layers in series on each side (the reservoir r = H/D0 as for
+/// the permeability, and the access into the pore mouths, where no fluid
+/// moves in this model), so the membrane's own a, b follow from
+/// α = a/(1 + a r_top + b r_bottom), β = b/(…): a = α/(1 − α r_top − β r_bottom).
+/// With the permeate concentration set by what passes, c_p = N/J_v, the
+/// sieving coefficient is S = c_p/c_feed = a/(J_v + b) (the definition of
+/// Deen 1987, for well-mixed feed and permeate at the membrane faces).
+/// `None` without transits both ways or with a layer correction that fails.
+pub fn sieving_from_transits(
+    transits: [f64; 2],
+    density: [f64; 2],
+    area_nm2: f64,
+    duration_s: f64,
+    layer_resistance_s_per_nm: [f64; 2],
+    volume_flux_nm_per_s: f64,
+) -> Option<Sieving> {
+    if density[0] <= 0.0 || density[1] <= 0.0 || duration_s <= 0.0 {
+        return None;
+    }
+    let alpha = transits[0] / (area_nm2 * duration_s * density[1]);
+    let beta = transits[1] / (area_nm2 * duration_s * density[0]);
+    let denominator =
+        1.0 - alpha * layer_resistance_s_per_nm[0] - beta * layer_resistance_s_per_nm[1];
+    if denominator <= 0.0 || !denominator.is_finite() {
+        return None;
+    }
+    let (a, b) = (alpha / denominator, beta / denominator);
+    Some(Sieving {
+        forward_nm_per_s: a,
+        backward_nm_per_s: b,
+        coefficient: a / (volume_flux_nm_per_s + b),
+    })
+}
+
+/// Filtration through the membrane: the measured sieving coefficient and
+/// the hindered-transport predictions it is compared with.
+#[derive(Debug, Clone, Serialize)]
+pub struct Filtration {
+    /// Mean fluid velocity in a pore (equal pores), m/s.
+    pub mean_pore_velocity_m_per_s: Option<f64>,
+    /// Volume flux per unit membrane area J_v, m/s.
+    pub volume_flux_m_per_s: f64,
+    /// Particles that went from the top bath to the bottom one in the window.
+    pub transits_down: i64,
+    /// Particles that went from the bottom bath to the top one.
+    pub transits_up: i64,
+    /// Flux per unit feed concentration at the membrane face, m/s.
+    pub forward_transmission_m_per_s: Interval,
+    /// Flux per unit permeate concentration back to the feed, m/s.
+    pub backward_transmission_m_per_s: Interval,
+    /// Measured sieving coefficient S.
+    pub sieving_coefficient: Interval,
+    /// Deen's S with the K_d, K_c of each model that applies.
+    pub models: Vec<SievingModel>,
+    /// How S is measured.
+    pub definition: String,
+}
+
+impl Filtration {
+    /// Table lines of the filtration results.
+    pub fn to_lines(&self) -> String {
+        use std::fmt::Write as _;
+        let mut s = String::new();
+        let w = &mut s;
+        let _ = writeln!(
+            w,
+            "filtration (feed: top bath, permeate: bottom bath; stirred reservoirs)"
+        );
+        if let Some(v) = self.mean_pore_velocity_m_per_s {
+            let _ = writeln!(w, "  mean pore velocity v, m/s                  {v:.4e}");
+        }
+        let _ = writeln!(
+            w,
+            "  volume flux J_v, m/s                       {:.4e}",
+            self.volume_flux_m_per_s
+        );
+        let _ = writeln!(
+            w,
+            "  transits top->bottom / bottom->top         {} / {}",
+            self.transits_down, self.transits_up
+        );
+        let _ = writeln!(
+            w,
+            "  forward transmission, m/s                  {}",
+            self.forward_transmission_m_per_s.describe(4)
+        );
+        let _ = writeln!(
+            w,
+            "  backward transmission, m/s                 {}",
+            self.backward_transmission_m_per_s.describe(4)
+        );
+        let _ = writeln!(
+            w,
+            "  sieving coefficient S                      {}",
+            self.sieving_coefficient.describe_fixed(4)
+        );
+        for m in &self.models {
+            let _ = writeln!(
+                w,
+                "    {:.4}  Pe = {:.4}, Phi = {:.4}, K_d = {:.4}, K_c = {:.4}: {}",
+                m.sieving_coefficient, m.peclet, m.partition, m.kd, m.kc, m.name
+            );
+        }
+        let _ = writeln!(w, "  definition: {}", self.definition);
+        s
+    }
+}
+
+/// Deen's (1987) sieving coefficient for one choice of K_d and K_c.
+#[derive(Debug, Clone, Serialize)]
+pub struct SievingModel {
+    /// What K_d and K_c are taken from.
+    pub name: String,
+    /// Φ = (1 − λ)².
+    pub partition: f64,
+    /// Diffusive hindrance K_d.
+    pub kd: f64,
+    /// Convective hindrance K_c.
+    pub kc: f64,
+    /// Pe = K_c v L/(K_d D0).
+    pub peclet: f64,
+    /// S = ΦK_c/(1 − (1 − ΦK_c)e^(−Pe)).
+    pub sieving_coefficient: f64,
 }
 
 /// Time-lag estimate from the cumulative amount delivered to the permeate.
@@ -166,7 +317,7 @@ pub struct MembraneProfile {
 struct Series {
     time_s: Vec<f64>,
     step: Vec<i64>,
-    rows: Vec<[i64; 10]>,
+    rows: Vec<[i64; 12]>,
 }
 
 /// The membrane of a scenario, if it has one.
@@ -195,7 +346,9 @@ fn read_series(path: &Path, species: &str) -> Result<Series> {
         .dataset(&value_name)
         .map_err(|e| Error::hdf5(path, &value_name, e))?;
     let shape = value.shape();
-    if shape.len() != 2 || shape[1] != MEMBRANE_COLUMNS.len() {
+    // Files from before the transit counts have the first ten columns only (no sieving).
+    const EARLIER_COLUMNS: usize = 10;
+    if shape.len() != 2 || (shape[1] != MEMBRANE_COLUMNS.len() && shape[1] != EARLIER_COLUMNS) {
         return Err(crate::error::ErrorKind::BadShape {
             path: path.to_path_buf(),
             object: value_name,
@@ -204,12 +357,17 @@ fn read_series(path: &Path, species: &str) -> Result<Series> {
         }
         .into());
     }
+    let width = shape[1];
     let flat: Vec<i64> = value
         .read_raw()
         .map_err(|e| Error::hdf5(path, &value_name, e))?;
-    let rows: Vec<[i64; 10]> = flat
-        .chunks_exact(10)
-        .map(|c| c.try_into().expect("ten columns"))
+    let rows: Vec<[i64; 12]> = flat
+        .chunks_exact(width)
+        .map(|c| {
+            let mut row = [0; 12];
+            row[..width].copy_from_slice(c);
+            row
+        })
         .collect();
     let time_s: Vec<f64> = file
         .dataset(&format!("{group}/time"))
@@ -329,9 +487,11 @@ pub fn analyze_membrane(path: &Path, species: Option<&str>) -> Result<MembraneAn
         steps: f64,
         net: f64,
         emitted: [f64; 2],
+        transits: [f64; 2],
         pores: f64,
         frames: f64,
     }
+    let c_transits = [col("transits_down"), col("transits_up")];
     let window = |from: usize, to: usize, occ_from: usize| -> Window {
         let (r0, r1) = (&series.rows[from], &series.rows[to]);
         let pores: i64 = (occ_from..=to).map(|i| series.rows[i][c_pores]).sum();
@@ -339,6 +499,7 @@ pub fn analyze_membrane(path: &Path, species: Option<&str>) -> Result<MembraneAn
             steps: (series.step[to] - series.step[from]) as f64,
             net: ((r1[c_net[0]] - r0[c_net[0]]) - (r1[c_net[1]] - r0[c_net[1]])) as f64,
             emitted: [(r1[c_eb] - r0[c_eb]) as f64, (r1[c_et] - r0[c_et]) as f64],
+            transits: c_transits.map(|c| (r1[c] - r0[c]) as f64),
             pores: pores as f64,
             frames: (to + 1 - occ_from) as f64,
         }
@@ -348,7 +509,48 @@ pub fn analyze_membrane(path: &Path, species: Option<&str>) -> Result<MembraneAn
         density: [f64; 2],
         permeability: f64,
         partition: f64,
+        sieving: Option<Sieving>,
     }
+    let volume_flux = scenario
+        .flow
+        .and_then(|f| f.membrane_volume_flux_nm_per_s(m))
+        .unwrap_or(0.0);
+    let lambda = geometry
+        .shape
+        .confining_size_nm()
+        .map_or(f64::NAN, |r| a / r);
+    let equal_pores = m
+        .pores
+        .windows(2)
+        .all(|w| (w[0].radius_nm - w[1].radius_nm).abs() <= 1e-12 * w[0].radius_nm);
+    let spacing = match m.layout {
+        PoreLayout::Arranged { pores_x, pores_y }
+            if (m.lateral_nm[0] / pores_x as f64 - m.lateral_nm[1] / pores_y as f64).abs()
+                < 1e-9 =>
+        {
+            Some(m.lateral_nm[0] / pores_x as f64)
+        }
+        _ => None,
+    };
+    // Each side: the reservoir layer H/D0 and, for equal pores, the access into the mouths (a + Δ f)/(εΦD0),
+    // the end terms of the steric permeability model that the diffusive test checks.
+    let access = if equal_pores {
+        let r = m.pores.first().map_or(f64::NAN, |p| p.radius_nm);
+        let open = r - a;
+        let f = spacing.map_or(Ok(1.0), |sp| models::square_array_access_factor(open, sp));
+        match (f, models::partition_cylinder(lambda)) {
+            (Ok(f), Ok(phi)) => {
+                (a + models::FLANGED_PIPE_END_CORRECTION * open * f) / (porosity * phi * d0)
+            }
+            _ => 0.0,
+        }
+    } else {
+        0.0
+    };
+    let layer_resistance = [
+        (m.height_nm - m.z_hi_nm - a) / d0 + access,
+        (m.z_lo_nm - a) / d0 + access,
+    ];
     let derive = |w: &Window| -> Derived {
         let flux = w.net / (w.steps * dt);
         let density = [0, 1].map(|f| {
@@ -361,6 +563,18 @@ pub fn analyze_membrane(path: &Path, species: Option<&str>) -> Result<MembraneAn
             density,
             permeability,
             partition: w.pores / w.frames / pore_volume / mean_bath,
+            sieving: (volume_flux > 0.0)
+                .then(|| {
+                    sieving_from_transits(
+                        w.transits,
+                        density,
+                        area,
+                        w.steps * dt,
+                        layer_resistance,
+                        volume_flux,
+                    )
+                })
+                .flatten(),
         }
     };
 
@@ -428,23 +642,6 @@ pub fn analyze_membrane(path: &Path, species: Option<&str>) -> Result<MembraneAn
     let partition = interval(total.partition, &occupancy_blocks, &|d| d.partition);
     let flux_density = bath_p.map(|p| p * 1e-9 * (given[1] - given[0]));
 
-    let lambda = geometry
-        .shape
-        .confining_size_nm()
-        .map_or(f64::NAN, |r| a / r);
-    let equal_pores = m
-        .pores
-        .windows(2)
-        .all(|w| (w[0].radius_nm - w[1].radius_nm).abs() <= 1e-12 * w[0].radius_nm);
-    let spacing = match m.layout {
-        PoreLayout::Arranged { pores_x, pores_y }
-            if (m.lateral_nm[0] / pores_x as f64 - m.lateral_nm[1] / pores_y as f64).abs()
-                < 1e-9 =>
-        {
-            Some(m.lateral_nm[0] / pores_x as f64)
-        }
-        _ => None,
-    };
     let r = m.pores.first().map_or(f64::NAN, |p| p.radius_nm);
     let steric = if equal_pores {
         models::membrane_steric_permeability_over_d0(porosity, m.thickness_nm(), a, r, spacing)
@@ -479,6 +676,74 @@ pub fn analyze_membrane(path: &Path, species: Option<&str>) -> Result<MembraneAn
         }
     }
     let permeability_over_steric = steric.map(|st| permeability.map(|p| p / st));
+    let filtration = total.sieving.map(|sv| {
+        let pick = |f: &dyn Fn(&Sieving) -> f64| {
+            let samples: Vec<f64> = flux_blocks
+                .iter()
+                .filter_map(|d| d.sieving.as_ref().map(f))
+                .collect();
+            Interval::from_samples(f(&sv), &samples)
+        };
+        let velocity = if equal_pores {
+            scenario
+                .flow
+                .and_then(|f| f.pore_mean_velocity_nm_per_s(r))
+        } else {
+            None
+        };
+        let model = |kd: f64, kc: f64, name: &str| -> Option<SievingModel> {
+            let phi = models::partition_cylinder(lambda).ok()?;
+            let pe = models::membrane_peclet(kc, kd, velocity?, m.thickness_nm(), d0).ok()?;
+            Some(SievingModel {
+                name: name.into(),
+                partition: phi,
+                kd,
+                kc,
+                peclet: pe,
+                sieving_coefficient: models::deen_sieving_coefficient(phi, kc, pe).ok()?,
+            })
+        };
+        let mut sieving_models = Vec::new();
+        if geometry.hydrodynamics.is_none() {
+            sieving_models.extend(model(
+                1.0,
+                models::lag_free_kc_cylinder(lambda).unwrap_or(f64::NAN),
+                "Deen 1987 with this run's own pores: K_d = 1 and K_c = 2 - Phi (steric pores, no hydrodynamic lag)",
+            ));
+        }
+        if let (Ok(h), Ok(kc)) = (
+            models::dechadilok_deen_hindrance(lambda),
+            models::dechadilok_deen_kc(lambda),
+        ) {
+            let phi = models::partition_cylinder(lambda).unwrap_or(f64::NAN);
+            sieving_models.extend(model(
+                h / phi,
+                kc,
+                "Deen 1987 with Dechadilok-Deen 2006 K_d and K_c (pores with wall hydrodynamics)",
+            ));
+        }
+        Filtration {
+            mean_pore_velocity_m_per_s: velocity.map(|v| v * 1e-9),
+            volume_flux_m_per_s: volume_flux * 1e-9,
+            transits_down: total_window.transits[0] as i64,
+            transits_up: total_window.transits[1] as i64,
+            forward_transmission_m_per_s: pick(&|x| x.forward_nm_per_s * 1e-9),
+            backward_transmission_m_per_s: pick(&|x| x.backward_nm_per_s * 1e-9),
+            sieving_coefficient: pick(&|x| x.coefficient),
+            models: sieving_models,
+            definition: format!(
+                "transits counted by bath of origin give the flux per feed concentration (forward) and per permeate \
+                 concentration (backward), each with the diffusive layers in series on its side removed (stirred reservoir H/D0{}); \
+                 S = forward/(J_v + backward): the permeate over the feed concentration at the membrane faces when the permeate \
+                 is what passes (Deen 1987). No fluid moves outside the pores in this model",
+                if access > 0.0 {
+                    " and the pore-mouth access resistance (a + 0.8216 r_open f)/(eps Phi D0) of the steric model"
+                } else {
+                    "; pores of unequal radii: no access term"
+                }
+            ),
+        }
+    });
 
     let time_lag = time_lag(&series, m, k0, last, d0);
     let profile = profile(&reader, m, a, k0, last, len, total.density)?;
@@ -509,6 +774,7 @@ pub fn analyze_membrane(path: &Path, species: Option<&str>) -> Result<MembraneAn
         hindrance_models,
         partition,
         partition_steric: m.steric_partition(a),
+        filtration,
         time_lag,
         profile,
         profile_csv: None,
@@ -811,6 +1077,10 @@ impl MembraneAnalysis {
             "  bath densities bottom/top, 1/nm3           {:.4e} / {:.4e} (scale {:.3e} of the given)",
             self.bath_density_per_nm3[0], self.bath_density_per_nm3[1], self.concentration_scale
         );
+        if let Some(f) = &self.filtration {
+            s.push_str(&f.to_lines());
+        }
+        let w = &mut s;
         match (self.time_lag.t_lag_s, self.time_lag.d_membrane_over_d0) {
             (Some(t), Some(d)) => {
                 let _ = writeln!(

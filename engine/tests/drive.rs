@@ -302,12 +302,12 @@ fn constant_force_and_charge_in_a_field_drift_at_the_einstein_mobility() {
     let qe = -3.0 * 1.602176634e-19 * 1e6 * 1e12; // pN
     let force = [0.2, qe, -0.1];
     let t = steps as f64 * dt;
-    for k in 0..3 {
+    for (k, f) in force.iter().enumerate() {
         let d: Vec<f64> = (0..state.len())
             .map(|i| state.unwrapped(i, &s.sim_box)[k] - before.unwrapped(i, &s.sim_box)[k])
             .collect();
         let (m, se) = mean_se(&d);
-        let expected = D0_NM2_PER_S * force[k] / kt * t;
+        let expected = D0_NM2_PER_S * f / kt * t;
         println!("axis {k}: ⟨Δ⟩ = {m:.4} ± {se:.4} nm, Einstein {expected:.4} nm");
         assert!((m - expected).abs() < K_SE * se);
         assert!(expected.abs() > 20.0 * se, "the drift is resolved");

@@ -41,6 +41,8 @@ pub struct TrajectoryWriter {
     file: File,
     species: Vec<SpeciesSets>,
     precision: Precision,
+    /// Periodic axes: image counts are written on these only.
+    periodic: [bool; 3],
     frames: usize,
 }
 
@@ -184,6 +186,7 @@ impl TrajectoryWriter {
             file,
             species,
             precision: scenario.output.precision,
+            periodic: scenario.sim_box.periodic,
             frames: 0,
         })
     }
@@ -245,6 +248,7 @@ impl TrajectoryWriter {
             file,
             species,
             precision: scenario.output.precision,
+            periodic: scenario.sim_box.periodic,
             frames,
         })
     }
@@ -290,7 +294,14 @@ impl TrajectoryWriter {
                     }
                 }
                 let im = &state.images[base + lo..base + hi];
-                let buf = Array3::from_shape_fn((1, hi - lo, 3), |(_, i, k)| im[i][k]);
+                // Image counts mean something on periodic axes only (a membrane keeps a bath mark on z).
+                let buf = Array3::from_shape_fn((1, hi - lo, 3), |(_, i, k)| {
+                    if self.periodic[k] {
+                        im[i][k]
+                    } else {
+                        0
+                    }
+                });
                 sets.image
                     .write_slice(&buf, s![f..f + 1, lo..hi, ..])
                     .map_err(&e)?;

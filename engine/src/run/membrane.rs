@@ -11,7 +11,7 @@ use crate::step::pipeline::{Occupancy, Stepper};
 use serde::{Deserialize, Serialize};
 
 /// Columns of the per-frame membrane series `/observables/<species>/membrane`.
-pub const MEMBRANE_COLUMNS: [&str; 10] = [
+pub const MEMBRANE_COLUMNS: [&str; 12] = [
     "exits_bottom",
     "exits_top",
     "entries_bottom",
@@ -22,6 +22,8 @@ pub const MEMBRANE_COLUMNS: [&str; 10] = [
     "particles_in_pores",
     "particles_in_top_reservoir",
     "particles_in_bottom_reservoir",
+    "transits_down",
+    "transits_up",
 ];
 
 /// Running membrane measurements of a run: cumulative counts per species and

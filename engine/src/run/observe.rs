@@ -246,6 +246,8 @@ impl Observer for WallsAndBaths<'_> {
                 o.pores,
                 o.top,
                 o.bottom,
+                c.transits_down,
+                c.transits_up,
             ]
             .map(|v| v as i64);
             series.append(state.step, time_s, &row)?;

@@ -556,7 +556,7 @@ impl Scenario {
             ));
         }
         if let Some(g) = &self.geometry {
-            out.extend(g.warnings(&self.species, self.dt_s));
+            out.extend(g.warnings(&self.species, self.dt_s, self.flow.is_some()));
         }
         let phi_c = self.crowder_volume_fraction();
         if phi_c > LATTICE_START_FRACTION {

@@ -7,11 +7,14 @@
 //! `forces.electric_field_V_per_m` (no electrophoretic retardation, no
 //! electro-osmosis). It enters the step as the drift D·F/k_BT.
 //!
-//! A flow is Poiseuille flow along a cylinder's axis (z) or along x in a
-//! slit, set by its mean velocity or by a pressure gradient with the
+//! A flow is Poiseuille flow along a cylinder's axis (z), along x in a
+//! slit, or down through a membrane's pores (filtration from the top bath,
+//! the feed, to the bottom one, the permeate), set by its mean velocity or
+//! by a pressure gradient (a membrane: the pressure drop across it) with the
 //! medium's viscosity (Hagen–Poiseuille: V = G R²/(8η) in a cylinder,
-//! G w²/(12η) in a slit of width w), or a uniform shear u_x = γ̇ (z − L_z/2)
-//! in a periodic box without obstacles.
+//! G w²/(12η) in a slit of width w, ΔP R²/(8ηL) in a membrane pore of
+//! length L); or a uniform shear u_x = γ̇ (z − L_z/2) in a periodic box
+//! without obstacles.
 
 use crate::base::error::{EngineError, Result};
 use crate::base::medium::BOLTZMANN_J_PER_K;
@@ -46,6 +49,14 @@ pub struct RawFlow {
         skip_serializing_if = "Option::is_none"
     )]
     pub pressure_gradient_pa_per_m: Option<f64>,
+    /// Poiseuille in a membrane: transmembrane pressure drop, Pa (instead of
+    /// the mean velocity; each pore then carries V_i = ΔP R_i²/(8ηL)).
+    #[serde(
+        rename = "pressure_drop_Pa",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub pressure_drop_pa: Option<f64>,
     /// Shear: rate γ̇, 1/s (u_x = γ̇ (z − L_z/2)).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub shear_rate_per_s: Option<f64>,
@@ -75,6 +86,14 @@ pub enum FlowSpec {
     Poiseuille {
         /// Mean fluid velocity over the pore's (slit's) whole section, nm/s.
         mean_velocity_nm_per_s: f64,
+    },
+    /// Filtration through a membrane under a pressure drop ΔP: Poiseuille
+    /// flow u = k (R_i² − ρ²) in each pore, k = ΔP/(4ηL).
+    PressureDriven {
+        /// ΔP, Pa.
+        pressure_drop_pa: f64,
+        /// k, 1/(nm·s).
+        k_per_nm_s: f64,
     },
     /// Uniform shear u_x = γ̇ (z − L_z/2).
     Shear {
@@ -285,23 +304,34 @@ pub fn validate_flow(
                     file,
                     "flow.kind",
                     "\"poiseuille\"",
-                    "Poiseuille flow needs a [geometry] of kind \"cylinder\" (along z) or \"slit\" (along x)",
+                    "Poiseuille flow needs a [geometry] of kind \"cylinder\" (along z), \"slit\" (along x) or \"membrane\" (down through its pores)",
                 )
             })?;
             // The square of the length that sets V from G: R²/8 (cylinder) or w²/12 (slit).
             let (conductance_nm2, channel) = match &g.shape {
                 Shape::Cylinder { radius_nm, .. } => (radius_nm * radius_nm / 8.0, "cylinder"),
                 Shape::Slit { width_nm } => (width_nm * width_nm / 12.0, "slit"),
-                other => return Err(invalid(
-                    file,
-                    "flow.kind",
-                    "\"poiseuille\"",
-                    &format!(
-                        "Poiseuille flow is available in a \"cylinder\" or a \"slit\", not in a {}",
-                        other.kind()
-                    ),
-                )),
+                Shape::Membrane(m) => return validate_filtration(file, raw, g, m, viscosity_pa_s),
+                other => {
+                    return Err(invalid(
+                        file,
+                        "flow.kind",
+                        "\"poiseuille\"",
+                        &format!(
+                            "Poiseuille flow is available in a \"cylinder\", a \"slit\" or a \"membrane\", not in a {}",
+                            other.kind()
+                        ),
+                    ))
+                }
             };
+            if raw.pressure_drop_pa.is_some() {
+                return Err(invalid(
+                    file,
+                    "flow.pressure_drop_Pa",
+                    "(given)",
+                    "it is used only with a membrane; a cylinder or slit takes flow.pressure_gradient_Pa_per_m",
+                ));
+            }
             if g.hydrodynamics.is_some()
                 && channel == "cylinder"
                 && g.pore_model != PoreModel::Cylinder
@@ -390,5 +420,122 @@ pub fn validate_flow(
             format!("{other:?}"),
             "allowed: \"poiseuille\" or \"shear\"",
         )),
+    }
+}
+
+/// Validates filtration through a membrane: a downward mean velocity or a
+/// pressure drop, steric pores only (the nearest-wall approximation of a
+/// membrane's pores has no convective lag).
+fn validate_filtration(
+    file: &Path,
+    raw: &RawFlow,
+    g: &Geometry,
+    m: &crate::space::shape::Membrane,
+    viscosity_pa_s: f64,
+) -> Result<FlowSpec> {
+    if g.hydrodynamics.is_some() {
+        return Err(invalid(
+            file,
+            "geometry.wall_hydrodynamics",
+            "true",
+            "filtration through a membrane is available with steric pores only (wall_hydrodynamics = false): \
+             the membrane's nearest-wall approximation has no convective lag; a single pore with the cylinder model \
+             (kind = \"cylinder\") gives the hydrodynamic K_c",
+        ));
+    }
+    if raw.pressure_gradient_pa_per_m.is_some() {
+        return Err(invalid(
+            file,
+            "flow.pressure_gradient_Pa_per_m",
+            "(given)",
+            "a membrane takes flow.pressure_drop_Pa (across the slab) or flow.mean_velocity_m_per_s",
+        ));
+    }
+    let positive_within = |key: &str, v: f64, limit: f64, unit: &str| -> Result<f64> {
+        if v.is_finite() && v > 0.0 && v <= limit {
+            Ok(v)
+        } else {
+            Err(invalid(
+                file,
+                key,
+                v,
+                &format!(
+                    "it must be a finite number above 0 and at most {limit:e} {unit}: filtration runs from the top bath (feed) down to the bottom bath (permeate)"
+                ),
+            ))
+        }
+    };
+    match (raw.mean_velocity_m_per_s, raw.pressure_drop_pa) {
+        (Some(v), None) => Ok(FlowSpec::Poiseuille {
+            mean_velocity_nm_per_s: positive_within(
+                "flow.mean_velocity_m_per_s",
+                v,
+                VELOCITY_RANGE_M_PER_S,
+                "m/s",
+            )? * 1e9,
+        }),
+        (None, Some(dp)) => {
+            let dp = positive_within("flow.pressure_drop_Pa", dp, 1e9, "Pa")?;
+            // u = ΔP (R² − ρ²)/(4ηL): k in 1/(nm s) with lengths in nm.
+            let k_per_nm_s = dp / (4.0 * viscosity_pa_s * m.thickness_nm());
+            let fastest = m
+                .pores
+                .iter()
+                .map(|p| 0.5 * k_per_nm_s * p.radius_nm * p.radius_nm)
+                .fold(0.0, f64::max);
+            if fastest * 1e-9 > VELOCITY_RANGE_M_PER_S {
+                return Err(invalid(
+                    file,
+                    "flow.pressure_drop_Pa",
+                    dp,
+                    &format!(
+                        "it drives a mean pore velocity of {:e} m/s, beyond {VELOCITY_RANGE_M_PER_S:e} m/s",
+                        fastest * 1e-9
+                    ),
+                ));
+            }
+            Ok(FlowSpec::PressureDriven {
+                pressure_drop_pa: dp,
+                k_per_nm_s,
+            })
+        }
+        (Some(_), Some(_)) => Err(invalid(
+            file,
+            "flow.pressure_drop_Pa",
+            "(given with flow.mean_velocity_m_per_s)",
+            "give the mean velocity or the pressure drop, not both",
+        )),
+        (None, None) => Err(invalid(
+            file,
+            "flow.mean_velocity_m_per_s",
+            "(missing)",
+            "filtration needs flow.mean_velocity_m_per_s (in each pore) or flow.pressure_drop_Pa (across the membrane)",
+        )),
+    }
+}
+
+impl FlowSpec {
+    /// Mean fluid velocity in a membrane pore of radius `r_nm`, nm/s
+    /// (`None` for flows that are not filtration-type Poiseuille).
+    pub fn pore_mean_velocity_nm_per_s(&self, r_nm: f64) -> Option<f64> {
+        match *self {
+            FlowSpec::Poiseuille {
+                mean_velocity_nm_per_s,
+            } => Some(mean_velocity_nm_per_s),
+            FlowSpec::PressureDriven { k_per_nm_s, .. } => Some(0.5 * k_per_nm_s * r_nm * r_nm),
+            FlowSpec::Shear { .. } => None,
+        }
+    }
+
+    /// Volume flux through a membrane per unit of its area, Σ π R_i² V_i / A, nm/s.
+    pub fn membrane_volume_flux_nm_per_s(&self, m: &crate::space::shape::Membrane) -> Option<f64> {
+        let mut sum = 0.0;
+        for p in &m.pores {
+            sum += std::f64::consts::PI
+                * p.radius_nm
+                * p.radius_nm
+                * self.pore_mean_velocity_nm_per_s(p.radius_nm)?;
+        }
+        Some(sum / m.area_nm2())
     }
 }

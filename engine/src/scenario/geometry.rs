@@ -55,12 +55,18 @@ impl Geometry {
     }
 
     /// Warnings a careful user would want before running this geometry.
-    pub fn warnings(&self, species: &[Species], dt_s: f64) -> Vec<String> {
+    pub fn warnings(&self, species: &[Species], dt_s: f64, flowing: bool) -> Vec<String> {
         let mut out = Vec::new();
         let Shape::Membrane(m) = &self.shape else {
             return out;
         };
-        if m.top_concentration_mol_per_m3 == m.bottom_concentration_mol_per_m3 {
+        if flowing
+            && (m.top_concentration_mol_per_m3 == 0.0 || m.bottom_concentration_mol_per_m3 == 0.0)
+        {
+            out.push("geometry: one bath is held at zero, so transits are counted one way only and the sieving coefficient cannot be measured; \
+                      give both baths a concentration (equal ones give the best statistics for both directions)".into());
+        }
+        if m.top_concentration_mol_per_m3 == m.bottom_concentration_mol_per_m3 && !flowing {
             out.push("geometry: both baths hold the same concentration, so there is no net flux; the run measures the partition coefficient (pore_concentration_over_mean_bath)".into());
         }
         let spacing = (m.area_nm2() / m.pores.len() as f64).sqrt();

@@ -28,7 +28,12 @@
 //! c emits c A σ/√(2π) particles per step. A recycled particle starts a new
 //! track (its trajectory jumps), so mean-squared displacements of membrane
 //! runs are not meaningful. The flux counter counts net crossings of the
-//! slab's mid-plane.
+//! slab's mid-plane. Each emitted particle remembers its bath (in its z
+//! image count, unused on the non-periodic z axis), so that transits from
+//! one bath to the other are counted each way: with a filtration flow they
+//! give the forward and backward transmission, and so the sieving
+//! coefficient, from one run (tracers do not interact: transport is linear
+//! in the two bath concentrations).
 
 use crate::base::rng::ParticleRng;
 use crate::space::collisions::Bounds;
@@ -36,6 +41,13 @@ use crate::space::reflect;
 use crate::space::shape::{Membrane, Shape};
 use serde::{Deserialize, Serialize};
 use std::ops::{Add, AddAssign};
+
+/// The z image of a membrane particle emitted by the top bath (z is not
+/// periodic in a membrane, so its image count is free to hold the origin;
+/// the trajectory writes 0 for it). A particle placed at the start holds 0.
+pub const FROM_TOP: i32 = 1;
+/// The z image of a membrane particle emitted by the bottom bath.
+pub const FROM_BOTTOM: i32 = 2;
 
 /// Attempts to find an allowed starting point (or bath entry point) for one
 /// particle before giving up.
@@ -59,6 +71,12 @@ pub struct Counts {
     /// Moves rejected because one reflection did not bring the centre back
     /// (steps longer than the local feature); should stay a tiny fraction.
     pub rejected_moves: u64,
+    /// Particles emitted by the top bath and absorbed by the bottom one.
+    #[serde(default)]
+    pub transits_down: u64,
+    /// Particles emitted by the bottom bath and absorbed by the top one.
+    #[serde(default)]
+    pub transits_up: u64,
 }
 
 impl Add for Counts {
@@ -72,6 +90,8 @@ impl Add for Counts {
             crossings_down: self.crossings_down + o.crossings_down,
             crossings_up: self.crossings_up + o.crossings_up,
             rejected_moves: self.rejected_moves + o.rejected_moves,
+            transits_down: self.transits_down + o.transits_down,
+            transits_up: self.transits_up + o.transits_up,
         }
     }
 }
@@ -301,10 +321,13 @@ impl Walls {
             events: c,
         };
         if y[2] >= lz || y[2] <= 0.0 {
+            // The z image (z is not periodic here) holds which bath emitted the particle.
             if y[2] >= lz {
                 c.exits_top += 1;
+                c.transits_up += u64::from(n[2] == FROM_BOTTOM);
             } else {
                 c.exits_bottom += 1;
+                c.transits_down += u64::from(n[2] == FROM_TOP);
             }
             let (top, bottom) = (
                 mb.top_concentration_mol_per_m3,
@@ -318,7 +341,7 @@ impl Walls {
             }
             return Moved {
                 at: self.emit(mb, g, from_top),
-                image: *n,
+                image: [n[0], n[1], if from_top { FROM_TOP } else { FROM_BOTTOM }],
                 events: c,
             };
         }

@@ -24,7 +24,7 @@
 //! A force or a flow enters here, as one more term of the displacement.
 
 use crate::base::rng::{standard_normal, ParticleRng};
-use crate::space::shape::Shape;
+use crate::space::shape::{Membrane, Shape};
 
 /// Intervals of each tabulated mobility.
 pub const TABLE_INTERVALS: usize = 4096;
@@ -118,7 +118,7 @@ impl<const N: usize> MobilityTable<N> {
 
 /// The deterministic part of a step besides the Itô drift: the species'
 /// constant external force and the flow that carries it.
-#[derive(Debug, Clone, Copy, PartialEq, Default)]
+#[derive(Debug, Clone, PartialEq, Default)]
 pub struct Drive {
     /// D0 Δt F/k_BT, nm: the drift per step a free particle gets from its
     /// constant force (Einstein: mobility D0/k_BT). Near walls each
@@ -131,7 +131,7 @@ pub struct Drive {
 }
 
 /// A steady flow, as the displacement per step it gives a particle.
-#[derive(Debug, Clone, Copy, PartialEq, Default)]
+#[derive(Debug, Clone, PartialEq, Default)]
 pub enum Flow {
     /// No flow.
     #[default]
@@ -163,6 +163,19 @@ pub enum Flow {
         /// 1/w, 1/nm.
         inv_w: f64,
     },
+    /// Filtration through a membrane's pores, downward (from the top bath,
+    /// the feed, to the bottom one, the permeate): Poiseuille flow in each
+    /// pore, u = −k_i (R_i² − ρ²) ẑ within the slab, and none in the
+    /// reservoirs (they are stirred baths: no concentration polarisation).
+    Pores {
+        /// The membrane.
+        membrane: std::sync::Arc<Membrane>,
+        /// k Δt, 1/nm: the same k for every pore under a pressure drop, or
+        /// 2V/R_i² per pore under a given mean velocity V (`per_pore_mean`).
+        k_dt: f64,
+        /// True when `k_dt` is 2VΔt and each pore divides it by its R².
+        per_pore_mean: bool,
+    },
 }
 
 impl Flow {
@@ -192,6 +205,22 @@ impl Flow {
                 let s = x[2] * inv_w;
                 [scale_nm * s * (1.0 - s), 0.0, 0.0]
             }
+            Flow::Pores {
+                ref membrane,
+                k_dt,
+                per_pore_mean,
+            } => {
+                if x[2] < membrane.z_lo_nm || x[2] > membrane.z_hi_nm {
+                    return [0.0; 3];
+                }
+                let Some((c, r)) = membrane.pore_at(x[0], x[1]) else {
+                    return [0.0; 3];
+                };
+                let rho2 = (x[0] - c[0]).powi(2) + (x[1] - c[1]).powi(2);
+                let r2 = r * r;
+                let k = if per_pore_mean { k_dt / r2 } else { k_dt };
+                [0.0, 0.0, -k * (r2 - rho2).max(0.0)]
+            }
         }
     }
 
@@ -210,7 +239,7 @@ impl Drive {
 
 /// Free diffusion carried by a drive: √(2 D0 Δt)·ξ plus the force's drift
 /// and the fluid's displacement at the centre.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, PartialEq)]
 pub struct Driven {
     /// √(2 D0 Δt), nm.
     pub sigma_nm: f64,
@@ -226,7 +255,10 @@ impl Displacement for Driven {
         // Drifts along z (a pore's axis) leave the move across the wall symmetric.
         self.drive.force_nm[0] == 0.0
             && self.drive.force_nm[1] == 0.0
-            && matches!(self.drive.flow, Flow::Still | Flow::Tube { .. })
+            && matches!(
+                self.drive.flow,
+                Flow::Still | Flow::Tube { .. } | Flow::Pores { .. }
+            )
     }
 
     #[inline(always)]

@@ -284,7 +284,7 @@ impl Stepper {
                 } else {
                     Move::Driven(Driven {
                         sigma_nm: sigma,
-                        drive,
+                        drive: drive.clone(),
                     })
                 };
                 let Some(geometry) = &geometry else {
@@ -796,8 +796,25 @@ fn flow_field(scenario: &Scenario, geometry: Option<&Geometry>) -> Flow {
             scale_nm: 6.0 * v * dt,
             inv_w: 1.0 / width_nm,
         },
-        // Validation admits Poiseuille flow only in cylinders and slits.
-        (Some(FlowSpec::Poiseuille { .. }), _) => Flow::Still,
+        (
+            Some(FlowSpec::Poiseuille {
+                mean_velocity_nm_per_s: v,
+            }),
+            Some(Shape::Membrane(m)),
+        ) => Flow::Pores {
+            membrane: std::sync::Arc::new((**m).clone()),
+            k_dt: 2.0 * v * dt,
+            per_pore_mean: true,
+        },
+        (Some(FlowSpec::PressureDriven { k_per_nm_s, .. }), Some(Shape::Membrane(m))) => {
+            Flow::Pores {
+                membrane: std::sync::Arc::new((**m).clone()),
+                k_dt: k_per_nm_s * dt,
+                per_pore_mean: false,
+            }
+        }
+        // Validation admits Poiseuille flow only in cylinders, slits and membranes.
+        (Some(_), _) => Flow::Still,
     }
 }
 
