@@ -66,6 +66,7 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             "model_table": tables[0].entries,
             "warnings": warnings,
             "memory_estimate_bytes": report.memory_estimate_bytes,
+            "drive": report.drive,
         });
         if let Some(c) = &confinement {
             // The first species' values at the top level; every species under "confinement".
@@ -204,6 +205,26 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             );
             if let Some(h) = &p.hindrance {
                 println!("    hindrance  {}", hindrance_line(h));
+            }
+        }
+    }
+    for d in &report.drive {
+        let f = d.force_pn;
+        if f != [0.0; 3] {
+            let v = d.free_drift_m_per_s;
+            let height = d
+                .height_scale_nm
+                .map(|h| format!("; k_BT/|F_z| = {h:.4e} nm (barometric height against a floor)"))
+                .unwrap_or_default();
+            println!(
+                "  force      species '{}': F = [{:.4e}, {:.4e}, {:.4e}] pN, free drift D0F/k_BT = [{:.4e}, {:.4e}, {:.4e}] m/s{height}",
+                d.species, f[0], f[1], f[2], v[0], v[1], v[2]
+            );
+        }
+        if !d.flow.is_empty() {
+            println!("  flow       species '{}':", d.species);
+            for p in &d.flow {
+                println!("    {:<58} {:.4e}  ({})", p.quantity, p.value, p.source);
             }
         }
     }

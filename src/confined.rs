@@ -120,22 +120,31 @@ fn run_summary(r: &MembraneAnalysis) -> String {
         "    net flux through the slab, particles/s   {}\n",
         r.flux_particles_per_s.describe(4)
     ));
-    s.push_str(&format!(
-        "    membrane permeability, m/s               {}\n",
-        r.permeability_m_per_s.describe(4)
-    ));
-    if let Some(st) = r.steric_permeability_m_per_s {
+    if r.filtration.is_some() {
+        s.push_str("    membrane permeability                    not measured under filtration (run the membrane without [flow] and a clean permeate)\n");
+    } else {
         s.push_str(&format!(
-            "      steric model with pore ends, m/s       {st:.4e}\n"
+            "    membrane permeability, m/s               {}\n",
+            r.permeability_m_per_s.describe(4)
+        ));
+        if let Some(st) = r.steric_permeability_m_per_s {
+            s.push_str(&format!(
+                "      steric model with pore ends, m/s       {st:.4e}\n"
+            ));
+        }
+        s.push_str(&format!(
+            "    hindrance H = P L / (eps D0)             {}\n",
+            r.hindrance.describe_fixed(4)
         ));
     }
     s.push_str(&format!(
-        "    hindrance H = P L / (eps D0)             {}\n",
-        r.hindrance.describe_fixed(4)
-    ));
-    s.push_str(&format!(
-        "    partition K (pores / mean bath)          {}\n",
-        r.partition.describe_fixed(4)
+        "    partition K (pores / mean bath)          {}{}\n",
+        r.partition.describe_fixed(4),
+        if r.filtration.is_some() {
+            "  (under flow: not the equilibrium value)"
+        } else {
+            ""
+        }
     ));
     s.push_str(&format!(
         "    steric partition coefficient             {:.4}\n",

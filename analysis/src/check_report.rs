@@ -8,6 +8,7 @@ use crate::models::{self, ModelError};
 use crate::run_length::{long_time_regime, RegimeEstimate};
 use serde::Serialize;
 use thicket_engine::obstacles::spheres::{Estimate, FixedObstacles, Region};
+use thicket_engine::scenario::drive::FlowSpec;
 use thicket_engine::scenario::media::ObstacleSpec;
 use thicket_engine::space::shape::Shape;
 use thicket_engine::{EngineError, Scenario};
@@ -43,6 +44,36 @@ pub struct CheckReport {
     pub species: Vec<SpeciesCheck>,
     /// λ, partition and hindrance per species when there is a geometry.
     pub confinement: Option<Vec<SpeciesConfinement>>,
+    /// Forces and flow per species (empty when nothing drives the particles).
+    pub drive: Vec<SpeciesDrive>,
+}
+
+/// What pushes or carries one species, and what published transport
+/// results predict for it.
+#[derive(Debug, Clone, Serialize)]
+pub struct SpeciesDrive {
+    /// Species name.
+    pub species: String,
+    /// Total constant force [x, y, z], pN.
+    pub force_pn: [f64; 3],
+    /// Drift velocity in free solution D0 F/k_BT, m/s (Einstein).
+    pub free_drift_m_per_s: [f64; 3],
+    /// k_BT/|F_z|, nm: the height scale of the barometric profile against
+    /// a floor (exact, Boltzmann), when a force acts along z.
+    pub height_scale_nm: Option<f64>,
+    /// Flow quantities and predictions, each with its source.
+    pub flow: Vec<Prediction>,
+}
+
+/// One predicted or derived number with where it comes from.
+#[derive(Debug, Clone, Serialize)]
+pub struct Prediction {
+    /// What it is.
+    pub quantity: String,
+    /// Its value.
+    pub value: f64,
+    /// Source, or how it follows.
+    pub source: String,
 }
 
 /// The fixed obstacles and the volume fraction they achieve.
@@ -316,7 +347,117 @@ pub fn check_report(scenario: &Scenario) -> Result<CheckReport, CheckError> {
         },
         species,
         confinement: confinement(scenario)?,
+        drive: drive(scenario),
     })
+}
+
+/// Forces and flow of each species with the predictions that apply.
+fn drive(scenario: &Scenario) -> Vec<SpeciesDrive> {
+    if !scenario.is_driven() {
+        return Vec::new();
+    }
+    let kt = scenario.thermal_energy_pn_nm();
+    let shape = scenario.geometry.as_ref().map(|g| &g.shape);
+    let hydro = scenario
+        .geometry
+        .as_ref()
+        .is_some_and(|g| g.hydrodynamics.is_some());
+    scenario
+        .species
+        .iter()
+        .map(|s| {
+            let d0 = s.d0_nm2_per_s();
+            let a = s.radius_nm;
+            let mut flow = Vec::new();
+            let mut say = |quantity: &str, value: f64, source: &str| {
+                flow.push(Prediction {
+                    quantity: quantity.into(),
+                    value,
+                    source: source.into(),
+                })
+            };
+            match (scenario.flow, shape) {
+                (None, _) => {}
+                (Some(FlowSpec::Shear { rate_per_s }), _) => {
+                    say("shear rate, 1/s", rate_per_s, "given");
+                    say(
+                        "shear Péclet number γ̇a²/D0",
+                        rate_per_s * a * a / d0,
+                        "definition",
+                    );
+                    say(
+                        "time at which shear doubles the variance along x, s",
+                        (3.0_f64).sqrt() / rate_per_s,
+                        "⟨Δx²⟩ = 2D0t(1 + γ̇²t²/3) about the mean drift (exact for particles that do not interact)",
+                    );
+                }
+                (Some(FlowSpec::Poiseuille { mean_velocity_nm_per_s: v }), Some(Shape::Cylinder { radius_nm: r, .. })) => {
+                    let lambda = a / r;
+                    say("mean fluid velocity V, m/s", v * 1e-9, "given or Hagen–Poiseuille V = G R²/(8η)");
+                    say("radial Péclet number VR/D0", v * r / d0, "definition (Taylor–Aris)");
+                    if hydro {
+                        if let Ok(kc) = models::dechadilok_deen_kc(lambda) {
+                            say("mean particle velocity, m/s", v * kc * 1e-9, "V·K_c, Dechadilok & Deen (2006) (the cylinder model's lag is fitted to it)");
+                        }
+                    } else if let Ok(kc) = models::lag_free_kc_cylinder(lambda) {
+                        say("mean particle velocity, m/s", v * kc * 1e-9, "V(2 − Φ): Poiseuille flow averaged over the section the centre samples (exact without lag)");
+                        let b = r - a;
+                        let pe = v * b * b / (r * r) * b / d0;
+                        say(
+                            "long-time axial dispersion D_eff/D0",
+                            1.0 + pe * pe / 48.0,
+                            "Taylor (1953), Aris (1956): 1 + Pe²/48 for the profile the centre samples, Pe = V b³/(R² D0), b = R − a (exact asymptote without lag)",
+                        );
+                    }
+                }
+                (Some(FlowSpec::Poiseuille { mean_velocity_nm_per_s: v }), Some(Shape::Slit { width_nm })) => {
+                    let h = 0.5 * width_nm;
+                    say("mean fluid velocity V, m/s", v * 1e-9, "given or Hagen–Poiseuille V = G w²/(12η)");
+                    say("Péclet number Vh/D0 (h the half-width)", v * h / d0, "definition");
+                    if !hydro {
+                        if let Ok(kc) = models::lag_free_kc_slit(a / h) {
+                            say("mean particle velocity, m/s", v * kc * 1e-9, "plane Poiseuille flow averaged over the section the centre samples (exact without lag)");
+                        }
+                    }
+                }
+                (Some(f), Some(Shape::Membrane(m))) => {
+                    let r = m.pores.iter().map(|p| p.radius_nm).fold(f64::INFINITY, f64::min);
+                    let lambda = a / r;
+                    let length = m.thickness_nm();
+                    if let Some(v) = f.pore_mean_velocity_nm_per_s(r) {
+                        say("mean pore velocity v, m/s", v * 1e-9, "given or Hagen–Poiseuille v = ΔP R²/(8ηL) in the narrowest pore");
+                        if let Some(jv) = f.membrane_volume_flux_nm_per_s(m) {
+                            say("volume flux J_v, m/s", jv * 1e-9, "Σ π R_i² v_i / A");
+                        }
+                        let phi = models::partition_cylinder(lambda).unwrap_or(f64::NAN);
+                        let mut deen = |kd: f64, kc: f64, label: &str| {
+                            if let Ok(pe) = models::membrane_peclet(kc, kd, v, length, d0) {
+                                say(&format!("membrane Péclet K_c vL/(K_d D0), {label}"), pe, "Deen (1987)");
+                                if let Ok(sv) = models::deen_sieving_coefficient(phi, kc, pe) {
+                                    say(&format!("sieving coefficient, {label}"), sv, "Deen (1987): ΦK_c/(1 − (1 − ΦK_c)e^(−Pe))");
+                                }
+                            }
+                        };
+                        if let Ok(kc) = models::lag_free_kc_cylinder(lambda) {
+                            deen(1.0, kc, "this run's steric pores (K_d = 1, K_c = 2 − Φ)");
+                        }
+                        if let (Ok(h), Ok(kc)) = (models::dechadilok_deen_hindrance(lambda), models::dechadilok_deen_kc(lambda)) {
+                            deen(h / phi, kc, "pores with wall hydrodynamics (Dechadilok & Deen 2006 K_d, K_c)");
+                        }
+                    }
+                }
+                (Some(_), _) => {}
+            }
+            let free_drift = scenario.force_drift_nm(s).map(|x| x / scenario.dt_s * 1e-9);
+            SpeciesDrive {
+                species: s.name.clone(),
+                force_pn: s.force_pn,
+                free_drift_m_per_s: free_drift,
+                height_scale_nm: (s.force_pn[2] != 0.0).then(|| kt / s.force_pn[2].abs()),
+                flow,
+            }
+        })
+        .collect()
 }
 
 /// λ, partition and hindrance of each species in the scenario's geometry.
@@ -353,11 +494,18 @@ fn confinement(scenario: &Scenario) -> Result<Option<Vec<SpeciesConfinement>>, C
                     .map(|p| p.radius_nm)
                     .fold(f64::INFINITY, f64::min);
                 let lambda = a / r_min;
-                (
-                    Some(lambda),
-                    Some(m.steric_partition(a)),
-                    Some(cylinder_hindrance(lambda)),
-                )
+                let mut h = cylinder_hindrance(lambda);
+                if let (Some(v), Some(kd), Some(kc)) = (
+                    scenario
+                        .flow
+                        .and_then(|f| f.pore_mean_velocity_nm_per_s(r_min)),
+                    h.kd.value,
+                    h.kc.value,
+                ) {
+                    h.peclet =
+                        models::membrane_peclet(kc, kd, v, m.thickness_nm(), s.d0_nm2_per_s()).ok();
+                }
+                (Some(lambda), Some(m.steric_partition(a)), Some(h))
             }
         };
         out.push(SpeciesConfinement {

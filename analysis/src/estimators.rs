@@ -254,6 +254,9 @@ pub struct Report {
     pub model_table: Vec<crate::model_table::ModelValue>,
     /// Everything the reader should know before trusting the numbers.
     pub warnings: Vec<String>,
+    /// Under a force or a flow: the mean velocity per axis over the fit
+    /// window's longest lag, m/s (the MSD is then taken about it).
+    pub mean_velocity_m_per_s: Option<Vec<f64>>,
     /// The curves behind the numbers: MSD per axis, α(τ), van Hove.
     pub curves: Option<crate::curves::Curves>,
 }
@@ -412,7 +415,8 @@ pub fn analyze_parts(
             ));
         }
     }
-    let msd_options = if options.msd.van_hove_lags.is_empty() {
+    let driven = scenario.as_ref().is_some_and(|s| s.is_driven());
+    let mut msd_options = if options.msd.van_hove_lags.is_empty() {
         crate::msd::MsdOptions {
             van_hove_lags: crate::curves::default_van_hove_lags(meta.frames),
             ..options.msd.clone()
@@ -420,6 +424,8 @@ pub fn analyze_parts(
     } else {
         options.msd.clone()
     };
+    // Under a force or a flow the MSD grows like (vτ)²: fit the spread about the drift instead.
+    msd_options.remove_mean_drift |= driven;
     let msd = crate::msd::compute_msd_joined(&readers, &msd_options)?;
     if msd.suspicious_jumps > 0 {
         warnings.push(format!(
@@ -538,9 +544,32 @@ pub fn analyze_parts(
         models: table.d_eff_over_d0(),
         model_table: table.entries,
         warnings,
+        mean_velocity_m_per_s: None,
         curves: None,
     };
     let mut report = report;
+    if msd.drift_removed {
+        // The drift over the longest lag of the fit window, per axis.
+        let i = msd
+            .lag_times_s
+            .iter()
+            .rposition(|&t| t <= report.fit_window_s[1])
+            .unwrap_or(0);
+        let v: Vec<f64> = msd
+            .mean_displacement_axes_nm
+            .iter()
+            .map(|a| a[i] / msd.lag_times_s[i] * 1e-9)
+            .collect();
+        report.mean_velocity_m_per_s = Some(v.clone());
+        report.warnings.push(format!(
+            "a force or a flow drives this species: the MSD is taken about the mean drift (its variance), so D_eff is the \
+             dispersion coefficient along the chosen axes (Taylor–Aris in a pore flow), not the self-diffusivity of a still \
+             medium; mean velocity [x, y, z] = [{:.4e}, {:.4e}, {:.4e}] m/s",
+            v.first().copied().unwrap_or(0.0),
+            v.get(1).copied().unwrap_or(0.0),
+            v.get(2).copied().unwrap_or(0.0)
+        ));
+    }
     report.curves = Some(crate::curves::curves(&msd, &report));
     Ok(Analysis {
         report,

@@ -1023,49 +1023,61 @@ impl MembraneAnalysis {
             "  flux at the given concentrations, mol/m2/s {}",
             self.flux_density_at_given_mol_per_m2_s.describe(4)
         );
-        let _ = writeln!(
-            w,
-            "  permeability bath to bath, m/s             {}",
-            self.permeability_bath_to_bath_m_per_s.describe(4)
-        );
-        let _ = writeln!(
-            w,
-            "  membrane permeability P_m, m/s             {}",
-            self.permeability_m_per_s.describe(4)
-        );
-        if let Some(st) = self.steric_permeability_m_per_s {
+        if self.filtration.is_some() {
             let _ = writeln!(
                 w,
-                "    steric model (pore ends, Φ), m/s         {st:.4e}{}",
-                if self.wall_hydrodynamics {
-                    "  (no wall hydrodynamics in this model)"
-                } else {
-                    ""
-                }
+                "  permeability                               not measured under filtration (run the membrane without [flow] and a clean permeate)"
             );
-        }
-        if let Some(pl) = self.plain_steric_permeability_m_per_s {
-            let _ = writeln!(w, "    plain steric eps Φ D0/L, m/s             {pl:.4e}");
-        }
-        if let Some(r) = &self.permeability_over_steric {
+        } else {
             let _ = writeln!(
                 w,
-                "    P_m / steric model                       {}",
-                r.describe_fixed(4)
+                "  permeability bath to bath, m/s             {}",
+                self.permeability_bath_to_bath_m_per_s.describe(4)
             );
+            let _ = writeln!(
+                w,
+                "  membrane permeability P_m, m/s             {}",
+                self.permeability_m_per_s.describe(4)
+            );
+            if let Some(st) = self.steric_permeability_m_per_s {
+                let _ = writeln!(
+                    w,
+                    "    steric model (pore ends, Φ), m/s         {st:.4e}{}",
+                    if self.wall_hydrodynamics {
+                        "  (no wall hydrodynamics in this model)"
+                    } else {
+                        ""
+                    }
+                );
+            }
+            if let Some(pl) = self.plain_steric_permeability_m_per_s {
+                let _ = writeln!(w, "    plain steric eps Φ D0/L, m/s             {pl:.4e}");
+            }
+            if let Some(r) = &self.permeability_over_steric {
+                let _ = writeln!(
+                    w,
+                    "    P_m / steric model                       {}",
+                    r.describe_fixed(4)
+                );
+            }
+            let _ = writeln!(
+                w,
+                "  hindrance H = P_m L/(eps D0)               {}",
+                self.hindrance.describe_fixed(4)
+            );
+            for (k, v) in &self.hindrance_models {
+                let _ = writeln!(w, "    {k:<41}{v:.4}");
+            }
         }
         let _ = writeln!(
             w,
-            "  hindrance H = P_m L/(eps D0)               {}",
-            self.hindrance.describe_fixed(4)
-        );
-        for (k, v) in &self.hindrance_models {
-            let _ = writeln!(w, "    {k:<41}{v:.4}");
-        }
-        let _ = writeln!(
-            w,
-            "  partition K (pores / mean bath)            {}",
-            self.partition.describe_fixed(4)
+            "  partition K (pores / mean bath)            {}{}",
+            self.partition.describe_fixed(4),
+            if self.filtration.is_some() {
+                "  (under flow: not the equilibrium value)"
+            } else {
+                ""
+            }
         );
         let _ = writeln!(
             w,

@@ -72,6 +72,12 @@ pub struct MsdOptions {
     /// Memory budget for one block of positions in bytes. By default,
     /// [`DEFAULT_MEMORY_BUDGET_BYTES`].
     pub memory_budget_bytes: usize,
+    /// Subtract the square of the ensemble-mean displacement at each lag
+    /// from every MSD curve, leaving the variance of the displacement about
+    /// the mean drift (under a force or a flow the MSD grows ballistically
+    /// with the drift; its variance grows like 2Dτ, D the dispersion
+    /// coefficient). By default, false.
+    pub remove_mean_drift: bool,
 }
 
 impl Default for MsdOptions {
@@ -84,6 +90,7 @@ impl Default for MsdOptions {
             van_hove_lags: Vec::new(),
             van_hove_bins: 101,
             memory_budget_bytes: DEFAULT_MEMORY_BUDGET_BYTES,
+            remove_mean_drift: false,
         }
     }
 }
@@ -185,6 +192,11 @@ pub struct Msd {
     /// Suspicious frame-to-frame jumps seen by the reader (see
     /// [`ParticleBlock::suspicious_jumps`]).
     pub suspicious_jumps: usize,
+    /// Ensemble mean of the time-averaged displacement, `[axis][lag]`, nm:
+    /// the drift (zero on average without a force or a flow).
+    pub mean_displacement_axes_nm: Vec<Vec<f64>>,
+    /// True when the MSD curves are variances about that mean drift.
+    pub drift_removed: bool,
 }
 
 /// Local exponent α(τ) = d ln MSD / d ln τ on the lag grid.
@@ -583,6 +595,13 @@ pub struct MsdAccumulator {
     suspicious_jumps: usize,
     series: Vec<Vec<f64>>,
     ta: Vec<Vec<f64>>,
+    /// Sums over particles of the time-averaged displacement, `[axis][lag]`.
+    drift_sums: Vec<Vec<f64>>,
+    /// The same per group, `[group][axis][lag]`.
+    group_drift_sums: Vec<Vec<Vec<f64>>>,
+    /// Sums over particles of the displacement from frame 0, `[axis][lag]`.
+    origin_drift_sums: Vec<Vec<f64>>,
+    remove_mean_drift: bool,
 }
 
 impl MsdAccumulator {
@@ -662,6 +681,10 @@ impl MsdAccumulator {
             suspicious_jumps: 0,
             series: vec![Vec::with_capacity(frames); dims],
             ta: vec![vec![0.0; l]; dims],
+            drift_sums: vec![vec![0.0; l]; dims],
+            group_drift_sums: vec![vec![vec![0.0; l]; dims]; groups],
+            origin_drift_sums: vec![vec![0.0; l]; dims],
+            remove_mean_drift: options.remove_mean_drift,
         })
     }
 
@@ -792,6 +815,22 @@ impl MsdAccumulator {
             }
         }
         self.group_counts[g] += 1;
+        // Mean displacement over origins at each lag, from prefix sums: (P[F] − P[m] − P[F − m])/(F − m).
+        let f = self.frames;
+        for a in 0..dims {
+            let x = &self.series[a];
+            let mut prefix = Vec::with_capacity(f + 1);
+            prefix.push(0.0);
+            for v in x {
+                prefix.push(prefix.last().copied().unwrap_or(0.0) + v);
+            }
+            for (i, &m) in self.lags.iter().enumerate() {
+                let mean = (prefix[f] - prefix[m] - prefix[f - m]) / (f - m) as f64;
+                self.drift_sums[a][i] += mean;
+                self.group_drift_sums[g][a][i] += mean;
+                self.origin_drift_sums[a][i] += x[m] - x[0];
+            }
+        }
         // MSD from the first frame.
         for (i, &m) in self.lags.iter().enumerate() {
             let mut r2 = 0.0;
@@ -851,23 +890,67 @@ impl MsdAccumulator {
             }
         }
         ta.iter_mut().flatten().for_each(|v| *v /= n);
+        let mean_displacement: Vec<Vec<f64>> = self
+            .drift_sums
+            .iter()
+            .map(|axis| axis.iter().map(|v| v / n).collect())
+            .collect();
+        let origin_mean: Vec<Vec<f64>> = self
+            .origin_drift_sums
+            .iter()
+            .map(|axis| axis.iter().map(|v| v / n).collect())
+            .collect();
+        // Variance about the drift: each curve less the square of its own particles' mean displacement
+        // (a group's, for a group curve), so that the large cross term 2⟨u⟩τ²·δu of each set's own
+        // mean-velocity fluctuation cancels within the set (a fixed ensemble mean² would leave it in).
+        let remove = self.remove_mean_drift;
+        if remove {
+            for a in 0..dims {
+                for i in 0..l {
+                    ta[a][i] -= mean_displacement[a][i] * mean_displacement[a][i];
+                }
+            }
+        }
         let groups = self
             .group_sums
             .iter()
+            .zip(&self.group_drift_sums)
             .zip(&self.group_counts)
             .filter(|(_, &c)| c > 0)
-            .map(|(sums, &c)| MsdGroup {
+            .map(|((sums, drifts), &c)| MsdGroup {
                 particles: c,
                 axes_nm2: sums
                     .iter()
-                    .map(|axis| axis.iter().map(|v| v / c as f64).collect())
+                    .zip(drifts)
+                    .map(|(axis, drift)| {
+                        axis.iter()
+                            .zip(drift)
+                            .map(|(v, d)| {
+                                let m = if remove { d / c as f64 } else { 0.0 };
+                                v / c as f64 - m * m
+                            })
+                            .collect()
+                    })
                     .collect(),
             })
             .collect();
         let origin_axes: Vec<Vec<f64>> = self
             .origin_sums
             .iter()
-            .map(|axis| axis.iter().map(|v| v / n).collect())
+            .enumerate()
+            .map(|(a, axis)| {
+                axis.iter()
+                    .enumerate()
+                    .map(|(i, v)| {
+                        let m = if self.remove_mean_drift {
+                            origin_mean[a][i]
+                        } else {
+                            0.0
+                        };
+                        v / n - m * m
+                    })
+                    .collect()
+            })
             .collect();
         let origin_total = sum_axes(&origin_axes);
         let origin_total_se_nm2 = origin_total
@@ -935,6 +1018,8 @@ impl MsdAccumulator {
             van_hove,
             non_gaussian,
             suspicious_jumps: self.suspicious_jumps,
+            mean_displacement_axes_nm: mean_displacement,
+            drift_removed: self.remove_mean_drift,
         })
     }
 }

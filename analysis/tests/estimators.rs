@@ -272,6 +272,7 @@ fn transient_msd(seed: u64) -> (Msd, f64) {
                 .collect()
         })
         .collect();
+    let lags_len = lags.len();
     let msd = Msd {
         frames,
         particles: 16,
@@ -288,6 +289,8 @@ fn transient_msd(seed: u64) -> (Msd, f64) {
         van_hove: vec![],
         non_gaussian: vec![],
         suspicious_jumps: 0,
+        mean_displacement_axes_nm: vec![vec![0.0; lags_len]; 3],
+        drift_removed: false,
     };
     (msd, d * 1e-18)
 }

@@ -541,6 +541,20 @@ impl Scenario {
                 ));
             }
         }
+        for s in &self.species {
+            // A force pushes across walls and contacts: its drift per step must stay below the features they resolve.
+            let force = self.force_drift_nm(s);
+            let drift = force.iter().map(|f| f * f).sum::<f64>().sqrt();
+            let feature = self.smallest_feature_nm(s);
+            if drift > STEP_WARNING_FRACTION * feature {
+                out.push(format!(
+                    "species '{}': its force moves it {:.4} nm per step, more than a tenth of the smallest feature \
+                     ({} nm: radius at a wall, else a contact distance); a smaller integrator.dt_s keeps the drift \
+                     resolved there (common practice)",
+                    s.name, drift, feature
+                ));
+            }
+        }
         if let Some(c) = self
             .camera
             .as_ref()
