@@ -1,6 +1,9 @@
 //! Slit throughput: particle-steps per second with hydrodynamic wall
 //! corrections (position-dependent D∥, D⊥ and the Itô drift) against the same
 //! slit without them, on one and two threads. Target: corrections cost ≤ 2×.
+//! Then a cylindrical pore with the cylinder model and Poiseuille flow
+//! against the same pore without either (target ≤ 2×), and the curved
+//! geometries for reference.
 //!
 //! Run with `cargo bench --bench confinement`. Figures are best-of-five in one
 //! process, the two settings timed in turn, and compared as ratios. Beside
@@ -17,11 +20,11 @@ const COUNT: usize = 200_000;
 const STEPS: u64 = 200;
 
 /// A scenario of 2 nm beads with the given box and `[geometry]` body.
-fn scenario(edges: &str, geometry: &str, hydro: bool) -> Scenario {
+fn scenario(edges: &str, geometry: &str, hydro: bool, extra: &str) -> Scenario {
     let text = format!(
         "seed = 17\n[medium]\ntemperature_K = 298.15\n[box]\nedges_nm = {edges}\n\
          [[species]]\nname = \"bead\"\nradius_nm = 2.0\ncount = {COUNT}\n[integrator]\ndt_s = 1e-10\nsteps = {STEPS}\n\
-         [output]\nrecord_every_steps = {STEPS}\n[geometry]\n{geometry}\nwall_hydrodynamics = {hydro}\n"
+         [output]\nrecord_every_steps = {STEPS}\n[geometry]\n{geometry}\nwall_hydrodynamics = {hydro}\n{extra}"
     );
     Scenario::from_text(&text, Path::new("bench.toml"), &[]).expect("bench scenario is valid")
 }
@@ -52,6 +55,9 @@ fn cpu_ns() -> u64 {
     ticks * 10_000_000
 }
 
+/// Poiseuille flow of mean velocity 1 mm/s (V R/D0 ≈ 0.1 for the bead).
+const FLOW: &str = "[flow]\nkind = \"poiseuille\"\nmean_velocity_m_per_s = 1e-3\n";
+
 /// Best of `repeats` timings of `STEPS` steps, in particle-steps/s, for
 /// every thread count of `threads` × [without, with] corrections; all
 /// variants are timed in turn, round after round, so that load from
@@ -59,6 +65,19 @@ fn cpu_ns() -> u64 {
 /// [[wall, cpu] without, [wall, cpu] with].
 fn throughput(
     (edges, geometry): (&str, &str),
+    threads: &[usize],
+    repeats: usize,
+) -> Vec<[[f64; 2]; 2]> {
+    throughput_of(
+        [(edges, geometry, false, ""), (edges, geometry, true, "")],
+        threads,
+        repeats,
+    )
+}
+
+/// As [`throughput`] for two given settings (box, geometry, hydrodynamics, further sections).
+fn throughput_of(
+    settings: [(&str, &str, bool, &str); 2],
     threads: &[usize],
     repeats: usize,
 ) -> Vec<[[f64; 2]; 2]> {
@@ -71,10 +90,10 @@ fn throughput(
                 .expect("thread pool")
         })
         .collect();
-    let mut runs: Vec<_> = [false, true]
+    let mut runs: Vec<_> = settings
         .iter()
-        .map(|&hydro| {
-            let s = scenario(edges, geometry, hydro);
+        .map(|&(edges, geometry, hydro, extra)| {
+            let s = scenario(edges, geometry, hydro, extra);
             let c = Stepper::new(&s, &thicket_engine::obstacles::FixedObstacles::default());
             let state = c.initial_state(&s).expect("placement");
             (c, state)
@@ -118,6 +137,28 @@ fn main() {
         "  speed-up on two threads (wall clock): {:.2}× without, {:.2}× with corrections",
         p2[0] / p1[0],
         h2[0] / h1[0]
+    );
+    // The issue's target: a pore with the cylinder model and flow against the plain steric pore.
+    let (edges, geometry) = PORE;
+    let [plain, full] = throughput_of(
+        [(edges, geometry, false, ""), (edges, geometry, true, FLOW)],
+        &[2],
+        5,
+    )[0];
+    let [_, hydro_only] = throughput_of(
+        [(edges, geometry, false, FLOW), (edges, geometry, true, "")],
+        &[2],
+        5,
+    )[0];
+    println!(
+        "  cylindrical pore r = 10 nm, 2 threads: steric {:6.1} M/s, cylinder model + Poiseuille flow {:6.1} M/s \
+         → {:.2}× wall, {:.2}× CPU (target ≤ 2×); cylinder model alone {:6.1} M/s ({:.2}× wall)",
+        plain[0] / 1e6,
+        full[0] / 1e6,
+        plain[0] / full[0],
+        plain[1] / full[1],
+        hydro_only[0] / 1e6,
+        plain[0] / hydro_only[0]
     );
     // For reference: the curved geometries, whose steps look up the nearest wall.
     for (name, g) in [

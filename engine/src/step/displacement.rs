@@ -405,18 +405,62 @@ impl Displacement for NearestWall {
     }
 }
 
+/// Intervals of a pore's radial table (uniform in ρ², fine enough that the
+/// √h behaviour next to the wall falls inside the first interval, h < (R − a)/8192·2).
+pub const RADIAL_INTERVALS: usize = 8192;
+
+/// One species' mobility in a pore tabulated against ρ² (uniform), so the
+/// step needs neither a square root nor a table in √h: values are even in
+/// ρ and smooth in ρ² on the axis, and the grid is uniform in the gap h
+/// next to the wall.
+#[derive(Debug, Clone)]
+pub struct RadialTable<const N: usize> {
+    inverse_step: f64,
+    nodes: Vec<[f32; N]>,
+}
+
+impl<const N: usize> RadialTable<N> {
+    /// Tabulates `f(ρ)` for ρ in [0, ρ_max] on a grid uniform in ρ².
+    pub fn build(rho_max_nm: f64, f: impl Fn(f64) -> [f64; N]) -> Self {
+        let step = rho_max_nm * rho_max_nm / RADIAL_INTERVALS as f64;
+        let nodes = (0..=RADIAL_INTERVALS + 1)
+            .map(|i| f((i as f64 * step).sqrt().min(rho_max_nm)).map(|v| v as f32))
+            .collect();
+        Self {
+            inverse_step: 1.0 / step,
+            nodes,
+        }
+    }
+
+    /// Interpolated values at ρ² = `rho2_nm2` (clamped to the table).
+    #[inline(always)]
+    pub fn eval(&self, rho2_nm2: f64) -> [f64; N] {
+        let t = (rho2_nm2 * self.inverse_step).min(RADIAL_INTERVALS as f64);
+        let i = t as usize;
+        let f = t - i as f64;
+        let (a, b) = (&self.nodes[i], &self.nodes[i + 1]);
+        std::array::from_fn(|k| {
+            let (a, b) = (f64::from(a[k]), f64::from(b[k]));
+            a + f * (b - a)
+        })
+    }
+}
+
 /// Wall hydrodynamics in a cylindrical pore along z: the position-dependent
 /// tensor of a sphere in a cylinder (`space::pore_hydro`), D = D0 (f_r e_r e_r
 /// + f_θ e_θ e_θ + f_z e_z e_z), with the Itô drift (∇·D)_r along e_r.
+///
+/// Across the axis the step is D^½ξ = σ_θ ξ + (σ_r − σ_θ)(ξ·d) d/ρ² with
+/// d = (x − x_axis, y − y_axis), and the drift is (drift_r/ρ)·d: no square
+/// root, one division.
 #[derive(Debug, Clone)]
 pub struct PoreTensor {
-    /// Nodes [σ_z, σ_r, σ_θ, (∇·D)_r Δt, U Δt] against the gap
-    /// h = (R − a) − r, U the particle's axial velocity in the flow.
-    pub table: MobilityTable,
+    /// Nodes [σ_z, σ_r − σ_θ, σ_θ, (∇·D)_r Δt/ρ, U Δt] against ρ², U the
+    /// particle's axial velocity in the flow (σ in nm, the drift over ρ
+    /// dimensionless).
+    pub table: RadialTable<5>,
     /// Axis position (x, y), nm.
     pub axis_nm: [f64; 2],
-    /// R − a, nm: the largest distance of the centre from the axis.
-    pub open_nm: f64,
     /// Whether the Itô drift is applied.
     pub ito_drift: bool,
     /// The species' force drift D0 Δt F/k_BT, nm, scaled by f_r, f_θ, f_z.
@@ -439,28 +483,32 @@ impl Displacement for PoreTensor {
     fn draw(&self, x: &[f64; 3], _n: &[i32; 3], g: &mut ParticleRng) -> [f64; 3] {
         let xi = [standard_normal(g), standard_normal(g), standard_normal(g)];
         let (dx, dy) = (x[0] - self.axis_nm[0], x[1] - self.axis_nm[1]);
-        let rho = (dx * dx + dy * dy).sqrt();
-        let v = self.table.eval(self.open_nm - rho);
-        // On the axis f_r = f_θ, so any radial direction serves.
-        let (c, s) = if rho > 0.0 {
-            (dx / rho, dy / rho)
-        } else {
-            (1.0, 0.0)
-        };
+        let rho2 = dx * dx + dy * dy;
+        let v = self.table.eval(rho2);
+        // On the axis σ_r = σ_θ, so the projection term vanishes there.
+        let inverse_rho2 = if rho2 > 0.0 { 1.0 / rho2 } else { 0.0 };
+        let along = (xi[0] * dx + xi[1] * dy) * inverse_rho2 * v[1];
         let drift = if self.ito_drift { v[3] } else { 0.0 };
-        let mut radial = drift + v[1] * xi[0];
-        let mut around = v[2] * xi[1];
-        let mut axial = v[0] * xi[2];
+        let radial = along + drift;
+        let mut d = [
+            v[2] * xi[0] + radial * dx,
+            v[2] * xi[1] + radial * dy,
+            v[0] * xi[2],
+        ];
         if self.flowing {
-            axial += v[4];
+            d[2] += v[4];
         }
         let f = &self.force_nm;
         if *f != [0.0; 3] {
+            // (f_θ I + (f_r − f_θ) e_r e_r) F across, f_z F_z along.
             let w = self.inverse_variance;
-            radial += v[1] * v[1] * w * (f[0] * c + f[1] * s);
-            around += v[2] * v[2] * w * (f[1] * c - f[0] * s);
-            axial += v[0] * v[0] * w * f[2];
+            let (s_r, s_t) = (v[1] + v[2], v[2]);
+            let (f_r, f_t) = (s_r * s_r * w, s_t * s_t * w);
+            let proj = (f[0] * dx + f[1] * dy) * inverse_rho2 * (f_r - f_t);
+            d[0] += f_t * f[0] + proj * dx;
+            d[1] += f_t * f[1] + proj * dy;
+            d[2] += v[0] * v[0] * w * f[2];
         }
-        [radial * c - around * s, radial * s + around * c, axial]
+        d
     }
 }

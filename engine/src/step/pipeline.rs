@@ -30,7 +30,7 @@ use crate::step::contact::{Contact, NoContact, Reflect, Reject};
 use crate::step::crowd::{place_crowd, Crowd};
 use crate::step::displacement::{
     Displacement, Drive, Driven, Flow, Isotropic, MobilityTable, NearestWall, PlanarWalls,
-    PoreTensor,
+    PoreTensor, RadialTable,
 };
 use crate::step::state::{draw_starts, kinetics, Kinetics, State};
 use rayon::prelude::*;
@@ -670,22 +670,31 @@ fn pore_tensor(
     let m = CylinderMobility::new(a / r, model).expect("validated: the tracer fits the pore");
     let d0_dt = 0.5 * sigma * sigma;
     let open = r - a;
-    let table = MobilityTable::build(a, open, |h| {
-        let beta = ((open - h) / r).max(0.0);
-        let f = m.eval(beta);
-        [
-            sigma * f.axial.max(0.0).sqrt(),
+    let table = RadialTable::build(open, |rho| {
+        let f = m.eval(rho / r);
+        let (s_r, s_t) = (
             sigma * f.radial.max(0.0).sqrt(),
             sigma * f.azimuthal.max(0.0).sqrt(),
-            // radial_drift is in units of D0/R.
-            f.radial_drift * d0_dt / r,
+        );
+        // radial_drift is in units of D0/R; over ρ it stays finite on the axis (it grows like ρ).
+        let drift = f.radial_drift * d0_dt / r;
+        let drift_over_rho = if rho > 0.0 {
+            drift / rho
+        } else {
+            let h = 1e-6 * open;
+            m.eval(h / r).radial_drift * d0_dt / r / h
+        };
+        [
+            sigma * f.axial.max(0.0).sqrt(),
+            s_r - s_t,
+            s_t,
+            drift_over_rho,
             mean_velocity_dt.unwrap_or(0.0) * f.velocity_over_mean,
         ]
     });
     PoreTensor {
         table,
         axis_nm: axis,
-        open_nm: open,
         ito_drift: true,
         force_nm: [0.0; 3],
         inverse_variance: 1.0 / (sigma * sigma),
