@@ -177,6 +177,17 @@ pub struct RawMedium {
     /// Density, kg/m³ (needed for buoyancy under `forces.gravity_m_per_s2`).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub density_kg_per_m3: Option<f64>,
+    /// Ionic strength of a 1:1 electrolyte, mol/L (sets the Debye length
+    /// of screened electrostatics).
+    #[serde(
+        rename = "ionic_strength_mol_per_L",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub ionic_strength_mol_per_l: Option<f64>,
+    /// Relative permittivity ε_r of the medium (screened electrostatics).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub relative_permittivity: Option<f64>,
 }
 
 /// `[box]`.
@@ -220,6 +231,23 @@ pub struct RawSpecies {
     /// Charge in elementary charges (force under `forces.electric_field_V_per_m`).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub charge_e: Option<f64>,
+    /// Surface potential, mV (screened electrostatics with charged walls).
+    #[serde(
+        rename = "surface_potential_mV",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub surface_potential_mv: Option<f64>,
+    /// Depth of a short-range attractive well at the walls, in k_BT.
+    #[serde(
+        rename = "wall_well_depth_kT",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub wall_well_depth_kt: Option<f64>,
+    /// Range of that well, nm.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub wall_well_range_nm: Option<f64>,
 }
 
 /// `[integrator]`.
@@ -361,6 +389,11 @@ impl Scenario {
     /// True when some species feels a force or a flow carries particles.
     pub fn is_driven(&self) -> bool {
         self.flow.is_some() || self.species.iter().any(|s| s.force_pn != [0.0; 3])
+    }
+
+    /// True when some species has a soft interaction with the walls.
+    pub fn has_wall_potentials(&self) -> bool {
+        self.species.iter().any(|s| !s.wall_potential.is_none())
     }
 
     /// True when some species has hard contacts with other particles.
@@ -890,6 +923,7 @@ impl RawScenario {
                 d0_explicit,
                 crowder,
                 force_pn: [0.0; 3],
+                wall_potential: Default::default(),
             });
         }
 
@@ -970,6 +1004,7 @@ impl RawScenario {
         let flow = self.validate_drive(
             file,
             &mut species,
+            temperature_k,
             geometry.as_ref(),
             viscosity_pa_s,
             obstacles.is_some() || fibres.is_some(),
@@ -1151,12 +1186,15 @@ impl RawScenario {
 }
 
 impl RawScenario {
-    /// Validates `[flow]`, `[forces]` and each species' force keys, storing
-    /// each species' total force; returns the flow.
+    /// Validates `[flow]`, `[forces]` and each species' force and wall
+    /// interaction keys, storing each species' total force and wall
+    /// potential; returns the flow.
+    #[allow(clippy::too_many_arguments)]
     fn validate_drive(
         &self,
         file: &Path,
         species: &mut [Species],
+        temperature_k: f64,
         geometry: Option<&Geometry>,
         viscosity_pa_s: f64,
         has_obstacles: bool,
@@ -1192,6 +1230,18 @@ impl RawScenario {
                 charge_e: raw.charge_e,
             };
             s.force_pn = species_force_pn(file, i, s, &keys, self.forces.as_ref(), medium_density)?;
+            s.wall_potential = crate::scenario::drive::species_wall_potential(
+                file,
+                i,
+                s,
+                raw,
+                &self.medium,
+                temperature_k,
+                geometry,
+                self.geometry
+                    .as_ref()
+                    .and_then(|g| g.wall_surface_potential_mv),
+            )?;
             if s.force_pn != [0.0; 3] {
                 let refuse = if s.crowder || has_crowders {
                     Some("forces are not available with crowders yet (the crowd's step has no drift)")
@@ -1211,6 +1261,24 @@ impl RawScenario {
                         reason,
                     ));
                 }
+            }
+        }
+        if let Some(psi) = self
+            .geometry
+            .as_ref()
+            .and_then(|g| g.wall_surface_potential_mv)
+        {
+            if self
+                .species
+                .iter()
+                .all(|s| s.surface_potential_mv.is_none())
+            {
+                return Err(invalid(
+                    file,
+                    "geometry.wall_surface_potential_mV",
+                    psi,
+                    "no species carries surface_potential_mV, so the walls' potential would act on nothing",
+                ));
             }
         }
         let Some(raw) = &self.flow else {

@@ -539,3 +539,159 @@ impl FlowSpec {
         Some(sum / m.area_nm2())
     }
 }
+
+/// The soft wall interaction of species `i`: screened electrostatics when
+/// it and the walls carry surface potentials, and a short-range well.
+///
+/// # Errors
+/// A potential on one side only, electrostatics without the medium's ionic
+/// strength and permittivity, a well without both depth and range, or a
+/// setting without walls that take it (named in the message).
+#[allow(clippy::too_many_arguments)]
+pub fn species_wall_potential(
+    file: &Path,
+    i: usize,
+    species: &Species,
+    raw: &crate::scenario::config::RawSpecies,
+    medium: &crate::scenario::config::RawMedium,
+    temperature_k: f64,
+    geometry: Option<&Geometry>,
+    wall_potential_mv: Option<f64>,
+) -> Result<crate::space::potentials::WallPotential> {
+    use crate::space::potentials::{debye_length_nm, WallPotential};
+    let key = |k: &str| format!("species[{i}].{k}");
+    let mut p = WallPotential::default();
+    let wants = raw.surface_potential_mv.is_some()
+        || raw.wall_well_depth_kt.is_some()
+        || raw.wall_well_range_nm.is_some();
+    if !wants {
+        return Ok(p);
+    }
+    let first_key = if raw.surface_potential_mv.is_some() {
+        "surface_potential_mV"
+    } else {
+        "wall_well_depth_kT"
+    };
+    let shape_ok = match geometry {
+        Some(g) => match &g.shape {
+            Shape::PlaneWall { .. } | Shape::Slit { .. } => true,
+            Shape::Cylinder { .. } => {
+                g.hydrodynamics.is_none() || g.pore_model == PoreModel::Cylinder
+            }
+            Shape::Membrane(_) => false,
+        },
+        None => false,
+    };
+    if !shape_ok {
+        return Err(invalid(
+            file,
+            key(first_key),
+            "(given)",
+            "wall interactions act at the walls of a [geometry] of kind \"plane_wall\" (the floor), \"slit\" or \"cylinder\" \
+             (with pore_mobility = \"cylinder\" under wall hydrodynamics); not in a membrane or an open box yet",
+        ));
+    }
+    if species.crowder {
+        return Err(invalid(
+            file,
+            key(first_key),
+            "(given)",
+            "wall interactions are not available for crowders yet",
+        ));
+    }
+    match (raw.surface_potential_mv, wall_potential_mv) {
+        (Some(psi), Some(psi_wall)) => {
+            let psi = finite_within(file, &key("surface_potential_mV"), psi, 1e3, "mV")?;
+            let psi_wall = finite_within(file, "geometry.wall_surface_potential_mV", psi_wall, 1e3, "mV")?;
+            let ionic = medium.ionic_strength_mol_per_l.ok_or_else(|| {
+                invalid(
+                    file,
+                    "medium.ionic_strength_mol_per_L",
+                    "(missing)",
+                    "screened electrostatics needs the ionic strength of the (1:1) electrolyte in mol/L",
+                )
+            })?;
+            if !(ionic.is_finite() && ionic > 0.0 && ionic <= 10.0) {
+                return Err(invalid(
+                    file,
+                    "medium.ionic_strength_mol_per_L",
+                    ionic,
+                    "it must be a finite number above 0 and at most 10 mol/L",
+                ));
+            }
+            let eps = medium.relative_permittivity.ok_or_else(|| {
+                invalid(
+                    file,
+                    "medium.relative_permittivity",
+                    "(missing)",
+                    "screened electrostatics needs the medium's relative permittivity (about 78 for water at 25 °C)",
+                )
+            })?;
+            if !(eps.is_finite() && (1.0..=1000.0).contains(&eps)) {
+                return Err(invalid(
+                    file,
+                    "medium.relative_permittivity",
+                    eps,
+                    "it must be a finite number from 1 to 1000",
+                ));
+            }
+            p.kappa_per_nm = 1.0 / debye_length_nm(eps, temperature_k, ionic);
+            p.electrostatic_pn_nm = WallPotential::electrostatic_prefactor_pn_nm(
+                eps,
+                temperature_k,
+                species.radius_nm,
+                psi,
+                psi_wall,
+            );
+        }
+        (Some(_), None) => {
+            return Err(invalid(
+                file,
+                key("surface_potential_mV"),
+                "(given)",
+                "screened electrostatics needs the walls' potential too: geometry.wall_surface_potential_mV",
+            ))
+        }
+        (None, _) => {}
+    }
+    match (raw.wall_well_depth_kt, raw.wall_well_range_nm) {
+        (Some(depth), Some(range)) => {
+            if !(depth.is_finite() && (0.0..=100.0).contains(&depth)) {
+                return Err(invalid(
+                    file,
+                    key("wall_well_depth_kT"),
+                    depth,
+                    "it must be a finite number from 0 to 100 k_BT",
+                ));
+            }
+            if !(range.is_finite() && range > 0.0 && range <= 1e4) {
+                return Err(invalid(
+                    file,
+                    key("wall_well_range_nm"),
+                    range,
+                    "it must be a finite number above 0 and at most 1e4 nm",
+                ));
+            }
+            p.well_depth_pn_nm = depth * thermal_energy_pn_nm(temperature_k);
+            p.well_range_nm = range;
+        }
+        (None, None) => {}
+        (Some(_), None) => {
+            return Err(invalid(
+                file,
+                key("wall_well_range_nm"),
+                "(missing)",
+                "a well at the walls needs both its depth (wall_well_depth_kT) and its range",
+            ))
+        }
+        (None, Some(_)) => {
+            return Err(invalid(
+                file,
+                key("wall_well_depth_kT"),
+                "(missing)",
+                "a well at the walls needs both its depth and its range (wall_well_range_nm)",
+            ))
+        }
+    }
+    Ok(p)
+}

@@ -578,6 +578,14 @@ pub struct RawGeometry {
     /// default half the run).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub flux_after_s: Option<f64>,
+    /// Surface potential of the walls, mV (screened electrostatics with
+    /// species that carry `surface_potential_mV`).
+    #[serde(
+        rename = "wall_surface_potential_mV",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub wall_surface_potential_mv: Option<f64>,
 }
 
 impl RawGeometry {

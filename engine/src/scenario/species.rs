@@ -22,6 +22,8 @@ pub struct Species {
     pub crowder: bool,
     /// Total constant external force [x, y, z], pN (zero without one).
     pub force_pn: [f64; 3],
+    /// Soft interaction with the walls (none by default).
+    pub wall_potential: crate::space::potentials::WallPotential,
 }
 
 impl Species {

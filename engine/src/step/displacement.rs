@@ -72,10 +72,12 @@ impl Displacement for Isotropic {
 
 /// Mobility of one species against the wall gap h = d − a, tabulated on a
 /// grid uniform in u = √(h/a). Each node holds `N` values; the wall tables
-/// hold [σ∥, σ⊥, (D⊥ − D∥) Δt, (dD⊥/dd) Δt, flow Δt] in nm, nm, nm², nm, nm
-/// (the last the particle's displacement per step by the flow, lag included).
+/// hold [σ∥, σ⊥, (D⊥ − D∥) Δt, (dD⊥/dd) Δt, flow Δt, wall force Δt] in nm,
+/// nm, nm², nm, nm, nm (the particle's displacement per step by the flow,
+/// lag included, and by the walls' soft force, D⊥F/k_BT Δt away from the
+/// nearer wall).
 #[derive(Debug, Clone)]
-pub struct MobilityTable<const N: usize = 5> {
+pub struct MobilityTable<const N: usize = 6> {
     inverse_radius: f64,
     inverse_du: f64,
     /// Single precision (6e-8 relative, far below the interpolation error):
@@ -293,6 +295,8 @@ pub struct PlanarWalls {
     pub inverse_variance: f64,
     /// Whether the table's flow column (along x) is applied.
     pub flowing: bool,
+    /// Whether the table's wall-force column is applied.
+    pub potential: bool,
 }
 
 impl Displacement for PlanarWalls {
@@ -324,6 +328,9 @@ impl Displacement for PlanarWalls {
         ];
         if self.flowing {
             d[0] += v[4];
+        }
+        if self.potential {
+            d[2] += away * v[5];
         }
         if self.force_nm != [0.0; 3] {
             let (par, perp) = (
@@ -455,10 +462,10 @@ impl<const N: usize> RadialTable<N> {
 /// root, one division.
 #[derive(Debug, Clone)]
 pub struct PoreTensor {
-    /// Nodes [σ_z, σ_r − σ_θ, σ_θ, (∇·D)_r Δt/ρ, U Δt] against ρ², U the
-    /// particle's axial velocity in the flow (σ in nm, the drift over ρ
-    /// dimensionless).
-    pub table: RadialTable<5>,
+    /// Nodes [σ_z, σ_r − σ_θ, σ_θ, (∇·D)_r Δt/ρ, U Δt, f_r F_r Δt D0/(k_BT ρ)]
+    /// against ρ², U the particle's axial velocity in the flow and F_r the
+    /// walls' soft force along e_r (σ in nm, the drifts over ρ dimensionless).
+    pub table: RadialTable<6>,
     /// Axis position (x, y), nm.
     pub axis_nm: [f64; 2],
     /// Whether the Itô drift is applied.
@@ -469,6 +476,8 @@ pub struct PoreTensor {
     pub inverse_variance: f64,
     /// Whether the table's flow column is applied.
     pub flowing: bool,
+    /// Whether the table's wall-force column is applied.
+    pub potential: bool,
 }
 
 impl Displacement for PoreTensor {
@@ -488,7 +497,10 @@ impl Displacement for PoreTensor {
         // On the axis σ_r = σ_θ, so the projection term vanishes there.
         let inverse_rho2 = if rho2 > 0.0 { 1.0 / rho2 } else { 0.0 };
         let along = (xi[0] * dx + xi[1] * dy) * inverse_rho2 * v[1];
-        let drift = if self.ito_drift { v[3] } else { 0.0 };
+        let mut drift = if self.ito_drift { v[3] } else { 0.0 };
+        if self.potential {
+            drift += v[5];
+        }
         let radial = along + drift;
         let mut d = [
             v[2] * xi[0] + radial * dx,

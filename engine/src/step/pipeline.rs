@@ -21,6 +21,7 @@ use crate::space::mobility::{
 use crate::space::neighbors::{Blocker, ObstacleGrid};
 use crate::space::pore_hydro::plane_shear_lag;
 use crate::space::pore_hydro::{CylinderMobility, PoreModel};
+use crate::space::potentials::WallPotential;
 use crate::space::shape::Shape;
 use crate::space::SimBox;
 use crate::step::boundary::{
@@ -300,13 +301,17 @@ impl Stepper {
                     }) => Some(mean_velocity_nm_per_s * scenario.dt_s),
                     _ => None,
                 };
-                let table = wall_table.as_ref().map(|wt| {
+                let potential = s.wall_potential;
+                // D0Δt/k_BT, nm per pN: a force's drift per step in free solution.
+                let per_pn = s.d0_nm2_per_s() * scenario.dt_s / scenario.thermal_energy_pn_nm();
+                let table = (wall_table.is_some() || !potential.is_none()).then(|| {
                     mobility_table(
-                        wt,
+                        wall_table.as_ref(),
                         &geometry.shape,
                         (a, s.drag_radius_nm),
                         sigma,
                         mean_velocity_dt,
+                        (&potential, per_pn),
                     )
                 });
                 let edges = scenario.sim_box.edges_nm;
@@ -323,13 +328,21 @@ impl Stepper {
                             force_nm: drive.force_nm,
                             inverse_variance,
                             flowing: mean_velocity_dt.is_some(),
+                            potential: !potential.is_none(),
                         })
                     }
                     (Some(_), Shape::Cylinder { radius_nm, axis_nm })
-                        if geometry.pore_model == PoreModel::Cylinder =>
+                        if geometry.hydrodynamics.is_none()
+                            || geometry.pore_model == PoreModel::Cylinder =>
                     {
-                        let mut p =
-                            pore_tensor(*radius_nm, *axis_nm, a, sigma, geometry, mean_velocity_dt);
+                        let mut p = pore_tensor(
+                            (*radius_nm, *axis_nm),
+                            a,
+                            sigma,
+                            geometry,
+                            mean_velocity_dt,
+                            (&potential, per_pn),
+                        );
                         p.force_nm = drive.force_nm;
                         Move::Pore(p)
                     }
@@ -654,42 +667,63 @@ impl Stepper {
     }
 }
 
-/// The cylinder model of one species as a table over the gap to the wall.
+/// The cylinder model of one species as a table over ρ² (with wall
+/// hydrodynamics; else D = D0 and the fluid's own velocity), with the walls'
+/// soft force: the two wall points on the particle's diameter superposed,
+/// F_r(ρ) = −[F(R − a − ρ) − F(R − a + ρ)], F the sphere–plane force at that
+/// gap (odd in ρ, so zero on the axis).
 fn pore_tensor(
-    r: f64,
-    axis: [f64; 2],
+    (r, axis): (f64, [f64; 2]),
     a: f64,
     sigma: f64,
     geometry: &Geometry,
     mean_velocity_dt: Option<f64>,
+    (potential, per_pn): (&WallPotential, f64),
 ) -> PoreTensor {
-    let model = geometry
-        .hydrodynamics
-        .unwrap_or(PerpendicularModel::Brenner);
-    // Validation keeps a < R; λ from the steric radius (the sphere that touches the wall).
-    let m = CylinderMobility::new(a / r, model).expect("validated: the tracer fits the pore");
+    let model = geometry.hydrodynamics.map(|m| {
+        // Validation keeps a < R; λ from the steric radius (the sphere that touches the wall).
+        CylinderMobility::new(a / r, m).expect("validated: the tracer fits the pore")
+    });
     let d0_dt = 0.5 * sigma * sigma;
     let open = r - a;
+    // [f_z, f_r, f_θ, (∇·D)_r in D0/R, U/V] at radial position ρ.
+    let at = |rho: f64| -> [f64; 5] {
+        match &model {
+            Some(m) => {
+                let f = m.eval(rho / r);
+                [
+                    f.axial,
+                    f.radial,
+                    f.azimuthal,
+                    f.radial_drift,
+                    f.velocity_over_mean,
+                ]
+            }
+            None => [1.0, 1.0, 1.0, 0.0, 2.0 * (1.0 - (rho / r).powi(2))],
+        }
+    };
+    let radial_force = |rho: f64| -potential.force_pn(open - rho) + potential.force_pn(open + rho);
     let table = RadialTable::build(open, |rho| {
-        let f = m.eval(rho / r);
-        let (s_r, s_t) = (
-            sigma * f.radial.max(0.0).sqrt(),
-            sigma * f.azimuthal.max(0.0).sqrt(),
-        );
-        // radial_drift is in units of D0/R; over ρ it stays finite on the axis (it grows like ρ).
-        let drift = f.radial_drift * d0_dt / r;
-        let drift_over_rho = if rho > 0.0 {
-            drift / rho
-        } else {
-            let h = 1e-6 * open;
-            m.eval(h / r).radial_drift * d0_dt / r / h
+        let f = at(rho);
+        let (s_r, s_t) = (sigma * f[1].max(0.0).sqrt(), sigma * f[2].max(0.0).sqrt());
+        // Both drifts grow like ρ near the axis; over ρ they stay finite (read just off the axis there).
+        let over_rho = |g: &dyn Fn(f64) -> f64| {
+            if rho > 0.0 {
+                g(rho) / rho
+            } else {
+                let h = 1e-6 * open;
+                g(h) / h
+            }
         };
+        let ito = over_rho(&|x| at(x)[3] * d0_dt / r);
+        let wall = over_rho(&|x| at(x)[1] * per_pn * radial_force(x));
         [
-            sigma * f.axial.max(0.0).sqrt(),
+            sigma * f[0].max(0.0).sqrt(),
             s_r - s_t,
             s_t,
-            drift_over_rho,
-            mean_velocity_dt.unwrap_or(0.0) * f.velocity_over_mean,
+            ito,
+            mean_velocity_dt.unwrap_or(0.0) * f[4],
+            wall,
         ]
     });
     PoreTensor {
@@ -699,6 +733,7 @@ fn pore_tensor(
         force_nm: [0.0; 3],
         inverse_variance: 1.0 / (sigma * sigma),
         flowing: mean_velocity_dt.is_some(),
+        potential: !potential.is_none(),
     }
 }
 
@@ -728,27 +763,43 @@ pub fn mean_axial_mobility(
 
 /// The wall mobility of one species (steric and drag radii `a`, `ah`) as a
 /// table over the gap to the nearest wall (both walls superposed in a
-/// slit); in a slit with Poiseuille flow of mean velocity V (`mean_velocity_dt`
-/// = VΔt) the last column is the particle's displacement per step along x,
-/// u(z) times the two walls' shear lags superposed, γ(s₁) + γ(s₂) − 1
-/// (far-field plane-wall lag, a model: no published average to check).
+/// slit; D = D0 without wall hydrodynamics, `wt` = `None`); in a slit with
+/// Poiseuille flow of mean velocity V (`mean_velocity_dt` = VΔt) the flow
+/// column is the particle's displacement per step along x, u(z) times the
+/// two walls' shear lags superposed, γ(s₁) + γ(s₂) − 1 (far-field plane-wall
+/// lag, a model: no published average to check), and the last column the
+/// walls' soft force D⊥F/k_BT Δt away from the nearer wall (in a slit the
+/// far wall's force subtracts; a plane wall's floor alone acts).
 fn mobility_table(
-    wt: &WallMobilityTable,
+    wt: Option<&WallMobilityTable>,
     shape: &Shape,
     (a, ah): (f64, f64),
     sigma: f64,
     mean_velocity_dt: Option<f64>,
+    (potential, per_pn): (&WallPotential, f64),
 ) -> MobilityTable {
     let d0_dt = 0.5 * sigma * sigma;
     // Node values from D∥/D0, D⊥/D0 and dD⊥/dd (1/nm).
-    let node = |par: f64, perp: f64, dperp_dd: f64, flow: f64| {
+    let node = |par: f64, perp: f64, dperp_dd: f64, flow: f64, force: f64| {
         [
             sigma * par.max(0.0).sqrt(),
             sigma * perp.max(0.0).sqrt(),
             (perp - par) * d0_dt,
             dperp_dd * d0_dt,
             flow,
+            perp * per_pn * force,
         ]
+    };
+    let wall = |z: f64| match wt {
+        Some(wt) => single_wall(wt, z, ah),
+        None => (1.0, 1.0, 0.0),
+    };
+    let lag = |z: f64| {
+        if wt.is_some() {
+            plane_shear_lag(z / ah)
+        } else {
+            1.0
+        }
     };
     match shape {
         Shape::Slit { width_nm } => {
@@ -756,21 +807,30 @@ fn mobility_table(
             // Symmetric about mid-gap: tabulate the gap to the nearer wall.
             MobilityTable::build(a, 0.5 * (w - 2.0 * a), |h| {
                 let (z1, z2) = (a + h, w - a - h);
-                let (p1, q1, g1) = single_wall(wt, z1, ah);
-                let (p2, q2, g2) = single_wall(wt, z2, ah);
+                let (p1, q1, g1) = wall(z1);
+                let (p2, q2, g2) = wall(z2);
                 // The far wall's distance shrinks as z grows: its gradient flips sign.
-                let (perp, grad) = superpose_two_walls_with_gradient(q1, g1, q2, -g2);
+                let (perp, grad) = if wt.is_some() {
+                    superpose_two_walls_with_gradient(q1, g1, q2, -g2)
+                } else {
+                    (1.0, 0.0)
+                };
+                let par = if wt.is_some() {
+                    superpose_two_walls(p1, p2)
+                } else {
+                    1.0
+                };
                 let flow = mean_velocity_dt.map_or(0.0, |v| {
                     let s = z1 / w;
-                    let lag = plane_shear_lag(z1 / ah) + plane_shear_lag(z2 / ah) - 1.0;
-                    6.0 * v * s * (1.0 - s) * lag
+                    6.0 * v * s * (1.0 - s) * (lag(z1) + lag(z2) - 1.0)
                 });
-                node(superpose_two_walls(p1, p2), perp, grad / ah, flow)
+                let force = potential.force_pn(h) - potential.force_pn(w - 2.0 * a - h);
+                node(par, perp, grad / ah, flow, force)
             })
         }
         shape => MobilityTable::build(a, (shape.max_wall_distance_nm() - a).max(a), |h| {
-            let (par, perp, grad) = single_wall(wt, a + h, ah);
-            node(par, perp, grad / ah, 0.0)
+            let (par, perp, grad) = wall(a + h);
+            node(par, perp, grad / ah, 0.0, potential.force_pn(h))
         }),
     }
 }
