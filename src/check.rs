@@ -67,6 +67,7 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             "warnings": warnings,
             "memory_estimate_bytes": report.memory_estimate_bytes,
             "drive": report.drive,
+            "wall_interactions": report.interactions,
         });
         if let Some(c) = &confinement {
             // The first species' values at the top level; every species under "confinement".
@@ -207,6 +208,22 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
                 println!("    hindrance  {}", hindrance_line(h));
             }
         }
+    }
+    for i in &report.interactions {
+        let debye = i
+            .debye_length_nm
+            .map(|l| format!("Debye length {l:.4} nm, "))
+            .unwrap_or_default();
+        let partition = match (i.partition_boltzmann, i.partition_steric) {
+            (Some(b), Some(st)) => format!(
+                "; partition coefficient against a bulk bath {b:.4} (Boltzmann-weighted, exact for the model) against {st:.4} steric"
+            ),
+            _ => String::new(),
+        };
+        println!(
+            "  walls      species '{}': {debye}electrostatic energy at contact {:.4} k_BT (linear superposition, Bell, Levine & McCartney 1970), well {:.4} k_BT{partition}",
+            i.species, i.electrostatic_contact_kt, i.well_depth_kt
+        );
     }
     for d in &report.drive {
         let f = d.force_pn;

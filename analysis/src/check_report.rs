@@ -46,6 +46,26 @@ pub struct CheckReport {
     pub confinement: Option<Vec<SpeciesConfinement>>,
     /// Forces and flow per species (empty when nothing drives the particles).
     pub drive: Vec<SpeciesDrive>,
+    /// Soft wall interactions per species (empty without them).
+    pub interactions: Vec<SpeciesInteraction>,
+}
+
+/// The soft wall interaction of one species, and the partition it implies.
+#[derive(Debug, Clone, Serialize)]
+pub struct SpeciesInteraction {
+    /// Species name.
+    pub species: String,
+    /// Debye length κ⁻¹, nm (with screened electrostatics).
+    pub debye_length_nm: Option<f64>,
+    /// Electrostatic energy at contact, in k_BT (linear superposition approximation).
+    pub electrostatic_contact_kt: f64,
+    /// Depth of the short-range well, in k_BT.
+    pub well_depth_kt: f64,
+    /// Boltzmann-weighted partition coefficient against a bulk bath, for a
+    /// slit or a cylinder (exact for the model).
+    pub partition_boltzmann: Option<f64>,
+    /// The steric partition coefficient, for comparison.
+    pub partition_steric: Option<f64>,
 }
 
 /// What pushes or carries one species, and what published transport
@@ -348,7 +368,57 @@ pub fn check_report(scenario: &Scenario) -> Result<CheckReport, CheckError> {
         species,
         confinement: confinement(scenario)?,
         drive: drive(scenario),
+        interactions: interactions(scenario),
     })
+}
+
+/// Each species' wall interaction and its Boltzmann partition coefficient.
+fn interactions(scenario: &Scenario) -> Vec<SpeciesInteraction> {
+    let kt = scenario.thermal_energy_pn_nm();
+    let shape = scenario.geometry.as_ref().map(|g| &g.shape);
+    scenario
+        .species
+        .iter()
+        .filter(|s| !s.wall_potential.is_none())
+        .map(|s| {
+            let u = s.wall_potential;
+            let a = s.radius_nm;
+            let integrate = |f: &dyn Fn(f64) -> f64, hi: f64| {
+                let m = 20_000;
+                (0..m)
+                    .map(|k| f((k as f64 + 0.5) * hi / m as f64) * hi / m as f64)
+                    .sum::<f64>()
+            };
+            let (partition_boltzmann, partition_steric) = match shape {
+                Some(Shape::Slit { width_nm }) => {
+                    let top = width_nm - 2.0 * a;
+                    let w = |h: f64| (-(u.energy_pn_nm(h) + u.energy_pn_nm(top - h)) / kt).exp();
+                    (Some(integrate(&w, top) / width_nm), Some(top / width_nm))
+                }
+                Some(Shape::Cylinder { radius_nm: r, .. }) => {
+                    let open = r - a;
+                    let w = |rho: f64| {
+                        (-(u.energy_pn_nm(open - rho) + u.energy_pn_nm(open + rho)) / kt).exp()
+                            * 2.0
+                            * rho
+                    };
+                    (
+                        Some(integrate(&w, open) / (r * r)),
+                        Some((open / r).powi(2)),
+                    )
+                }
+                _ => (None, None),
+            };
+            SpeciesInteraction {
+                species: s.name.clone(),
+                debye_length_nm: (u.electrostatic_pn_nm != 0.0).then(|| 1.0 / u.kappa_per_nm),
+                electrostatic_contact_kt: u.electrostatic_pn_nm / kt,
+                well_depth_kt: u.well_depth_pn_nm / kt,
+                partition_boltzmann,
+                partition_steric,
+            }
+        })
+        .collect()
 }
 
 /// Forces and flow of each species with the predictions that apply.

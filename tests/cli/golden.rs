@@ -88,6 +88,23 @@ const CASES: &[(&str, &[&str])] = &[
         ],
     ),
     (
+        "configs/filtration.toml",
+        &[
+            "species.solute.count=300",
+            "integrator.steps=400",
+            "output.record_every_steps=40",
+            "geometry.flux_after_s=2e-8",
+        ],
+    ),
+    (
+        "configs/charged-pore.toml",
+        &[
+            "species.sloe.count=300",
+            "integrator.steps=400",
+            "output.record_every_steps=40",
+        ],
+    ),
+    (
         "configs/demo/hydrogel.toml",
         &[
             "species.marker.count=300",

@@ -588,6 +588,33 @@ impl Scenario {
                 ));
             }
         }
+        for s in self.species.iter().filter(|s| !s.wall_potential.is_none()) {
+            // The interaction must not move a particle by more than a tenth of its range in one step (common practice).
+            let p = s.wall_potential;
+            let per_pn = s.d0_nm2_per_s() * self.dt_s / self.thermal_energy_pn_nm();
+            let mut range = f64::INFINITY;
+            let mut force: f64 = 0.0;
+            if p.electrostatic_pn_nm != 0.0 {
+                range = range.min(1.0 / p.kappa_per_nm);
+                force = force.max((p.kappa_per_nm * p.electrostatic_pn_nm).abs());
+            }
+            if p.well_depth_pn_nm != 0.0 {
+                range = range.min(p.well_range_nm);
+                // Largest slope of ε exp(−(h/w)²), at h = w/√2.
+                force = force
+                    .max(p.well_depth_pn_nm * (2.0f64).sqrt() / p.well_range_nm * (-0.5f64).exp());
+            }
+            let drift = force * per_pn;
+            let step = s.step_rms_nm(self.dt_s);
+            if drift.max(step) > STEP_WARNING_FRACTION * range {
+                out.push(format!(
+                    "species '{}': its wall interaction acts over {:.4} nm, but one step moves it up to {:.4} nm by the force \
+                     and {:.4} nm rms by diffusion, more than a tenth of that range; a smaller integrator.dt_s resolves the \
+                     interaction (common practice)",
+                    s.name, range, drift, step
+                ));
+            }
+        }
         if let Some(c) = self
             .camera
             .as_ref()
