@@ -439,7 +439,8 @@ fn reflecting_resume_is_exact() {
 }
 
 // Bad input: an unknown rule, or reflection with a [geometry], is refused
-// naming the key, the value and what is allowed.
+// naming the key, the value and what is allowed; the default is reflection
+// without a [geometry] and rejection with one (and `check` says so).
 #[test]
 fn contact_key_is_validated() {
     let text = spheres_text(0.1, 0.1, 10, 10.0, 1);
@@ -461,6 +462,16 @@ fn contact_key_is_validated() {
         sc.contact,
         thicket_engine::space::collisions::ContactRule::Reflect
     );
+    // The default: reflection without a [geometry], rejection with one.
+    let sc = scenario(&text.replace("contact = \"reflect\"\n", ""));
+    assert_eq!(
+        (sc.contact, sc.contact_given),
+        (
+            thicket_engine::space::collisions::ContactRule::Reflect,
+            false
+        )
+    );
+    assert!(sc.resolved_toml.contains("contact = \"reflect\""));
     let slit = "seed = 3\n[medium]\ntemperature_K = 298.15\n[box]\nedges_nm = [50.0, 50.0, 20.0]\n\
                 [[species]]\nname = \"tracer\"\nradius_nm = 1.0\ncount = 10\n\
                 [integrator]\ndt_s = 1e-10\nsteps = 100\ncontact = \"reflect\"\n[geometry]\nkind = \"slit\"\n";
@@ -471,6 +482,14 @@ fn contact_key_is_validated() {
         e.contains("integrator.contact") && e.contains("geometry"),
         "{e}"
     );
+    let sc = scenario(&slit.replace("contact = \"reflect\"\n", ""));
+    assert_eq!(
+        sc.contact,
+        thicket_engine::space::collisions::ContactRule::Reject
+    );
+    assert!(sc
+        .contact_description()
+        .is_some_and(|d| d.contains("not available")));
 }
 
 // The contact-bias rule of thumb (Scenario::contact_bias_estimate, common
