@@ -1,8 +1,10 @@
 //! The third piece of a step: the contact rule that accepts or rejects a
-//! folded move. Fixed obstacles reject a move whose end point lies inside
-//! one (grown by the particle's radius): move rejection, a Monte Carlo
-//! Brownian dynamics scheme whose bias shrinks like √Δt (REFERENCES.md
-//! "Numerics"). Mobile crowders are the crowd's business (`crowd`).
+//! folded move. `Reflect` (the default without a [geometry]) mirrors the
+//! path at each surface it meets, a bias ∝ Δt; `Reject` refuses a move whose
+//! end point lies inside an obstacle (grown by the particle's radius): move
+//! rejection, a Monte Carlo Brownian dynamics scheme whose bias shrinks like
+//! √Δt (REFERENCES.md "Numerics"). Mobile crowders are the crowd's business
+//! (`crowd`).
 
 use crate::base::rng::ParticleRng;
 use crate::space::collisions::{billiard, Bounds};
