@@ -56,6 +56,8 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             "obstacle_count": obstacles.spheres,
             "fibre_count": obstacles.fibres,
             "fibre_volume_fraction_nominal": obstacles.fibre_volume_fraction_nominal,
+            "contact": scenario.has_contacts().then(|| scenario.contact.name()),
+            "contact_description": scenario.contact_description(),
             "dt_s": scenario.dt_s,
             "steps": scenario.steps,
             "duration_s": scenario.steps as f64 * scenario.dt_s,
@@ -145,6 +147,9 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             obstacles.fibre_length_nm,
             obstacles.fibre_volume_fraction_nominal
         );
+    }
+    if let Some(contact) = scenario.contact_description() {
+        println!("  contacts   {contact}");
     }
     if !obstacles.is_empty() {
         if covered.standard_error > 0.0 {

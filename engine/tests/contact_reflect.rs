@@ -219,49 +219,6 @@ fn reflecting_contact_value_matches_carnahan_starling() {
     assert!(se < 0.01 * cs, "standard error {se} too large to test 3 %");
 }
 
-/// Per-particle long-time diffusivities (nm²/s) of every particle of the
-/// scenarios `text(seed)`: records every `record_s` s for `duration_s`,
-/// slope of the time-averaged MSD over lags `lags` records (as
-/// `direct::long_time_diffusivity`, but kept per particle, so that runs at
-/// different steps from the same seeds can be compared particle by particle:
-/// the medium and the starting points are shared, which cancels most noise).
-fn per_particle(
-    text: impl Fn(u64) -> String,
-    seeds: &[u64],
-    record_s: f64,
-    duration_s: f64,
-    lags: (usize, usize),
-) -> Vec<f64> {
-    let mut out = Vec::new();
-    for &seed in seeds {
-        let sc = scenario(&text(seed));
-        let (_, mut dynamics, mut state) = prepare(&sc);
-        let every = (record_s / sc.dt_s).round() as u64;
-        let records = (duration_s / record_s) as usize + 1;
-        let tracks = with_threads(2, || {
-            record(
-                &mut dynamics,
-                &mut state,
-                &sc,
-                0..sc.particle_count(),
-                every,
-                records,
-            )
-        });
-        let rs = every as f64 * sc.dt_s;
-        out.extend(
-            (0..tracks[0].len()).map(|p| fitted_slope(&tracks, p, lags.0, lags.1) / (6.0 * rs)),
-        );
-    }
-    out
-}
-
-/// Mean and standard error of b − a, particle by particle.
-fn paired(a: &[f64], b: &[f64]) -> (f64, f64) {
-    let d: Vec<f64> = a.iter().zip(b).map(|(x, y)| y - x).collect();
-    mean_se(&d)
-}
-
 /// A Δt series at steps h, h/2, h/4: the values (mean, SE), the measured
 /// order p of the bias in the step (bias ∝ h^p, so Δt^(p/2)) with its
 /// standard error (first-order propagation), and the value extrapolated to
@@ -439,7 +396,8 @@ fn reflecting_resume_is_exact() {
 }
 
 // Bad input: an unknown rule, or reflection with a [geometry], is refused
-// naming the key, the value and what is allowed.
+// naming the key, the value and what is allowed; the default is reflection
+// without a [geometry] and rejection with one (and `check` says so).
 #[test]
 fn contact_key_is_validated() {
     let text = spheres_text(0.1, 0.1, 10, 10.0, 1);
@@ -461,6 +419,16 @@ fn contact_key_is_validated() {
         sc.contact,
         thicket_engine::space::collisions::ContactRule::Reflect
     );
+    // The default: reflection without a [geometry], rejection with one.
+    let sc = scenario(&text.replace("contact = \"reflect\"\n", ""));
+    assert_eq!(
+        (sc.contact, sc.contact_given),
+        (
+            thicket_engine::space::collisions::ContactRule::Reflect,
+            false
+        )
+    );
+    assert!(sc.resolved_toml.contains("contact = \"reflect\""));
     let slit = "seed = 3\n[medium]\ntemperature_K = 298.15\n[box]\nedges_nm = [50.0, 50.0, 20.0]\n\
                 [[species]]\nname = \"tracer\"\nradius_nm = 1.0\ncount = 10\n\
                 [integrator]\ndt_s = 1e-10\nsteps = 100\ncontact = \"reflect\"\n[geometry]\nkind = \"slit\"\n";
@@ -471,6 +439,14 @@ fn contact_key_is_validated() {
         e.contains("integrator.contact") && e.contains("geometry"),
         "{e}"
     );
+    let sc = scenario(&slit.replace("contact = \"reflect\"\n", ""));
+    assert_eq!(
+        sc.contact,
+        thicket_engine::space::collisions::ContactRule::Reject
+    );
+    assert!(sc
+        .contact_description()
+        .is_some_and(|d| d.contains("not available")));
 }
 
 // The contact-bias rule of thumb (Scenario::contact_bias_estimate, common

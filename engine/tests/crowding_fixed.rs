@@ -4,7 +4,9 @@
 //! Lengths in nm, D0 = 1 nm²/s (so times are in units of b²/D0 for an
 //! obstacle radius b = 1 nm). Diffusivities are measured straight from the
 //! engine state (unwrapped displacements), their standard errors from the
-//! spread between independent tracers; seeds are fixed.
+//! spread between independent tracers; seeds are fixed. The dynamics tests
+//! pin `contact = "reject"` (move rejection and its √Δt bias are their
+//! subject); reflection, the default, is tested in contact_reflect.rs.
 
 mod crowding_support;
 
@@ -23,7 +25,7 @@ fn spheres_text(phi: f64, sigma: f64, tracers: usize, edge: f64, seed: u64) -> S
         "seed = {seed}\n[medium]\ntemperature_K = 298.15\n[box]\nedges_nm = [{edge}, {edge}, {edge}]\n\
          [[species]]\nname = \"point\"\nradius_nm = 0.0001\ncount = {tracers}\ndiffusivity_m2_per_s = 1e-18\n\
          [obstacles]\nplacement = \"random\"\nvolume_fraction = {phi}\nradius_nm = 1.0\n\
-         [integrator]\ndt_s = {}\nsteps = 1\n",
+         [integrator]\ncontact = \"reject\"\ndt_s = {}\nsteps = 1\n",
         sigma * sigma / 2.0
     )
 }
@@ -193,7 +195,7 @@ fn fibres_text(phi: f64, orientation: &str, seed: u64) -> String {
         "seed = {seed}\n[medium]\ntemperature_K = 298.15\n[box]\nedges_nm = [40.0, 40.0, 40.0]\n\
          [[species]]\nname = \"probe\"\nradius_nm = 0.5\ncount = 1500\ndiffusivity_m2_per_s = 1e-18\n\
          [fibres]\nradius_nm = 1.0\nvolume_fraction = {phi}\n{orientation}\n\
-         [integrator]\ndt_s = 4.5e-4\nsteps = 1\n"
+         [integrator]\ncontact = \"reject\"\ndt_s = 4.5e-4\nsteps = 1\n"
     )
 }
 
@@ -289,7 +291,7 @@ fn tracers_never_end_inside_obstacles() {
                 [[species]]\nname = \"big\"\nradius_nm = 0.9\ncount = 200\ndiffusivity_m2_per_s = 1e-18\n\
                 [obstacles]\nplacement = \"random\"\nvolume_fraction = 0.25\nradius_distribution = \"uniform\"\nradius_min_nm = 0.8\nradius_max_nm = 1.6\n\
                 [fibres]\nradius_nm = 0.4\ncount = 12\n\
-                [integrator]\ndt_s = 0.02\nsteps = 1\n";
+                [integrator]\ncontact = \"reject\"\ndt_s = 0.02\nsteps = 1\n";
     let sc = scenario(text);
     let (o, mut dynamics, mut state) = prepare(&sc);
     assert_eq!(dynamics.name(), "obstructed");
@@ -562,7 +564,7 @@ fn obstacles_are_written_and_resume_is_exact() {
     let text = "seed = 4\n[medium]\ntemperature_K = 298.15\n[box]\nedges_nm = [20.0, 20.0, 20.0]\n\
                 [[species]]\nname = \"t\"\nradius_nm = 0.2\ncount = 50\ndiffusivity_m2_per_s = 1e-18\n\
                 [obstacles]\nplacement = \"random\"\ncount = 40\nradius_nm = 1.5\n[fibres]\nradius_nm = 0.3\ncount = 5\n\
-                [integrator]\ndt_s = 1e-4\nsteps = 400\n[output]\nrecord_every_steps = 20\ncheckpoint_interval_s = 1000\n";
+                [integrator]\ncontact = \"reject\"\ndt_s = 1e-4\nsteps = 400\n[output]\nrecord_every_steps = 20\ncheckpoint_interval_s = 1000\n";
     let sc = scenario(text);
     let (whole, split) = whole_and_resumed(&sc, dir.path(), 200, 21);
 

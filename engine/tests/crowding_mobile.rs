@@ -3,7 +3,9 @@
 //! Carnahan–Starling, and dilute long-time self-diffusion with its
 //! Δt-convergence series.
 //!
-//! Units: sphere diameter σ = 1 nm (radius 0.5 nm), D0 = 1 nm²/s.
+//! Units: sphere diameter σ = 1 nm (radius 0.5 nm), D0 = 1 nm²/s. Every
+//! scenario pins `contact = "reject"` (the sweeps and the √Δt series are
+//! about move rejection); reflection, the default, is in contact_reflect.rs.
 
 mod crowding_support;
 
@@ -24,7 +26,7 @@ fn crowd_text(phi: f64, n: usize, sigma: f64, seed: u64) -> String {
     format!(
         "seed = {seed}\n[medium]\ntemperature_K = 298.15\n[box]\nedges_nm = [{edge}, {edge}, {edge}]\n\
          [[species]]\nname = \"crowder\"\nrole = \"crowder\"\nradius_nm = 0.5\ncount = {n}\ndiffusivity_m2_per_s = 1e-18\n\
-         [integrator]\ndt_s = {}\nsteps = 1\n",
+         [integrator]\ncontact = \"reject\"\ndt_s = {}\nsteps = 1\n",
         sigma * sigma / 2.0
     )
 }
@@ -39,7 +41,7 @@ fn mixed_text(sigma: f64, seed: u64) -> String {
          [[species]]\nname = \"probe\"\nradius_nm = 0.3\ncount = 300\ndiffusivity_m2_per_s = 2e-18\n\
          [obstacles]\nplacement = \"random\"\nvolume_fraction = 0.08\nradius_nm = 1.2\n\
          [fibres]\nradius_nm = 0.3\ncount = 4\n\
-         [integrator]\ndt_s = {}\nsteps = 1\n",
+         [integrator]\ncontact = \"reject\"\ndt_s = {}\nsteps = 1\n",
         sigma * sigma / 2.0
     )
 }

@@ -31,13 +31,14 @@ pub(super) fn groups() -> Vec<Group> {
     ]
 }
 
-/// Equal crowders of diameter 1 nm at volume fraction `phi`, rms step `sigma` nm, D0 = 1 nm²/s.
+/// Equal crowders of diameter 1 nm at volume fraction `phi`, rms step `sigma` nm, D0 = 1 nm²/s,
+/// with move rejection as the test suite's crowding_mobile.rs (reflection: contact_reflect.rs).
 fn crowd_text(phi: f64, n: usize, sigma: f64, seed: u64) -> String {
     let edge = (n as f64 * std::f64::consts::PI / 6.0 / phi).cbrt();
     format!(
         "seed = {seed}\n[medium]\ntemperature_K = 298.15\n[box]\nedges_nm = [{edge}, {edge}, {edge}]\n\
          [[species]]\nname = \"crowder\"\nrole = \"crowder\"\nradius_nm = 0.5\ncount = {n}\ndiffusivity_m2_per_s = 1e-18\n\
-         [integrator]\ndt_s = {}\nsteps = 1\n",
+         [integrator]\ncontact = \"reject\"\ndt_s = {}\nsteps = 1\n",
         sigma * sigma / 2.0
     )
 }

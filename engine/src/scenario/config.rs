@@ -262,8 +262,9 @@ pub struct RawIntegrator {
     /// (the reference sweep); both give the same result.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub sweep: Option<String>,
-    /// Hard contacts: "reject" (default) rejects a move into overlap,
-    /// "reflect" reflects it at the contact (contact.rs).
+    /// Hard contacts: "reflect" reflects a move at the contact (contact.rs;
+    /// the default without a [geometry]), "reject" rejects a move into
+    /// overlap (the default, and the only rule, with a [geometry]).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub contact: Option<String>,
 }
@@ -341,6 +342,8 @@ pub struct Scenario {
     pub sweep: Sweep,
     /// How hard contacts are handled.
     pub contact: ContactRule,
+    /// True when the scenario names `integrator.contact` (else the default).
+    pub contact_given: bool,
     /// Confining geometry, if any.
     pub geometry: Option<Geometry>,
     /// The flow carrying the particles, if any.
@@ -540,6 +543,28 @@ impl Scenario {
         })
     }
 
+    /// How hard contacts are handled, in words (for `check`); None without contacts.
+    pub fn contact_description(&self) -> Option<String> {
+        if !self.has_contacts() {
+            return None;
+        }
+        let how = match (self.contact, self.has_crowders()) {
+            (ContactRule::Reflect, false) => "a move is reflected at each contact it meets; bias ∝ Δt",
+            (ContactRule::Reflect, true) => {
+                "a move is reflected at each contact it meets, crowders collide as hard spheres within the step; bias ∝ Δt"
+            }
+            (ContactRule::Reject, _) => "a move into overlap is rejected; bias ∝ √Δt",
+        };
+        let origin = match (self.contact_given, self.geometry.is_some()) {
+            (true, _) => "as given",
+            (false, false) => "the default",
+            (false, true) => {
+                "the default with a [geometry]: reflecting contacts are not available with one yet"
+            }
+        };
+        Some(format!("{} ({origin}): {how}", self.contact.name()))
+    }
+
     /// Warnings a careful user would want before running.
     pub fn warnings(&self) -> Vec<String> {
         let mut out = Vec::new();
@@ -556,7 +581,11 @@ impl Scenario {
                     100.0 * bias,
                     self.contact.name(),
                     match self.contact {
-                        ContactRule::Reject => "integrator.contact = \"reflect\" shrinks this bias like Δt instead of √Δt",
+                        ContactRule::Reject if self.geometry.is_some() => {
+                            "a smaller integrator.dt_s reduces it like √Δt (reflecting contacts, whose bias shrinks like Δt, \
+                             are not available with a [geometry] yet)"
+                        }
+                        ContactRule::Reject => "integrator.contact = \"reflect\" (the default) shrinks this bias like Δt instead of √Δt",
                         ContactRule::Reflect => "a smaller integrator.dt_s reduces it in proportion",
                     }
                 ));
@@ -983,13 +1012,15 @@ impl RawScenario {
             }
         };
         let contact = match self.integrator.contact.as_deref() {
-            None => ContactRule::Reject,
+            // Reflection's bias shrinks like Δt, rejection's like √Δt; a geometry's walls have only rejection yet.
+            None if self.geometry.is_some() => ContactRule::Reject,
+            None => ContactRule::Reflect,
             Some(text) => ContactRule::parse(text).ok_or_else(|| {
                 invalid(
                     file,
                     "integrator.contact",
                     format!("{text:?}"),
-                    "allowed: \"reject\" (default) or \"reflect\"",
+                    "allowed: \"reflect\" (the default without a [geometry]) or \"reject\" (the default with one)",
                 )
             })?,
         };
@@ -1146,6 +1177,7 @@ impl RawScenario {
             }
             .into(),
         );
+        resolved.integrator.contact = Some(contact.name().into());
         if let Some(o) = resolved.obstacles.as_mut() {
             if o.placement != "file" && o.radius_distribution.is_none() {
                 o.radius_distribution = Some("fixed".into());
@@ -1204,6 +1236,7 @@ impl RawScenario {
             fibres,
             sweep,
             contact,
+            contact_given: self.integrator.contact.is_some(),
             geometry,
             flow,
             resolved_toml,

@@ -205,6 +205,10 @@ impl Bounds {
         for k in 0..3 {
             if self.periodic[k] {
                 let l = self.edges_nm[k];
+                // Inside already (most moves): floor would give 0 and change nothing.
+                if y[k] >= 0.0 && y[k] < l {
+                    continue;
+                }
                 let n = (y[k] / l).floor();
                 y[k] -= n * l;
                 // Rounding can leave exactly L: fold it to 0.

@@ -1,8 +1,10 @@
 //! The third piece of a step: the contact rule that accepts or rejects a
-//! folded move. Fixed obstacles reject a move whose end point lies inside
-//! one (grown by the particle's radius): move rejection, a Monte Carlo
-//! Brownian dynamics scheme whose bias shrinks like √Δt (REFERENCES.md
-//! "Numerics"). Mobile crowders are the crowd's business (`crowd`).
+//! folded move. `Reflect` (the default without a [geometry]) mirrors the
+//! path at each surface it meets, a bias ∝ Δt; `Reject` refuses a move whose
+//! end point lies inside an obstacle (grown by the particle's radius): move
+//! rejection, a Monte Carlo Brownian dynamics scheme whose bias shrinks like
+//! √Δt (REFERENCES.md "Numerics"). Mobile crowders are the crowd's business
+//! (`crowd`).
 
 use crate::base::rng::ParticleRng;
 use crate::space::collisions::{billiard, Bounds};
@@ -154,6 +156,33 @@ impl Contact for Reflect<'_> {
         });
         // Both ends in a convex open ball and inside the walls: the path meets nothing.
         let clear = inside_walls && e[0] * e[0] + e[1] * e[1] + e[2] * e[2] < ball.radius2;
+        if !clear && inside_walls {
+            // One lookup for an open path: the end point's open ball and the
+            // open ball around the start (within the memo's) cover the segment
+            // when their radii add up to more than its length.
+            let (w, crossed) = bounds.wrap(&y);
+            let c = self.grid.clearance(&w);
+            let len = (d[0] * d[0] + d[1] * d[1] + d[2] * d[2]).sqrt();
+            let start = if ball.radius2 > 0.0 {
+                let a = [
+                    x[0] - ball.anchor[0],
+                    x[1] - ball.anchor[1],
+                    x[2] - ball.anchor[2],
+                ];
+                (ball.radius2.sqrt() - (a[0] * a[0] + a[1] * a[1] + a[2] * a[2]).sqrt()).max(0.0)
+            } else {
+                0.0
+            };
+            if c > 0.0 && len < c + start {
+                ball.anchor = w;
+                ball.radius2 = c * c;
+                return Some(Moved {
+                    at: w,
+                    image: [n[0] + crossed[0], n[1] + crossed[1], n[2] + crossed[2]],
+                    events: B::Events::default(),
+                });
+            }
+        }
         if !clear {
             y = billiard(x, d, bounds, self.grid).0;
         }

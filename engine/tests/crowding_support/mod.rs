@@ -114,3 +114,46 @@ pub fn whole_and_resumed(
     assert_eq!(out, RunOutcome::Completed { frames });
     (whole, split)
 }
+
+/// Per-particle long-time diffusivities (nm²/s) of every particle of the
+/// scenarios `text(seed)`: records every `record_s` s for `duration_s`,
+/// slope of the time-averaged MSD over lags `lags` records (as
+/// `direct::long_time_diffusivity`, but kept per particle, so that runs at
+/// different steps from the same seeds can be compared particle by particle:
+/// the medium and the starting points are shared, which cancels most noise).
+pub fn per_particle(
+    text: impl Fn(u64) -> String,
+    seeds: &[u64],
+    record_s: f64,
+    duration_s: f64,
+    lags: (usize, usize),
+) -> Vec<f64> {
+    let mut out = Vec::new();
+    for &seed in seeds {
+        let sc = scenario(&text(seed));
+        let (_, mut dynamics, mut state) = prepare(&sc);
+        let every = (record_s / sc.dt_s).round() as u64;
+        let records = (duration_s / record_s) as usize + 1;
+        let tracks = with_threads(2, || {
+            record(
+                &mut dynamics,
+                &mut state,
+                &sc,
+                0..sc.particle_count(),
+                every,
+                records,
+            )
+        });
+        let rs = every as f64 * sc.dt_s;
+        out.extend(
+            (0..tracks[0].len()).map(|p| fitted_slope(&tracks, p, lags.0, lags.1) / (6.0 * rs)),
+        );
+    }
+    out
+}
+
+/// Mean and standard error of b − a, particle by particle.
+pub fn paired(a: &[f64], b: &[f64]) -> (f64, f64) {
+    let d: Vec<f64> = a.iter().zip(b).map(|(x, y)| y - x).collect();
+    mean_se(&d)
+}
