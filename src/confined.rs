@@ -161,6 +161,10 @@ fn run_summary(r: &MembraneAnalysis) -> String {
                 m.sieving_coefficient, m.peclet, m.name
             ));
         }
+        s.push_str(&format!(
+            "    diffusive permeability, m/s              {}  (inferred from the transmissions through Deen's pore equation)\n",
+            f.diffusive_permeability_inferred_m_per_s.describe(4)
+        ));
     }
     s
 }

@@ -138,6 +138,13 @@ pub struct Sieving {
     /// Sieving coefficient S = c_permeate/c_feed when the permeate is what
     /// passes, c_p = N/J_v: S = a/(J_v + b).
     pub coefficient: f64,
+    /// Membrane Péclet number read from the transmissions through Deen's
+    /// one-dimensional pore equation, b/a = e^(−Pe): Pe = ln(a/b).
+    pub peclet: f64,
+    /// Diffusive permeability the same equation implies, ε Φ K_d D0/L =
+    /// (a − b)/ln(a/b), nm/s: what the membrane would pass per unit
+    /// concentration difference without flow, inferred from this run.
+    pub diffusive_permeability_nm_per_s: f64,
 }
 
 /// The sieving coefficient from counted transits (down from the top bath,
@@ -181,6 +188,8 @@ pub fn sieving_from_transits(
         forward_nm_per_s: a,
         backward_nm_per_s: b,
         coefficient: a / (volume_flux_nm_per_s + b),
+        peclet: (a / b).ln(),
+        diffusive_permeability_nm_per_s: (a - b) / (a / b).ln(),
     })
 }
 
@@ -202,6 +211,12 @@ pub struct Filtration {
     pub backward_transmission_m_per_s: Interval,
     /// Measured sieving coefficient S.
     pub sieving_coefficient: Interval,
+    /// Péclet number ln(a/b) inferred from the transmissions (Deen's pore equation).
+    pub peclet_inferred: Interval,
+    /// Diffusive permeability (a − b)/ln(a/b) inferred from the transmissions, m/s.
+    pub diffusive_permeability_inferred_m_per_s: Interval,
+    /// Its hindrance P L/(ε D0), to compare with ΦK_d.
+    pub diffusive_hindrance_inferred: Interval,
     /// Deen's S with the K_d, K_c of each model that applies.
     pub models: Vec<SievingModel>,
     /// How S is measured.
@@ -246,11 +261,32 @@ impl Filtration {
             "  sieving coefficient S                      {}",
             self.sieving_coefficient.describe_fixed(4)
         );
+        let _ = writeln!(
+            w,
+            "  Péclet number ln(forward/backward)         {}",
+            self.peclet_inferred.describe_fixed(4)
+        );
+        let _ = writeln!(
+            w,
+            "  diffusive permeability inferred, m/s       {}",
+            self.diffusive_permeability_inferred_m_per_s.describe(4)
+        );
+        let _ = writeln!(
+            w,
+            "    its hindrance P L/(eps D0)               {}  (to compare with Phi K_d: the model's entries below)",
+            self.diffusive_hindrance_inferred.describe_fixed(4)
+        );
         for m in &self.models {
             let _ = writeln!(
                 w,
-                "    {:.4}  Pe = {:.4}, Phi = {:.4}, K_d = {:.4}, K_c = {:.4}: {}",
-                m.sieving_coefficient, m.peclet, m.partition, m.kd, m.kc, m.name
+                "    S = {:.4}  Pe = {:.4}, Phi = {:.4}, K_d = {:.4}, K_c = {:.4}, Phi K_d = {:.4}: {}",
+                m.sieving_coefficient,
+                m.peclet,
+                m.partition,
+                m.kd,
+                m.kc,
+                m.partition * m.kd,
+                m.name
             );
         }
         let _ = writeln!(w, "  definition: {}", self.definition);
@@ -730,12 +766,19 @@ pub fn analyze_membrane(path: &Path, species: Option<&str>) -> Result<MembraneAn
             forward_transmission_m_per_s: pick(&|x| x.forward_nm_per_s * 1e-9),
             backward_transmission_m_per_s: pick(&|x| x.backward_nm_per_s * 1e-9),
             sieving_coefficient: pick(&|x| x.coefficient),
+            peclet_inferred: pick(&|x| x.peclet),
+            diffusive_permeability_inferred_m_per_s: pick(&|x| x.diffusive_permeability_nm_per_s * 1e-9),
+            diffusive_hindrance_inferred: pick(&|x| {
+                x.diffusive_permeability_nm_per_s * m.thickness_nm() / (porosity * d0)
+            }),
             models: sieving_models,
             definition: format!(
                 "transits counted by bath of origin give the flux per feed concentration (forward) and per permeate \
                  concentration (backward), each with the diffusive layers in series on its side removed (stirred reservoir H/D0{}); \
                  S = forward/(J_v + backward): the permeate over the feed concentration at the membrane faces when the permeate \
-                 is what passes (Deen 1987). No fluid moves outside the pores in this model",
+                 is what passes (Deen 1987). Through Deen's one-dimensional pore equation the transmissions also give \
+                 Pe = ln(forward/backward) and the diffusive permeability eps Phi K_d D0/L = (forward - backward)/Pe. \
+                 No fluid moves outside the pores in this model",
                 if access > 0.0 {
                     " and the pore-mouth access resistance (a + 0.8216 r_open f)/(eps Phi D0) of the steric model"
                 } else {

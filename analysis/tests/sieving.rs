@@ -75,5 +75,17 @@ fn sieving_coefficient_matches_deen_at_three_peclet_numbers() {
             "Pe = {pe}: S {} vs Deen {deen}",
             s.value
         );
+        // Deen's pore equation: b/a = e^(−Pe) and (a − b)/Pe = εΦK_d D0/L (steric pores: K_d = 1, exact).
+        let p = f.peclet_inferred;
+        let h = f.diffusive_hindrance_inferred;
+        println!(
+            "  inferred Pe {:.4} ± {:.4} (given {pe}); diffusive hindrance {:.4} ± {:.4} (Φ K_d = {phi:.4})",
+            p.value,
+            p.standard_error.unwrap_or(f64::NAN),
+            h.value,
+            h.standard_error.unwrap_or(f64::NAN)
+        );
+        assert!((p.value - pe).abs() < 4.5 * p.standard_error.unwrap());
+        assert!((h.value - phi * kd).abs() < 4.5 * h.standard_error.unwrap());
     }
 }

@@ -1294,8 +1294,15 @@ impl RawScenario {
                 file,
                 i,
                 s,
-                raw,
-                &self.medium,
+                &crate::scenario::drive::WallKeys {
+                    surface_potential_mv: raw.surface_potential_mv,
+                    wall_well_depth_kt: raw.wall_well_depth_kt,
+                    wall_well_range_nm: raw.wall_well_range_nm,
+                },
+                &crate::scenario::drive::MediumKeys {
+                    ionic_strength_mol_per_l: self.medium.ionic_strength_mol_per_l,
+                    relative_permittivity: self.medium.relative_permittivity,
+                },
                 temperature_k,
                 geometry,
                 self.geometry

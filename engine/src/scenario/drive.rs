@@ -540,6 +540,26 @@ impl FlowSpec {
     }
 }
 
+/// A species' wall-interaction keys, as written.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct WallKeys {
+    /// `surface_potential_mV`.
+    pub surface_potential_mv: Option<f64>,
+    /// `wall_well_depth_kT`.
+    pub wall_well_depth_kt: Option<f64>,
+    /// `wall_well_range_nm`.
+    pub wall_well_range_nm: Option<f64>,
+}
+
+/// The medium's electrolyte keys, as written.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct MediumKeys {
+    /// `medium.ionic_strength_mol_per_L`.
+    pub ionic_strength_mol_per_l: Option<f64>,
+    /// `medium.relative_permittivity`.
+    pub relative_permittivity: Option<f64>,
+}
+
 /// The soft wall interaction of species `i`: screened electrostatics when
 /// it and the walls carry surface potentials, and a short-range well.
 ///
@@ -552,8 +572,8 @@ pub fn species_wall_potential(
     file: &Path,
     i: usize,
     species: &Species,
-    raw: &crate::scenario::config::RawSpecies,
-    medium: &crate::scenario::config::RawMedium,
+    raw: &WallKeys,
+    medium: &MediumKeys,
     temperature_k: f64,
     geometry: Option<&Geometry>,
     wall_potential_mv: Option<f64>,
