@@ -43,7 +43,7 @@ use std::path::{Path, PathBuf};
 use serde::Serialize;
 use thicket_engine::obstacles::FixedObstacles;
 use thicket_engine::run::membrane::MEMBRANE_COLUMNS;
-use thicket_engine::space::shape::{per_nm3_to_mol_per_m3, Membrane, PoreLayout, Shape};
+use thicket_engine::space::shape::{per_nm3_to_mol_per_m3, Membrane, Shape};
 use thicket_engine::step::Stepper;
 use thicket_engine::Scenario;
 
@@ -559,15 +559,7 @@ pub fn analyze_membrane(path: &Path, species: Option<&str>) -> Result<MembraneAn
         .pores
         .windows(2)
         .all(|w| (w[0].radius_nm - w[1].radius_nm).abs() <= 1e-12 * w[0].radius_nm);
-    let spacing = match m.layout {
-        PoreLayout::Arranged { pores_x, pores_y }
-            if (m.lateral_nm[0] / pores_x as f64 - m.lateral_nm[1] / pores_y as f64).abs()
-                < 1e-9 =>
-        {
-            Some(m.lateral_nm[0] / pores_x as f64)
-        }
-        _ => None,
-    };
+    let spacing = m.square_spacing_nm();
     // Each side: the reservoir layer H/D0 and, for equal pores, the access into the mouths (a + Δ f)/(εΦD0),
     // the end terms of the steric permeability model that the diffusive test checks.
     let access = if equal_pores {

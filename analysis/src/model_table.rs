@@ -15,7 +15,7 @@ use thicket_engine::obstacles::spheres::{FixedObstacles, Region};
 use thicket_engine::scenario::media::Orientation;
 use thicket_engine::scenario::media::{Generator, ObstacleSpec};
 use thicket_engine::space::pore_hydro::PoreModel;
-use thicket_engine::space::shape::{PoreLayout, Shape};
+use thicket_engine::space::shape::Shape;
 use thicket_engine::step::pipeline::mean_axial_mobility;
 use thicket_engine::Scenario;
 
@@ -603,15 +603,7 @@ fn membrane_models(
         false,
     )];
     // A square arrangement has a known end correction; other layouts get the isolated-mouth one.
-    let spacing = match m.layout {
-        PoreLayout::Arranged { pores_x, pores_y }
-            if (m.lateral_nm[0] / pores_x as f64 - m.lateral_nm[1] / pores_y as f64).abs()
-                < 1e-9 =>
-        {
-            Some(m.lateral_nm[0] / pores_x as f64)
-        }
-        _ => None,
-    };
+    let spacing = m.square_spacing_nm();
     let open = r_min - a;
     let equal_pores = m.pores.iter().all(|p| p.radius_nm == r_min);
     let corrected = if !equal_pores {

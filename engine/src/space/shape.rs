@@ -113,6 +113,21 @@ impl Membrane {
         self.lateral_nm[0] * self.lateral_nm[1]
     }
 
+    /// The spacing of pores arranged on a square lattice (`pores_x` by
+    /// `pores_y` with equal spacings along x and y), nm; `None` otherwise.
+    pub fn square_spacing_nm(&self) -> Option<f64> {
+        match self.layout {
+            PoreLayout::Arranged { pores_x, pores_y }
+                if (self.lateral_nm[0] / pores_x as f64 - self.lateral_nm[1] / pores_y as f64)
+                    .abs()
+                    < 1e-9 =>
+            {
+                Some(self.lateral_nm[0] / pores_x as f64)
+            }
+            _ => None,
+        }
+    }
+
     /// Porosity ε: open pore area over membrane area.
     pub fn porosity(&self) -> f64 {
         self.pores
