@@ -80,9 +80,28 @@ impl Displacement for Isotropic {
 pub struct MobilityTable<const N: usize = 6> {
     inverse_radius: f64,
     inverse_du: f64,
-    /// Single precision (6e-8 relative, far below the interpolation error):
-    /// half the cache footprint for the hot loop.
-    nodes: Vec<[f32; N]>,
+    nodes: Nodes<N>,
+}
+
+/// Equally spaced table nodes in single precision (6e-8 relative, far below
+/// the interpolation error: half the cache footprint for the hot loop),
+/// read by linear interpolation; shared by the wall and the pore tables.
+#[derive(Debug, Clone)]
+struct Nodes<const N: usize>(Vec<[f32; N]>);
+
+impl<const N: usize> Nodes<N> {
+    /// Values at grid coordinate `t` (in intervals, clamped to `intervals`).
+    #[inline(always)]
+    fn at(&self, t: f64, intervals: usize) -> [f64; N] {
+        let t = t.min(intervals as f64);
+        let i = t as usize;
+        let f = t - i as f64;
+        let (a, b) = (&self.0[i], &self.0[i + 1]);
+        std::array::from_fn(|k| {
+            let (a, b) = (f64::from(a[k]), f64::from(b[k]));
+            a + f * (b - a)
+        })
+    }
 }
 
 impl<const N: usize> MobilityTable<N> {
@@ -99,7 +118,7 @@ impl<const N: usize> MobilityTable<N> {
         Self {
             inverse_radius: 1.0 / radius_nm,
             inverse_du: 1.0 / du,
-            nodes,
+            nodes: Nodes(nodes),
         }
     }
 
@@ -107,14 +126,7 @@ impl<const N: usize> MobilityTable<N> {
     #[inline(always)]
     pub fn eval(&self, h_nm: f64) -> [f64; N] {
         let u = (h_nm.max(0.0) * self.inverse_radius).sqrt();
-        let t = (u * self.inverse_du).min(TABLE_INTERVALS as f64);
-        let i = t as usize;
-        let f = t - i as f64;
-        let (a, b) = (&self.nodes[i], &self.nodes[i + 1]);
-        std::array::from_fn(|k| {
-            let (a, b) = (f64::from(a[k]), f64::from(b[k]));
-            a + f * (b - a)
-        })
+        self.nodes.at(u * self.inverse_du, TABLE_INTERVALS)
     }
 }
 
@@ -423,7 +435,7 @@ pub const RADIAL_INTERVALS: usize = 8192;
 #[derive(Debug, Clone)]
 pub struct RadialTable<const N: usize> {
     inverse_step: f64,
-    nodes: Vec<[f32; N]>,
+    nodes: Nodes<N>,
 }
 
 impl<const N: usize> RadialTable<N> {
@@ -435,21 +447,15 @@ impl<const N: usize> RadialTable<N> {
             .collect();
         Self {
             inverse_step: 1.0 / step,
-            nodes,
+            nodes: Nodes(nodes),
         }
     }
 
     /// Interpolated values at ρ² = `rho2_nm2` (clamped to the table).
     #[inline(always)]
     pub fn eval(&self, rho2_nm2: f64) -> [f64; N] {
-        let t = (rho2_nm2 * self.inverse_step).min(RADIAL_INTERVALS as f64);
-        let i = t as usize;
-        let f = t - i as f64;
-        let (a, b) = (&self.nodes[i], &self.nodes[i + 1]);
-        std::array::from_fn(|k| {
-            let (a, b) = (f64::from(a[k]), f64::from(b[k]));
-            a + f * (b - a)
-        })
+        self.nodes
+            .at(rho2_nm2 * self.inverse_step, RADIAL_INTERVALS)
     }
 }
 
