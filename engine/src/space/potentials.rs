@@ -1,13 +1,28 @@
-//! Soft interactions of a sphere with a wall, as functions of the gap h
-//! between surface and wall: screened electrostatics in the linear
-//! superposition approximation and a short-range attractive well. Pure
-//! functions; energies in pN·nm, forces in pN (positive: away from the wall).
+//! Soft interactions of a sphere with a surface (a wall, a fixed sphere, a
+//! fibre or another particle), as functions of the gap h between the two
+//! surfaces: screened electrostatics in the linear superposition
+//! approximation, van der Waals (Hamaker) and a short-range attractive well.
+//! Pure functions; energies in pN·nm, forces in pN (positive: apart).
+//!
+//! The curvature of what the sphere faces enters through Derjaguin's
+//! effective radius R (Israelachvili, Intermolecular and Surface Forces,
+//! 3rd ed., §11.4; from memory): R = a facing a plane, ab/(a + b) facing a
+//! sphere of radius b, a√(c/(a + c)) facing a cylinder of radius c (the gap's
+//! principal curvatures 1/a + 1/c and 1/a).
 //!
 //! - Screened electrostatics, sphere of radius a at gap h from a plane
 //!   (Bell, Levine & McCartney 1970, linear superposition; from memory):
 //!   U(h) = 64π ε_r ε_0 a (k_BT/e)² tanh(eψ₁/4k_BT) tanh(eψ₂/4k_BT) e^(−κh),
 //!   so F = κU. The Debye length of a 1:1 electrolyte of ionic strength I is
 //!   κ⁻¹ = √(ε_r ε_0 k_BT/(2 N_A e² I)) (I in mol/m³).
+//!   Facing a sphere or a cylinder, a in the prefactor becomes R.
+//! - Van der Waals with Hamaker constant A (Hamaker 1937; from memory):
+//!   sphere–plane U = −(A/6)[a/h + a/(h + 2a) + ln(h/(h + 2a))], so
+//!   F = −2Aa³/(3h²(h + 2a)²); sphere–sphere at centre distance r,
+//!   U = −(A/6)[2ab/P + 2ab/M + ln(P/M)], P = r² − (a + b)², M = r² − (a − b)²,
+//!   so F = −(32/3)A r a³b³/(P²M²); sphere–cylinder in Derjaguin's form,
+//!   U = −AR/(6h). Below a closest gap δ (a stand-in for the short-range
+//!   repulsion, common practice) the energy is held at U(δ) and the force is zero.
 //! - Short-range well: U(h) = −ε exp(−(h/w)²), depth ε (given in k_BT) at
 //!   contact, range w.
 //!
@@ -38,7 +53,50 @@ pub fn debye_length_nm(
         * 1e9
 }
 
-/// The soft interaction of one species with a wall.
+/// What a sphere faces: sets the Derjaguin radius and the van der Waals form.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub enum Facing {
+    /// A plane wall.
+    #[default]
+    Plane,
+    /// A sphere of this radius, nm.
+    Sphere(f64),
+    /// A cylinder (fibre, pore seen from inside as a plane) of this radius, nm.
+    Cylinder(f64),
+}
+
+/// Derjaguin's effective radius of a sphere of radius `a_nm` facing `facing`, nm.
+pub fn derjaguin_radius_nm(a_nm: f64, facing: Facing) -> f64 {
+    match facing {
+        Facing::Plane => a_nm,
+        Facing::Sphere(b) => a_nm * b / (a_nm + b),
+        Facing::Cylinder(c) => a_nm * (c / (a_nm + c)).sqrt(),
+    }
+}
+
+/// Surface potential of a sphere of radius `a_nm` carrying `charge_e`
+/// elementary charges in an electrolyte of Debye length `debye_nm`, mV:
+/// ψ = Qe/(4π ε_r ε_0 a (1 + κa)) (Debye–Hückel, low potential; from memory).
+pub fn sphere_surface_potential_mv(
+    charge_e: f64,
+    a_nm: f64,
+    debye_nm: f64,
+    relative_permittivity: f64,
+) -> f64 {
+    let a = a_nm * 1e-9;
+    let q = charge_e * ELEMENTARY_CHARGE_C;
+    let psi_v = q
+        / (4.0
+            * std::f64::consts::PI
+            * relative_permittivity
+            * VACUUM_PERMITTIVITY_F_PER_M
+            * a
+            * (1.0 + a_nm / debye_nm));
+    psi_v * 1e3
+}
+
+/// The soft interaction of one species with one surface (a wall, a fixed
+/// sphere, a fibre or another particle), as a function of the gap.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
 pub struct WallPotential {
     /// U(0) of the screened electrostatics, pN·nm (0 without).
@@ -49,6 +107,15 @@ pub struct WallPotential {
     pub well_depth_pn_nm: f64,
     /// Range w of the well, nm.
     pub well_range_nm: f64,
+    /// Hamaker constant A, pN·nm (0 without van der Waals).
+    pub hamaker_pn_nm: f64,
+    /// Closest gap δ of the van der Waals terms, nm (held at U(δ) below).
+    pub closest_gap_nm: f64,
+    /// Radius a of the moving sphere, nm (van der Waals only).
+    pub radius_nm: f64,
+    /// What the sphere faces (van der Waals only; the other terms carry
+    /// the curvature in their prefactor).
+    pub facing: Facing,
 }
 
 impl WallPotential {
@@ -86,7 +153,37 @@ impl WallPotential {
             let x = h / self.well_range_nm;
             u -= self.well_depth_pn_nm * (-x * x).exp();
         }
+        if self.hamaker_pn_nm != 0.0 {
+            u += self.van_der_waals(h_nm.max(self.closest_gap_nm)).0;
+        }
         u
+    }
+
+    /// Van der Waals energy and force (pN·nm, pN; negative force: attraction) at gap `h` > 0.
+    fn van_der_waals(&self, h: f64) -> (f64, f64) {
+        let (a, big_a) = (self.radius_nm, self.hamaker_pn_nm);
+        match self.facing {
+            Facing::Plane => {
+                let s = h + 2.0 * a;
+                (
+                    -big_a / 6.0 * (a / h + a / s + (h / s).ln()),
+                    -2.0 * big_a * a.powi(3) / (3.0 * h * h * s * s),
+                )
+            }
+            Facing::Sphere(b) => {
+                let r = h + a + b;
+                let p = r * r - (a + b) * (a + b);
+                let m = r * r - (a - b) * (a - b);
+                (
+                    -big_a / 6.0 * (2.0 * a * b / p + 2.0 * a * b / m + (p / m).ln()),
+                    -32.0 / 3.0 * big_a * r * (a * b).powi(3) / (p * p * m * m),
+                )
+            }
+            Facing::Cylinder(_) => {
+                let rd = derjaguin_radius_nm(a, self.facing);
+                (-big_a * rd / (6.0 * h), -big_a * rd / (6.0 * h * h))
+            }
+        }
     }
 
     /// Force at gap `h_nm` along the wall's normal (positive: away), pN.
@@ -97,12 +194,37 @@ impl WallPotential {
             let x = h / self.well_range_nm;
             f -= self.well_depth_pn_nm * 2.0 * x / self.well_range_nm * (-x * x).exp();
         }
+        if self.hamaker_pn_nm != 0.0 && h_nm > self.closest_gap_nm {
+            f += self.van_der_waals(h_nm).1;
+        }
         f
     }
 
     /// True when it exerts no force.
     pub fn is_none(&self) -> bool {
-        self.electrostatic_pn_nm == 0.0 && self.well_depth_pn_nm == 0.0
+        self.electrostatic_pn_nm == 0.0 && self.well_depth_pn_nm == 0.0 && self.hamaker_pn_nm == 0.0
+    }
+
+    /// The gap beyond which |U| stays below `tolerance_pn_nm`: the cut-off
+    /// of a neighbour sum (each term bounded separately; van der Waals by
+    /// its far-field decay, never below δ).
+    pub fn range_nm(&self, tolerance_pn_nm: f64) -> f64 {
+        let mut h: f64 = 0.0;
+        let e = self.electrostatic_pn_nm.abs();
+        if e > tolerance_pn_nm && self.kappa_per_nm > 0.0 {
+            h = h.max((e / tolerance_pn_nm).ln() / self.kappa_per_nm);
+        }
+        let w = self.well_depth_pn_nm.abs();
+        if w > tolerance_pn_nm {
+            h = h.max(self.well_range_nm * (w / tolerance_pn_nm).ln().sqrt());
+        }
+        if self.hamaker_pn_nm != 0.0 {
+            // |U| is at most AR/(6h) (Derjaguin's bound, above every exact form).
+            let rd = derjaguin_radius_nm(self.radius_nm, self.facing);
+            h = h.max(self.hamaker_pn_nm.abs() * rd / (6.0 * tolerance_pn_nm));
+            h = h.max(self.closest_gap_nm);
+        }
+        h
     }
 }
 
@@ -127,11 +249,96 @@ mod tests {
             kappa_per_nm: 1.0 / 3.0,
             well_depth_pn_nm: 8.0,
             well_range_nm: 0.7,
+            ..Default::default()
         };
         for h in [0.1, 0.5, 1.0, 2.0, 5.0] {
             let d = 1e-6;
             let numeric = -(p.energy_pn_nm(h + d) - p.energy_pn_nm(h - d)) / (2.0 * d);
             assert!((numeric - p.force_pn(h)).abs() < 1e-6, "{h}");
         }
+    }
+
+    fn van_der_waals(a: f64, facing: Facing) -> WallPotential {
+        WallPotential {
+            hamaker_pn_nm: 40.0,
+            closest_gap_nm: 0.3,
+            radius_nm: a,
+            facing,
+            ..Default::default()
+        }
+    }
+
+    #[test]
+    fn van_der_waals_force_is_minus_the_derivative_in_every_form() {
+        // Exact identity, checked by central differences.
+        for facing in [Facing::Plane, Facing::Sphere(7.0), Facing::Cylinder(4.0)] {
+            let p = van_der_waals(5.0, facing);
+            for h in [0.4, 1.0, 3.0, 10.0] {
+                let d = 1e-6;
+                let numeric = -(p.energy_pn_nm(h + d) - p.energy_pn_nm(h - d)) / (2.0 * d);
+                let exact = p.force_pn(h);
+                assert!(
+                    (numeric - exact).abs() < 1e-6 * exact.abs().max(1.0),
+                    "{facing:?} {h}"
+                );
+                assert!(exact < 0.0, "attractive");
+            }
+            // Held below the closest gap.
+            assert_eq!(p.energy_pn_nm(0.1), p.energy_pn_nm(0.3));
+            assert_eq!(p.force_pn(0.1), 0.0);
+        }
+    }
+
+    #[test]
+    fn sphere_forms_approach_the_plane_and_derjaguin_limits() {
+        // Exact limits: a sphere of radius b → ∞ is a plane; at h ≪ a, b the
+        // Hamaker form tends to Derjaguin's −AR/(6h).
+        let plane = van_der_waals(5.0, Facing::Plane);
+        let huge = van_der_waals(5.0, Facing::Sphere(1e7));
+        for h in [0.5, 2.0, 8.0] {
+            let (e, f) = (plane.energy_pn_nm(h), plane.force_pn(h));
+            assert!((huge.energy_pn_nm(h) / e - 1.0).abs() < 1e-4, "{h}");
+            assert!((huge.force_pn(h) / f - 1.0).abs() < 1e-4, "{h}");
+        }
+        let (a, b, h) = (500.0, 300.0, 0.1);
+        let s = WallPotential {
+            closest_gap_nm: 0.01,
+            ..van_der_waals(a, Facing::Sphere(b))
+        };
+        let r = derjaguin_radius_nm(a, Facing::Sphere(b));
+        let derjaguin = -40.0 * r / (6.0 * h);
+        assert!((s.energy_pn_nm(h) / derjaguin - 1.0).abs() < 0.01);
+    }
+
+    #[test]
+    fn cut_off_range_bounds_the_energy() {
+        let p = WallPotential {
+            electrostatic_pn_nm: 30.0,
+            kappa_per_nm: 1.0,
+            well_depth_pn_nm: 10.0,
+            well_range_nm: 0.5,
+            hamaker_pn_nm: 20.0,
+            closest_gap_nm: 0.3,
+            radius_nm: 4.0,
+            facing: Facing::Sphere(6.0),
+        };
+        let tol = 0.01;
+        let h = p.range_nm(tol);
+        assert!(h > 0.0);
+        // Each of three terms below tol beyond the range, so the sum below 3 tol.
+        for x in [h, 1.5 * h, 3.0 * h] {
+            assert!(p.energy_pn_nm(x).abs() < 3.0 * tol, "{x}");
+        }
+    }
+
+    #[test]
+    fn derjaguin_radii_and_charged_sphere_potential() {
+        // Exact geometry; Debye–Hückel ψ for Q = 10 e, a = 3 nm, κ⁻¹ = 1 nm,
+        // ε_r = 78.4: 10·1.602e-19/(4π·78.4·8.854e-12·3e-9·4) ≈ 15.3 mV (by hand).
+        assert_eq!(derjaguin_radius_nm(2.0, Facing::Plane), 2.0);
+        assert_eq!(derjaguin_radius_nm(2.0, Facing::Sphere(2.0)), 1.0);
+        assert!((derjaguin_radius_nm(2.0, Facing::Cylinder(2.0)) - 2.0_f64.sqrt()).abs() < 1e-12);
+        let psi = sphere_surface_potential_mv(10.0, 3.0, 1.0, 78.4);
+        assert!((psi - 15.3).abs() < 0.1, "{psi}");
     }
 }
