@@ -407,6 +407,10 @@ fn interactions(scenario: &Scenario) -> Vec<SpeciesInteraction> {
                         Some((open / r).powi(2)),
                     )
                 }
+                Some(Shape::Membrane(m)) => (
+                    Some(m.boltzmann_partition(a, |h| u.energy_pn_nm(h) / kt)),
+                    Some(m.steric_partition(a)),
+                ),
                 _ => (None, None),
             };
             SpeciesInteraction {

@@ -116,6 +116,9 @@ pub struct MembraneAnalysis {
     pub partition: Interval,
     /// Exact steric partition Σ(r − a)²/Σr².
     pub partition_steric: f64,
+    /// With soft wall interactions, the Boltzmann-weighted partition of the
+    /// step's model (exact for the model; `Space::Membrane::boltzmann_partition`).
+    pub partition_boltzmann: Option<f64>,
     /// Filtration: sieving coefficient and transmissions (runs with a flow).
     pub filtration: Option<Filtration>,
     /// Time-lag estimate.
@@ -809,6 +812,10 @@ pub fn analyze_membrane(path: &Path, species: Option<&str>) -> Result<MembraneAn
         hindrance_models,
         partition,
         partition_steric: m.steric_partition(a),
+        partition_boltzmann: (!sp.wall_potential.is_none()).then(|| {
+            let kt = scenario.thermal_energy_pn_nm();
+            m.boltzmann_partition(a, |h| sp.wall_potential.energy_pn_nm(h) / kt)
+        }),
         filtration,
         time_lag,
         profile,
@@ -1119,6 +1126,12 @@ impl MembraneAnalysis {
             "    exact steric sum(r-a)^2/sum r^2          {:.4}",
             self.partition_steric
         );
+        if let Some(k) = self.partition_boltzmann {
+            let _ = writeln!(
+                w,
+                "    Boltzmann-weighted, wall potential       {k:.4}  (exact for the model, at equilibrium)"
+            );
+        }
         let _ = writeln!(
             w,
             "  bath densities bottom/top, 1/nm3           {:.4e} / {:.4e} (scale {:.3e} of the given)",

@@ -229,3 +229,32 @@ fn interactions_switched_off_give_the_hard_wall_run_bit_for_bit() {
         .collect();
     assert_eq!(ends[0], ends[1]);
 }
+
+#[test]
+fn a_membrane_refuses_an_interaction_that_reaches_the_bath_faces() {
+    // κ⁻¹ ≈ 3 nm at 0.01 mol/L: the pull reaches about 20 nm, more than 8 nm reservoirs leave.
+    let geometry = |depth: f64| {
+        format!(
+            "kind = \"membrane\"\nthickness_nm = 10.0\npore_radius_nm = 6.0\nwall_hydrodynamics = false\n\
+             top_concentration_mol_per_m3 = 1.0\nbottom_concentration_mol_per_m3 = 1.0\n# reservoirs {depth} nm"
+        )
+    };
+    let text = |depth: f64| {
+        format!(
+            "seed = 1\n[medium]\ntemperature_K = 298.15\nionic_strength_mol_per_L = 0.01\nrelative_permittivity = 78.4\n\
+             [box]\nedges_nm = [16.0, 16.0, {}]\n[[species]]\nname = \"p\"\nradius_nm = 2.0\ncount = 10\n\
+             surface_potential_mV = -25.0\n[integrator]\ndt_s = 1e-11\nsteps = 10\n[geometry]\n{}\nwall_surface_potential_mV = -30.0\n",
+            10.0 + 2.0 * depth,
+            geometry(depth)
+        )
+    };
+    let e = Scenario::from_text(&text(8.0), Path::new("shallow.toml"), &[])
+        .expect_err("the interaction reaches the bath faces")
+        .to_string();
+    assert!(
+        e.contains("shallow.toml") && e.contains("species[0].surface_potential_mV"),
+        "{e}"
+    );
+    assert!(e.contains("bath faces"), "{e}");
+    Scenario::from_text(&text(40.0), Path::new("deep.toml"), &[]).unwrap_or_else(|e| panic!("{e}"));
+}

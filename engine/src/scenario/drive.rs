@@ -598,7 +598,7 @@ pub fn species_wall_potential(
             Shape::Cylinder { .. } => {
                 g.hydrodynamics.is_none() || g.pore_model == PoreModel::Cylinder
             }
-            Shape::Membrane(_) => false,
+            Shape::Membrane(_) => true,
         },
         None => false,
     };
@@ -607,8 +607,8 @@ pub fn species_wall_potential(
             file,
             key(first_key),
             "(given)",
-            "wall interactions act at the walls of a [geometry] of kind \"plane_wall\" (the floor), \"slit\" or \"cylinder\" \
-             (with pore_mobility = \"cylinder\" under wall hydrodynamics); not in a membrane or an open box yet",
+            "wall interactions act at the walls of a [geometry] of kind \"plane_wall\" (the floor), \"slit\", \"cylinder\" \
+             (with pore_mobility = \"cylinder\" under wall hydrodynamics) or \"membrane\" (pore walls and faces); not in an open box",
         ));
     }
     if species.crowder {
@@ -711,6 +711,23 @@ pub fn species_wall_potential(
                 "(missing)",
                 "a well at the walls needs both its depth and its range (wall_well_range_nm)",
             ))
+        }
+    }
+    if let Some(Shape::Membrane(m)) = geometry.map(|g| &g.shape) {
+        // The baths emit as if diffusion were free at their faces: the walls' pull must have died out there.
+        let reach = p.range_nm(1e-3 * thermal_energy_pn_nm(temperature_k));
+        let room = m.reservoir_depth_nm() - species.radius_nm;
+        if reach >= room {
+            return Err(invalid(
+                file,
+                key(first_key),
+                "(given)",
+                &format!(
+                    "in a membrane the wall interaction must fade (below 0.001 k_BT) before the bath faces: it reaches {reach:.2} nm \
+                     from the membrane's faces, but the reservoirs leave {room:.2} nm for the centre; deepen the reservoirs \
+                     (box.edges_nm[2]) or shorten the interaction"
+                ),
+            ));
         }
     }
     Ok(p)

@@ -376,6 +376,8 @@ pub struct NearestWall {
     pub force_nm: [f64; 3],
     /// 1/σ0², 1/nm².
     pub inverse_variance: f64,
+    /// Whether the walls exert a soft force (the table's last column, along the normal).
+    pub potential: bool,
 }
 
 impl Displacement for NearestWall {
@@ -393,7 +395,7 @@ impl Displacement for NearestWall {
         let v = self.table.eval(w.distance_nm - self.radius_nm);
         let n = w.normal;
         let along_normal = xi[0] * n[0] + xi[1] * n[1] + xi[2] * n[2];
-        let drift = if self.ito_drift {
+        let mut drift = if self.ito_drift {
             let div = w
                 .normal_divergence_per_nm
                 .clamp(-self.divergence_cap_per_nm, self.divergence_cap_per_nm);
@@ -401,6 +403,10 @@ impl Displacement for NearestWall {
         } else {
             0.0
         };
+        if self.potential {
+            // −∇U(d) = F(d) n with n = ∇d: a gradient field, so the equilibrium is exp(−U(d)/k_BT).
+            drift += v[5];
+        }
         // D^½ ξ = σ∥ ξ + (σ⊥ − σ∥)(ξ·n) n, then the drift along n.
         let normal_part = (v[1] - v[0]) * along_normal + drift;
         let mut d = [

@@ -354,6 +354,7 @@ impl Stepper {
                         ito_drift: true,
                         force_nm: drive.force_nm,
                         inverse_variance,
+                        potential: !potential.is_none(),
                     }),
                 };
                 let bath_sigma_nm = match (&geometry.shape, &table) {
