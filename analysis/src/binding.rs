@@ -122,3 +122,180 @@ mod tests {
         assert!((truncated_exponential_mean(k, w) - want).abs() < 1e-8);
     }
 }
+
+/// Caveat printed with every binding report.
+pub const FAST_EXCHANGE_CAVEAT: &str = "D_eff = D_free/(1 + K) (Crank, The Mathematics of Diffusion, 2nd ed., §14.2) is a model of \
+instantaneous exchange: it applies only when binding and release are fast against diffusion between obstacles; \
+D_free is the diffusivity in the same obstacles without binding (run the scenario without the binding keys)";
+
+/// What `analyze` measures of a binding species.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct BindingReport {
+    /// Species name.
+    pub species: String,
+    /// Frames used for the bound fraction: those from this time on (the
+    /// run's second half, past the approach to equilibrium), s.
+    pub from_s: f64,
+    /// Measured bound fraction with its block-average interval.
+    pub bound_fraction: crate::blocks::Interval,
+    /// How the blocks were chosen.
+    pub block_rule: String,
+    /// The model's K = p_on/p_off · V_layer/V_open (exact for the model) and its standard error.
+    pub predicted_k: [f64; 2],
+    /// K/(1 + K).
+    pub predicted_bound_fraction: f64,
+    /// Completed binding events in the file.
+    pub events: usize,
+    /// Dwell cut-off w = 5/k_off, s: events that began at least w before the
+    /// end with a dwell of at most w (uncensored; their law is exp(−k_off t) truncated at w).
+    pub cut_s: f64,
+    /// Mean of those dwell times and its standard error, s.
+    pub mean_dwell_s: [f64; 2],
+    /// The truncated law's mean, s (1/k_off less the cut's share).
+    pub expected_mean_dwell_s: f64,
+    /// KS test of those dwell times against exp(−k_off t) truncated at w.
+    pub ks_statistic: f64,
+    /// Its p-value.
+    pub ks_p_value: f64,
+    /// Dwell times tested.
+    pub ks_n: usize,
+    /// Fast-exchange D_eff/D_free = 1/(1 + K).
+    pub fast_exchange_ratio: f64,
+    /// Measured D_eff, m²/s (the MSD fit of the report).
+    pub d_eff_m2_per_s: f64,
+    /// D_free the fast-exchange model implies, D_eff·(1 + K), m²/s.
+    pub implied_d_free_m2_per_s: f64,
+    /// The model's condition.
+    pub caveat: String,
+}
+
+/// The binding report of `species` in the trajectory at `path`, whose
+/// stored scenario is `scenario`; `None` when the species does not bind.
+/// `d_eff_m2_per_s` is the D_eff the MSD analysis measured.
+///
+/// # Errors
+/// HDF5 failures or missing binding datasets (the analysis' errors, naming
+/// the file and dataset), obstacles that cannot be rebuilt.
+pub fn binding_report(
+    path: &std::path::Path,
+    scenario: &thicket_engine::Scenario,
+    species: &str,
+    d_eff_m2_per_s: f64,
+) -> Result<Option<BindingReport>, Box<dyn std::error::Error + Send + Sync>> {
+    use crate::blocks::{
+        block_length, block_ranges, block_rule_text, integrated_autocorrelation_time, Interval,
+    };
+    use crate::error::Error;
+    let Some(spec) = scenario
+        .species
+        .iter()
+        .find(|s| s.name == species)
+        .and_then(|s| s.binding.map(|b| (s, b)))
+    else {
+        return Ok(None);
+    };
+    let (s, spec) = spec;
+    let file = hdf5::File::open(path).map_err(|e| Error::hdf5(path, "/", e))?;
+    let read_f64 = |set: &str| {
+        file.dataset(set)
+            .and_then(|d| d.read_raw::<f64>())
+            .map_err(|e| Error::hdf5(path, set, e))
+    };
+    let base = format!("observables/{species}");
+    let bound_set = format!("{base}/bound/value");
+    let bound: Vec<i64> = file
+        .dataset(&bound_set)
+        .and_then(|d| d.read_raw::<i64>())
+        .map_err(|e| Error::hdf5(path, &bound_set, e))?;
+    let times = read_f64(&format!("{base}/bound/time"))?;
+    let n = s.count;
+    let frames = times.len().min(bound.len() / n.max(1));
+    let fraction: Vec<f64> = (0..frames)
+        .map(|f| bound[f * n..(f + 1) * n].iter().sum::<i64>() as f64 / n as f64)
+        .collect();
+    let end = times.get(frames.wrapping_sub(1)).copied().unwrap_or(0.0);
+    let first = frames / 2;
+    let series = &fraction[first..];
+    let tau = integrated_autocorrelation_time(series);
+    let len = block_length(tau);
+    let blocks: Vec<f64> = block_ranges(series.len(), len)
+        .into_iter()
+        .map(|r| series[r.clone()].iter().sum::<f64>() / r.len() as f64)
+        .collect();
+    let mean = series.iter().sum::<f64>() / series.len().max(1) as f64;
+    let frame_s = if frames > 1 { times[1] - times[0] } else { 0.0 };
+    let obstacles = thicket_engine::obstacles::FixedObstacles::build(scenario)?;
+    let share = obstacles.layer_share(
+        &scenario.sim_box,
+        s.radius_nm,
+        spec.layer_nm,
+        crate::check_report::CHECK_SAMPLES,
+        scenario.seed,
+    );
+    let ratio = spec.stepped_ratio(scenario.dt_s);
+    let k = ratio * share.value;
+    let dwell = read_f64(&format!("{base}/binding_events/dwell_time"))?;
+    let began = read_f64(&format!("{base}/binding_events/bound_time"))?;
+    let cut = 5.0 / spec.off_rate_per_s;
+    let kept = uncensored_dwells(&dwell, &began, end, cut);
+    let ks = ks_test(&kept, truncated_exponential_cdf(spec.off_rate_per_s, cut));
+    let m = kept.iter().sum::<f64>() / kept.len().max(1) as f64;
+    let var = kept.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (kept.len().max(2) - 1) as f64;
+    Ok(Some(BindingReport {
+        species: species.to_string(),
+        from_s: times.get(first).copied().unwrap_or(0.0),
+        bound_fraction: Interval::from_samples(mean, &blocks),
+        block_rule: block_rule_text(tau, len, blocks.len(), frame_s),
+        predicted_k: [k, ratio * share.standard_error],
+        predicted_bound_fraction: k / (1.0 + k),
+        events: dwell.len(),
+        cut_s: cut,
+        mean_dwell_s: [m, (var / kept.len().max(1) as f64).sqrt()],
+        expected_mean_dwell_s: truncated_exponential_mean(spec.off_rate_per_s, cut),
+        ks_statistic: ks.statistic,
+        ks_p_value: ks.p_value,
+        ks_n: ks.n,
+        fast_exchange_ratio: fast_exchange_ratio(k),
+        d_eff_m2_per_s,
+        implied_d_free_m2_per_s: d_eff_m2_per_s * (1.0 + k),
+        caveat: FAST_EXCHANGE_CAVEAT.to_string(),
+    }))
+}
+
+impl BindingReport {
+    /// The report as text lines.
+    pub fn to_table(&self) -> String {
+        use std::fmt::Write as _;
+        let mut s = String::new();
+        let _ = writeln!(s, "binding of '{}' to the obstacles", self.species);
+        let _ = writeln!(
+            s,
+            "  bound fraction   {} measured (frames from {:.3e} s on); K/(1+K) = {:.4} predicted, K = p_on/p_off · V_layer/V_open = {:.4} ± {:.4} (exact for the model)",
+            self.bound_fraction.describe(4),
+            self.from_s,
+            self.predicted_bound_fraction,
+            self.predicted_k[0],
+            self.predicted_k[1]
+        );
+        let _ = writeln!(s, "                   {}", self.block_rule);
+        let _ = writeln!(
+            s,
+            "  dwell times      {} events; {} uncensored (began ≥ w = 5/k_off = {:.3e} s before the end, dwell ≤ w): mean {:.4e} ± {:.1e} s against {:.4e} s (exp(-k_off t) truncated at w); KS D = {:.4}, p = {:.3} against exp(-k_off t)",
+            self.events,
+            self.ks_n,
+            self.cut_s,
+            self.mean_dwell_s[0],
+            self.mean_dwell_s[1],
+            self.expected_mean_dwell_s,
+            self.ks_statistic,
+            self.ks_p_value
+        );
+        let _ = writeln!(
+            s,
+            "  fast exchange    D_eff/D_free = 1/(1+K) = {:.4} (model); measured D_eff = {:.4e} m²/s, so the model implies D_free = D_eff (1+K) = {:.4e} m²/s",
+            self.fast_exchange_ratio, self.d_eff_m2_per_s, self.implied_d_free_m2_per_s
+        );
+        let _ = writeln!(s, "  caution          {}", self.caveat);
+        s
+    }
+}
