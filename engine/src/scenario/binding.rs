@@ -78,6 +78,16 @@ pub struct BindingContext {
     pub periodic: bool,
 }
 
+/// A number as a message shows it: e-notation when very large or small.
+fn show(value: f64) -> String {
+    let a = value.abs();
+    if a != 0.0 && a.is_finite() && !(1e-4..1e7).contains(&a) {
+        format!("{value:e}")
+    } else {
+        value.to_string()
+    }
+}
+
 fn invalid(file: &Path, key: String, value: String, allowed: impl Into<String>) -> EngineError {
     EngineError::InvalidValue {
         file: file.to_path_buf(),
@@ -119,7 +129,7 @@ pub fn species_binding(
             ),
         ));
     }
-    let refuse = |reason: &str| Err(invalid(file, key(first), v.to_string(), reason));
+    let refuse = |reason: &str| Err(invalid(file, key(first), show(v), reason));
     if context.crowders {
         return refuse(
             "binding is only implemented for tracers among fixed obstacles, not in a scenario with crowders \
@@ -150,7 +160,7 @@ pub fn species_binding(
             Err(invalid(
                 file,
                 key(k),
-                v.to_string(),
+                show(v),
                 format!("it must be a finite number from {lo:e} to {hi:e} {unit}"),
             ))
         }
