@@ -311,6 +311,12 @@ impl Observer for WallsAndBaths<'_> {
     }
 }
 
+/// One species' particle range, and its bound series and events when it binds.
+type Binder = (
+    std::ops::Range<usize>,
+    Option<(ObservableSeries, BindingEvents)>,
+);
+
 /// Binding to the obstacles: each binding species' bound state at every
 /// frame (`/observables/<species>/bound`, 1 bound, 0 free) and its completed
 /// events (`/observables/<species>/binding_events`), written at frames;
@@ -318,10 +324,7 @@ impl Observer for WallsAndBaths<'_> {
 pub struct Tethers<'a> {
     scenario: &'a Scenario,
     /// Per species: its particle range and its series and events when it binds.
-    binders: Vec<(
-        std::ops::Range<usize>,
-        Option<(ObservableSeries, BindingEvents)>,
-    )>,
+    binders: Vec<Binder>,
     /// Completed events not yet written: (species, dwell s, bound at s, particle within species).
     pending: Vec<(usize, f64, f64, i64)>,
 }
