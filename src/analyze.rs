@@ -118,16 +118,36 @@ pub fn analyze_trajectory(args: &TrajectoryArgs) -> Result<ExitCode> {
     } else {
         None
     };
+    // Binding species: bound fraction, dwell times and the fast-exchange model, per file.
+    let binding = match (
+        more.is_empty(),
+        thicket_analysis::report::stored_scenario(file),
+    ) {
+        (true, Some(scenario)) => thicket_analysis::binding::binding_report(
+            file,
+            &scenario,
+            &report.species,
+            report.d_eff_m2_per_s,
+        )
+        .map_err(|e| anyhow::anyhow!("{}: binding record: {e}", file.display()))?,
+        _ => None,
+    };
     if as_json {
         let mut value = serde_json::to_value(report)?;
         if let (Some(p), Some(map)) = (&partition, value.as_object_mut()) {
             map.insert("partition".into(), serde_json::to_value(p)?);
+        }
+        if let (Some(b), Some(map)) = (&binding, value.as_object_mut()) {
+            map.insert("binding".into(), serde_json::to_value(b)?);
         }
         println!("{}", serde_json::to_string_pretty(&value)?);
     } else {
         print!("{}", report.to_table());
         if let Some(p) = &partition {
             print!("{}", p.to_table());
+        }
+        if let Some(b) = &binding {
+            print!("{}", b.to_table());
         }
         println!("{}", thicket_analysis::sweep::CAUTION);
     }

@@ -70,6 +70,7 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             "memory_estimate_bytes": report.memory_estimate_bytes,
             "drive": report.drive,
             "wall_interactions": report.interactions,
+            "binding": report.binding,
         });
         if let Some(c) = &confinement {
             // The first species' values at the top level; every species under "confinement".
@@ -228,6 +229,17 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
         println!(
             "  walls      species '{}': {debye}electrostatic energy at contact {:.4} k_BT (linear superposition, Bell, Levine & McCartney 1970), well {:.4} k_BT{partition}",
             i.species, i.electrostatic_contact_kt, i.well_depth_kt
+        );
+    }
+    for b in &report.binding {
+        println!(
+            "  binding    species '{}': layer share V_layer/V_open = {:.4} ± {:.4} (Monte Carlo); K = N_bound/N_free = p_on/p_off · V_layer/V_open = {:.4} ± {:.4} \
+             (exact for the model; k_on/k_off · V_layer/V_open = {:.4} as Δt → 0); bound fraction K/(1+K) = {:.4}; mean dwell 1/k_off = {:.3e} s",
+            b.species, b.layer_share, b.layer_share_se, b.k, b.k_se, b.k_continuous, b.bound_fraction, b.mean_dwell_s
+        );
+        println!(
+            "             fast-exchange D_eff/D_free = 1/(1+K) = {:.4} (Crank, The Mathematics of Diffusion, 2nd ed., §14.2): a model, valid only when binding and release are fast against diffusion between obstacles",
+            b.fast_exchange_ratio
         );
     }
     for d in &report.drive {

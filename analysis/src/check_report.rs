@@ -48,6 +48,31 @@ pub struct CheckReport {
     pub drive: Vec<SpeciesDrive>,
     /// Soft wall interactions per species (empty without them).
     pub interactions: Vec<SpeciesInteraction>,
+    /// Reversible binding per binding species (empty when none binds).
+    pub binding: Vec<SpeciesBinding>,
+}
+
+/// What the binding model predicts for one species.
+#[derive(Debug, Clone, Serialize)]
+pub struct SpeciesBinding {
+    /// Species name.
+    pub species: String,
+    /// V_layer/V_open (Monte Carlo over the scenario's own obstacles).
+    pub layer_share: f64,
+    /// Its standard error.
+    pub layer_share_se: f64,
+    /// K = N_bound/N_free = p_on/p_off · V_layer/V_open, exact for the stepped model.
+    pub k: f64,
+    /// Its standard error (from the share's).
+    pub k_se: f64,
+    /// The continuous-time K = k_on/k_off · V_layer/V_open (the limit Δt → 0).
+    pub k_continuous: f64,
+    /// Equilibrium bound fraction K/(1 + K).
+    pub bound_fraction: f64,
+    /// Fast-exchange D_eff/D_free = 1/(1 + K) (Crank §14.2; only when exchange is fast).
+    pub fast_exchange_ratio: f64,
+    /// Mean dwell time 1/k_off, s.
+    pub mean_dwell_s: f64,
 }
 
 /// The soft wall interaction of one species, and the partition it implies.
@@ -369,7 +394,40 @@ pub fn check_report(scenario: &Scenario) -> Result<CheckReport, CheckError> {
         confinement: confinement(scenario)?,
         drive: drive(scenario),
         interactions: interactions(scenario),
+        binding: binding(scenario, &obstacles),
     })
+}
+
+/// The binding model's predictions for each binding species: K from the
+/// layer share of the scenario's own obstacles (REFERENCES.md "Reversible binding").
+fn binding(scenario: &Scenario, obstacles: &FixedObstacles) -> Vec<SpeciesBinding> {
+    scenario
+        .species
+        .iter()
+        .filter_map(|s| {
+            let spec = s.binding?;
+            let share = obstacles.layer_share(
+                &scenario.sim_box,
+                s.radius_nm,
+                spec.layer_nm,
+                CHECK_SAMPLES,
+                scenario.seed,
+            );
+            let ratio = spec.stepped_ratio(scenario.dt_s);
+            let k = ratio * share.value;
+            Some(SpeciesBinding {
+                species: s.name.clone(),
+                layer_share: share.value,
+                layer_share_se: share.standard_error,
+                k,
+                k_se: ratio * share.standard_error,
+                k_continuous: spec.rate_ratio() * share.value,
+                bound_fraction: k / (1.0 + k),
+                fast_exchange_ratio: crate::binding::fast_exchange_ratio(k),
+                mean_dwell_s: 1.0 / spec.off_rate_per_s,
+            })
+        })
+        .collect()
 }
 
 /// Each species' wall interaction and its Boltzmann partition coefficient.

@@ -1,3 +1,4 @@
+pub mod binding;
 pub mod blocks;
 pub mod camera;
 pub mod check_report;

@@ -655,3 +655,86 @@ fn an_edited_sweep_grid_reruns_the_changed_points() {
     let ratio = first["d0_m2_per_s"].as_f64().unwrap() / edited["d0_m2_per_s"].as_f64().unwrap();
     assert!((ratio - 2.0).abs() < 1e-9, "D0 ratio {ratio}");
 }
+
+// Binding keys: all three or none, each in its range, and only for tracers
+// among fixed obstacles in a periodic box without crowders or a geometry.
+#[test]
+fn binding_keys_are_checked() {
+    let d = tempdir();
+    let keys =
+        "count = 20\nbinding_layer_nm = 1.0\nbinding_rate_per_s = 1e5\nunbinding_rate_per_s = 1e4";
+    let fibres = "[fibres]\nradius_nm = 2.0\ncount = 3\n[integrator]";
+    let among = BASE
+        .replace("count = 20", keys)
+        .replace("[integrator]", fibres);
+    fails(
+        d.path(),
+        &BASE
+            .replace("count = 20", "count = 20\nbinding_rate_per_s = 1e5")
+            .replace("[integrator]", fibres),
+        "check",
+        &[],
+        &[
+            "bad.toml",
+            "species[0].binding_layer_nm",
+            "(missing)",
+            "all three",
+            "no defaults",
+        ],
+    );
+    fails(
+        d.path(),
+        &among.replace("unbinding_rate_per_s = 1e4", "unbinding_rate_per_s = -5.0"),
+        "check",
+        &[],
+        &[
+            "bad.toml",
+            "species[0].unbinding_rate_per_s",
+            "-5",
+            "finite number from",
+            "per second",
+        ],
+    );
+    fails(
+        d.path(),
+        &among.replace("binding_layer_nm = 1.0", "binding_layer_nm = 0.0"),
+        "check",
+        &[],
+        &["bad.toml", "species[0].binding_layer_nm", "0", "nm"],
+    );
+    fails(
+        d.path(),
+        &BASE.replace("count = 20", keys),
+        "check",
+        &[],
+        &[
+            "bad.toml",
+            "species[0].binding_layer_nm",
+            "1",
+            "[obstacles] or [fibres]",
+        ],
+    );
+    fails(
+        d.path(),
+        &among.replace("[fibres]", "[[species]]\nname = \"crowd\"\nradius_nm = 3.0\ncount = 10\nrole = \"crowder\"\n[fibres]"),
+        "check",
+        &[],
+        &["bad.toml", "species[0].binding_layer_nm", "crowder"],
+    );
+    fails(
+        d.path(),
+        &among.replace("[integrator]", "[geometry]\nkind = \"slit\"\n[integrator]"),
+        "check",
+        &[],
+        &["bad.toml", "species[0].binding_layer_nm", "[geometry]"],
+    );
+    // A run refused for bad binding keys writes nothing.
+    fails(
+        d.path(),
+        &among.replace("binding_rate_per_s = 1e5", "binding_rate_per_s = 1e99"),
+        "run",
+        &["--out", d.path().join("out.h5").to_str().unwrap()],
+        &["bad.toml", "species[0].binding_rate_per_s", "1e99"],
+    );
+    assert!(!d.path().join("out.h5").exists());
+}

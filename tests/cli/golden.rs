@@ -105,6 +105,14 @@ const CASES: &[(&str, &[&str])] = &[
         ],
     ),
     (
+        "configs/sticky-fibres.toml",
+        &[
+            "species.stickybead.count=300",
+            "integrator.steps=400",
+            "output.record_every_steps=40",
+        ],
+    ),
+    (
         "configs/demo/hydrogel.toml",
         &[
             "species.marker.count=300",

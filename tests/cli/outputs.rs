@@ -236,3 +236,45 @@ fn progress_reaches_logs_every_tenth() {
     assert!(lines.len() >= 10, "progress lines:\n{err}");
     assert!(lines.last().unwrap().contains("100%"), "{err}");
 }
+
+// A binding run: `check` prints the model's K and the fast-exchange ratio,
+// `analyze` the measured bound fraction, the dwell-time test and the
+// fast-exchange caveat, in text and JSON.
+#[test]
+fn binding_is_checked_and_analysed() {
+    let dir = tempdir();
+    let config = repo("configs/sticky-fibres.toml");
+    let cfg = config.to_str().unwrap();
+    let check = ok(&thicket(dir.path(), &["check", cfg]));
+    assert!(check.contains("K = N_bound/N_free = p_on/p_off"), "{check}");
+    assert!(
+        check.contains("fast-exchange D_eff/D_free = 1/(1+K)"),
+        "{check}"
+    );
+    let sets = [
+        "--set",
+        "species.stickybead.count=200",
+        "--set",
+        "integrator.steps=20000",
+        "--set",
+        "output.record_every_steps=500",
+    ];
+    let mut args = vec!["run", cfg, "--out", "s.h5"];
+    args.extend(sets);
+    ok(&thicket(dir.path(), &args));
+    let text = ok(&thicket(dir.path(), &["analyze", "s.h5"]));
+    for needle in [
+        "binding of 'stickybead'",
+        "bound fraction",
+        "KS D =",
+        "fast exchange",
+        "applies only when binding and release are fast",
+    ] {
+        assert!(text.contains(needle), "{needle:?} missing: {text}");
+    }
+    let json: serde_json::Value =
+        serde_json::from_str(&ok(&thicket(dir.path(), &["analyze", "s.h5", "--json"]))).unwrap();
+    let b = &json["binding"];
+    assert!(b["events"].as_u64().unwrap() > 0, "{b}");
+    assert!(b["predicted_k"][0].as_f64().unwrap() > 0.0, "{b}");
+}

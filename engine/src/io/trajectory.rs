@@ -18,10 +18,11 @@ use crate::base::error::{EngineError, Result};
 use crate::base::rng::ParticleRng;
 use crate::obstacles::spheres::FixedObstacles;
 use crate::scenario::config::{Precision, Scenario};
-use crate::step::state::State;
+use crate::step::state::{State, Tether};
 use hdf5::types::FixedAscii;
 use hdf5::{Dataset, File, Group, Location};
 use ndarray::{s, Array1, Array3};
+use std::fmt::Write as _;
 use std::io::{Read, Write};
 use std::path::{Path, PathBuf};
 
@@ -558,8 +559,17 @@ impl Checkpoint {
                 buf.extend_from_slice(&w.to_le_bytes());
             }
         }
-        buf.extend_from_slice(&(self.parts.len() as u64).to_le_bytes());
-        for (name, text) in &self.parts {
+        // Binding state travels as one more part, so runs without binding keep the format as it was.
+        let tethers = (!self.state.binding.tethers.is_empty()).then(|| {
+            (
+                TETHERS_PART.to_string(),
+                tethers_text(&self.state.binding.tethers),
+            )
+        });
+        buf.extend_from_slice(
+            &((self.parts.len() + tethers.is_some() as usize) as u64).to_le_bytes(),
+        );
+        for (name, text) in self.parts.iter().chain(&tethers) {
             for s in [name, text] {
                 buf.extend_from_slice(&(s.len() as u64).to_le_bytes());
                 buf.extend_from_slice(s.as_bytes());
@@ -684,6 +694,12 @@ impl Checkpoint {
         if r.at != body.len() {
             return Err(damaged("its particle count does not match its size"));
         }
+        let mut binding = crate::step::state::Binding::default();
+        if let Some(k) = parts.iter().position(|(name, _)| name == TETHERS_PART) {
+            let (_, text) = parts.remove(k);
+            binding.tethers =
+                parse_tethers(&text, n).ok_or_else(|| damaged("its binding state"))?;
+        }
         Ok(Self {
             parts,
             frames,
@@ -693,9 +709,57 @@ impl Checkpoint {
                 images,
                 rngs,
                 step,
+                binding,
             },
         })
     }
+}
+
+/// Name of the checkpoint part that holds who is bound.
+const TETHERS_PART: &str = "tethers";
+
+/// One line per particle: `-` when free, else the bind and release steps
+/// and the dwell time's bits (exact), in hexadecimal.
+fn tethers_text(tethers: &[Option<Tether>]) -> String {
+    let mut out = String::with_capacity(tethers.len() * 4);
+    for t in tethers {
+        match t {
+            None => out.push_str("-\n"),
+            Some(t) => {
+                let _ = writeln!(
+                    out,
+                    "{:x} {:x} {:x}",
+                    t.since_step,
+                    t.until_step,
+                    t.dwell_s.to_bits()
+                );
+            }
+        }
+    }
+    out
+}
+
+/// Reads [`tethers_text`] back; `None` when it is damaged or not `n` lines.
+fn parse_tethers(text: &str, n: usize) -> Option<Vec<Option<Tether>>> {
+    let out: Option<Vec<Option<Tether>>> = text
+        .lines()
+        .map(|line| {
+            if line == "-" {
+                return Some(None);
+            }
+            let mut w = line.split(' ').map(|v| u64::from_str_radix(v, 16).ok());
+            let (since_step, until_step, bits) = (w.next()??, w.next()??, w.next()??);
+            let dwell_s = f64::from_bits(bits);
+            (w.next().is_none() && dwell_s.is_finite() && since_step < until_step).then_some(Some(
+                Tether {
+                    since_step,
+                    until_step,
+                    dwell_s,
+                },
+            ))
+        })
+        .collect();
+    out.filter(|v| v.len() == n)
 }
 
 /// Frames and recorded steps of a trajectory, read without changing it:
@@ -966,6 +1030,183 @@ impl ObservableSeries {
             .write_slice(&Array1::from_elem(1, time_s), s![f..f + 1])
             .map_err(&e)?;
         self.rows += 1;
+        Ok(())
+    }
+}
+
+impl ObservableSeries {
+    /// Creates an empty series of one column per particle (a species'
+    /// per-particle state at each frame); the `meaning` attribute of `value`
+    /// says what its numbers are.
+    ///
+    /// # Errors
+    /// HDF5 failures.
+    pub fn create_per_particle(
+        writer: &TrajectoryWriter,
+        name: &str,
+        width: usize,
+        unit: &str,
+        meaning: &str,
+    ) -> Result<Self> {
+        let e = h5(&writer.path);
+        let g = ensure_group(&writer.file, &format!("observables/{name}")).map_err(&e)?;
+        let value = g
+            .new_dataset::<i64>()
+            .shape((0.., width))
+            .chunk((chunk_frames(width), width.max(1)))
+            .create("value")
+            .map_err(&e)?;
+        write_str_attr(&value, "unit", unit).map_err(&e)?;
+        write_str_attr(&value, "meaning", &to_ascii(meaning)).map_err(&e)?;
+        let step = g
+            .new_dataset::<i64>()
+            .shape(0..)
+            .chunk(1024)
+            .create("step")
+            .map_err(&e)?;
+        let time = g
+            .new_dataset::<f64>()
+            .shape(0..)
+            .chunk(1024)
+            .create("time")
+            .map_err(&e)?;
+        write_str_attr(&time, "unit", "s").map_err(&e)?;
+        Ok(Self {
+            path: writer.path.clone(),
+            value,
+            step,
+            time,
+            columns: width,
+            rows: 0,
+        })
+    }
+}
+
+/// Completed binding events of one species under
+/// `/observables/<species>/binding_events`: `dwell_time` (s), `bound_time`
+/// (s, when the event began) and `particle` (index within the species), one
+/// entry per event in order of release, appended at each frame.
+pub struct BindingEvents {
+    path: PathBuf,
+    dwell: Dataset,
+    bound: Dataset,
+    particle: Dataset,
+    rows: usize,
+}
+
+/// Group of a species' binding events under `/observables`.
+fn events_group(species: &str) -> String {
+    format!("observables/{species}/binding_events")
+}
+
+impl BindingEvents {
+    /// Creates the empty event datasets of `species`.
+    ///
+    /// # Errors
+    /// HDF5 failures.
+    pub fn create(writer: &TrajectoryWriter, species: &str) -> Result<Self> {
+        let e = h5(&writer.path);
+        let g = ensure_group(&writer.file, &events_group(species)).map_err(&e)?;
+        let f64_set = |name: &str, meaning: &str| -> hdf5::Result<Dataset> {
+            let d = g.new_dataset::<f64>().shape(0..).chunk(4096).create(name)?;
+            write_str_attr(&d, "unit", "s")?;
+            write_str_attr(&d, "meaning", meaning)?;
+            Ok(d)
+        };
+        let dwell = f64_set(
+            "dwell_time",
+            "dwell time of each completed binding event, drawn from exp(-k_off t); the tracer was held \
+             until the first step end at or after it",
+        )
+        .map_err(&e)?;
+        let bound = f64_set(
+            "bound_time",
+            "time at which the event began (the tracer bound)",
+        )
+        .map_err(&e)?;
+        let particle = g
+            .new_dataset::<i64>()
+            .shape(0..)
+            .chunk(4096)
+            .create("particle")
+            .map_err(&e)?;
+        write_str_attr(
+            &particle,
+            "meaning",
+            "index of the tracer within its species",
+        )
+        .map_err(&e)?;
+        Ok(Self {
+            path: writer.path.clone(),
+            dwell,
+            bound,
+            particle,
+            rows: 0,
+        })
+    }
+
+    /// Reopens the datasets for a resumed run, keeping their first `rows` entries.
+    ///
+    /// # Errors
+    /// [`EngineError::Resume`] when a dataset is missing or shorter.
+    pub fn reopen(writer: &TrajectoryWriter, species: &str, rows: usize) -> Result<Self> {
+        let group = events_group(species);
+        let fail = |reason: String| EngineError::Resume {
+            file: writer.path.clone(),
+            reason,
+        };
+        let e = h5(&writer.path);
+        let open = |set: &str| -> Result<Dataset> {
+            let d = writer
+                .file
+                .dataset(&format!("{group}/{set}"))
+                .map_err(|err| {
+                    fail(format!(
+                        "dataset /{group}/{set} is missing or unreadable: {err}"
+                    ))
+                })?;
+            if d.shape().first().copied().unwrap_or(0) < rows {
+                return Err(fail(format!(
+                    "/{group}/{set} holds fewer than the checkpoint's {rows} events"
+                )));
+            }
+            d.resize(rows).map_err(&e)?;
+            Ok(d)
+        };
+        Ok(Self {
+            path: writer.path.clone(),
+            dwell: open("dwell_time")?,
+            bound: open("bound_time")?,
+            particle: open("particle")?,
+            rows,
+        })
+    }
+
+    /// Events written so far.
+    pub fn rows(&self) -> usize {
+        self.rows
+    }
+
+    /// Appends events given as (dwell s, bound at s, particle index).
+    ///
+    /// # Errors
+    /// HDF5 failures.
+    pub fn append(&mut self, events: &[(f64, f64, i64)]) -> Result<()> {
+        if events.is_empty() {
+            return Ok(());
+        }
+        let e = h5(&self.path);
+        let (a, b) = (self.rows, self.rows + events.len());
+        let col = |k: usize| Array1::from_iter(events.iter().map(|v| [v.0, v.1][k]));
+        self.dwell.resize(b).map_err(&e)?;
+        self.dwell.write_slice(&col(0), s![a..b]).map_err(&e)?;
+        self.bound.resize(b).map_err(&e)?;
+        self.bound.write_slice(&col(1), s![a..b]).map_err(&e)?;
+        self.particle.resize(b).map_err(&e)?;
+        self.particle
+            .write_slice(&Array1::from_iter(events.iter().map(|v| v.2)), s![a..b])
+            .map_err(&e)?;
+        self.rows = b;
         Ok(())
     }
 }

@@ -276,6 +276,47 @@ impl FixedObstacles {
     }
 }
 
+impl FixedObstacles {
+    /// V_layer/V_open for a tracer of radius `tracer_radius_nm` that binds
+    /// within `layer_nm` of the obstacles' excluded surfaces, in a periodic
+    /// box: the share of the open points (outside every obstacle grown by
+    /// the radius) that lie within the layer (inside some obstacle grown by
+    /// the radius plus the layer). Monte Carlo over `samples` uniform points
+    /// of the seeded [`SAMPLING_STREAM`]; binomial standard error among the
+    /// open points.
+    pub fn layer_share(
+        &self,
+        sim_box: &SimBox,
+        tracer_radius_nm: f64,
+        layer_nm: f64,
+        samples: usize,
+        seed: u64,
+    ) -> Estimate {
+        let open = ObstacleGrid::build(&self.spheres, &self.fibres, tracer_radius_nm, sim_box);
+        let near = ObstacleGrid::build(
+            &self.spheres,
+            &self.fibres,
+            tracer_radius_nm + layer_nm,
+            sim_box,
+        );
+        let mut rng = ParticleRng::for_particle(seed, SAMPLING_STREAM);
+        let (mut n_open, mut n_layer) = (0usize, 0usize);
+        for _ in 0..samples.max(1) {
+            let p = [0, 1, 2].map(|k| rng.uniform() * sim_box.edges_nm[k]);
+            if !open.blocked(&p) {
+                n_open += 1;
+                n_layer += near.blocked(&p) as usize;
+            }
+        }
+        let m = n_open.max(1) as f64;
+        let q = n_layer as f64 / m;
+        Estimate {
+            value: q,
+            standard_error: (q * (1.0 - q) / m).sqrt(),
+        }
+    }
+}
+
 /// Fraction of uniform points in the box for which `open` holds.
 fn sample_fraction(
     sim_box: &SimBox,

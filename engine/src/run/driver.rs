@@ -5,7 +5,7 @@ use crate::base::error::{EngineError, Result};
 use crate::io::lock::OutputLock;
 use crate::io::trajectory::{checkpoint_path, recorded_steps, Checkpoint, TrajectoryWriter};
 use crate::obstacles::FixedObstacles;
-use crate::run::observe::{Frames, Observer, Progress, WallsAndBaths};
+use crate::run::observe::{Frames, Observer, Progress, Tethers, WallsAndBaths};
 use crate::run::part::PartRun;
 use crate::scenario::Scenario;
 use crate::step::pipeline::Stepper;
@@ -97,6 +97,9 @@ fn drive(
     let mut observers: Vec<Box<dyn Observer + '_>> = vec![Box::new(Frames)];
     if let Some(g) = &scenario.geometry {
         observers.push(Box::new(WallsAndBaths::new(scenario, g)));
+    }
+    if stepper.binds() {
+        observers.push(Box::new(Tethers::new(scenario)));
     }
     observers.push(Box::new(Progress {
         report: progress,

@@ -4,7 +4,9 @@
 //! A stepper never knows who watches it.
 
 use crate::base::error::{EngineError, Result};
-use crate::io::trajectory::{write_attributes, AttrValue, ObservableSeries, TrajectoryWriter};
+use crate::io::trajectory::{
+    write_attributes, AttrValue, BindingEvents, ObservableSeries, TrajectoryWriter,
+};
 use crate::run::membrane::{geometry_attributes, MembraneMeter, MEMBRANE_COLUMNS};
 use crate::scenario::geometry::Geometry;
 use crate::scenario::Scenario;
@@ -306,5 +308,177 @@ impl Observer for WallsAndBaths<'_> {
             write_attributes(w, &format!("observables/{}/membrane", sp.name), &attrs)?;
         }
         Ok(())
+    }
+}
+
+/// One species' particle range, and its bound series and events when it binds.
+type Binder = (
+    std::ops::Range<usize>,
+    Option<(ObservableSeries, BindingEvents)>,
+);
+
+/// Binding to the obstacles: each binding species' bound state at every
+/// frame (`/observables/<species>/bound`, 1 bound, 0 free) and its completed
+/// events (`/observables/<species>/binding_events`), written at frames;
+/// events completed since the last frame wait in the checkpoint.
+pub struct Tethers<'a> {
+    scenario: &'a Scenario,
+    /// Per species: its particle range and its series and events when it binds.
+    binders: Vec<Binder>,
+    /// Completed events not yet written: (species, dwell s, bound at s, particle within species).
+    pending: Vec<(usize, f64, f64, i64)>,
+}
+
+impl<'a> Tethers<'a> {
+    /// The observer of a scenario in which some species binds.
+    pub fn new(scenario: &'a Scenario) -> Self {
+        let mut start = 0;
+        let binders = scenario
+            .species
+            .iter()
+            .map(|s| {
+                start += s.count;
+                (start - s.count..start, None)
+            })
+            .collect();
+        Self {
+            scenario,
+            binders,
+            pending: Vec::new(),
+        }
+    }
+
+    fn binds(&self, s: usize) -> bool {
+        self.scenario.species[s].binding.is_some()
+    }
+}
+
+/// What `/observables/<species>/bound` holds.
+const BOUND_MEANING: &str = "1 when the tracer is bound to an obstacle at the frame, 0 when free";
+
+impl Observer for Tethers<'_> {
+    fn name(&self) -> &'static str {
+        "binding"
+    }
+
+    fn start(&mut self, w: &mut TrajectoryWriter, stepper: &Stepper, state: &State) -> Result<()> {
+        for s in 0..self.binders.len() {
+            if self.binds(s) {
+                let name = &self.scenario.species[s].name;
+                let width = self.binders[s].0.len();
+                self.binders[s].1 = Some((
+                    ObservableSeries::create_per_particle(
+                        w,
+                        &format!("{name}/bound"),
+                        width,
+                        "1",
+                        BOUND_MEANING,
+                    )?,
+                    BindingEvents::create(w, name)?,
+                ));
+            }
+        }
+        self.frame(w, stepper, state, 0.0)
+    }
+
+    fn resume(&mut self, w: &mut TrajectoryWriter, part: Option<&str>) -> Result<()> {
+        let fail = |reason: &str| EngineError::Resume {
+            file: w.path().to_path_buf(),
+            reason: format!("the checkpoint's binding record is {reason}"),
+        };
+        let text = part.ok_or_else(|| fail("missing"))?;
+        let mut lines = text.lines();
+        let rows: Vec<usize> = lines
+            .next()
+            .ok_or_else(|| fail("empty"))?
+            .split(' ')
+            .map(|v| v.parse().map_err(|_| fail("damaged")))
+            .collect::<Result<_>>()?;
+        if rows.len() != self.binders.len() {
+            return Err(fail("for another number of species"));
+        }
+        for line in lines {
+            let v: Vec<&str> = line.split(' ').collect();
+            let parsed = (|| {
+                let s: usize = v.first()?.parse().ok()?;
+                let dwell = f64::from_bits(u64::from_str_radix(v.get(1)?, 16).ok()?);
+                let at = f64::from_bits(u64::from_str_radix(v.get(2)?, 16).ok()?);
+                let i: i64 = v.get(3)?.parse().ok()?;
+                (v.len() == 4 && s < rows.len()).then_some((s, dwell, at, i))
+            })();
+            self.pending.push(parsed.ok_or_else(|| fail("damaged"))?);
+        }
+        for (s, &events) in rows.iter().enumerate() {
+            if self.binds(s) {
+                let name = &self.scenario.species[s].name;
+                let width = self.binders[s].0.len();
+                self.binders[s].1 = Some((
+                    ObservableSeries::reopen(w, &format!("{name}/bound"), width, w.frames())?,
+                    BindingEvents::reopen(w, name, events)?,
+                ));
+            }
+        }
+        Ok(())
+    }
+
+    fn block(&mut self, state: &State, _events: &[Counts]) {
+        let dt = self.scenario.dt_s;
+        for r in &state.binding.released {
+            let i = r.particle as usize;
+            if let Some(s) = self
+                .binders
+                .iter()
+                .position(|(range, _)| range.contains(&i))
+            {
+                let within = (i - self.binders[s].0.start) as i64;
+                self.pending
+                    .push((s, r.tether.dwell_s, r.tether.since_step as f64 * dt, within));
+            }
+        }
+    }
+
+    fn frame(
+        &mut self,
+        _w: &mut TrajectoryWriter,
+        _stepper: &Stepper,
+        state: &State,
+        time_s: f64,
+    ) -> Result<()> {
+        for (s, (range, sets)) in self.binders.iter_mut().enumerate() {
+            let Some((series, events)) = sets else {
+                continue;
+            };
+            let row: Vec<i64> = state.binding.tethers[range.clone()]
+                .iter()
+                .map(|t| t.is_some() as i64)
+                .collect();
+            series.append(state.step, time_s, &row)?;
+            let done: Vec<(f64, f64, i64)> = self
+                .pending
+                .iter()
+                .filter(|p| p.0 == s)
+                .map(|p| (p.1, p.2, p.3))
+                .collect();
+            events.append(&done)?;
+        }
+        self.pending.clear();
+        Ok(())
+    }
+
+    fn save(&self) -> Result<Option<String>> {
+        let mut text = self
+            .binders
+            .iter()
+            .map(|(_, sets)| sets.as_ref().map_or(0, |(_, e)| e.rows()).to_string())
+            .collect::<Vec<_>>()
+            .join(" ");
+        for (s, dwell, at, i) in &self.pending {
+            text.push_str(&format!(
+                "\n{s} {:x} {:x} {i}",
+                dwell.to_bits(),
+                at.to_bits()
+            ));
+        }
+        Ok(Some(text))
     }
 }

@@ -123,6 +123,7 @@ impl PartRun {
             images: Vec::with_capacity(self.scenario.particle_count()),
             rngs: Vec::with_capacity(self.scenario.particle_count()),
             step: full.step,
+            binding: Default::default(),
         };
         let mut start = 0;
         for s in &whole.species {
@@ -134,6 +135,9 @@ impl PartRun {
             state.images.extend_from_slice(&full.images[r.clone()]);
             state.rngs.extend_from_slice(&full.rngs[r]);
             start += s.count;
+        }
+        if !full.binding.tethers.is_empty() {
+            state.binding.tethers = vec![None; state.positions.len()];
         }
         Ok(state)
     }

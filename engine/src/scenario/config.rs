@@ -9,6 +9,7 @@
 
 use crate::base::error::{EngineError, Result};
 use crate::base::medium;
+use crate::scenario::binding::{species_binding, BindingContext, BindingKeys};
 pub use crate::scenario::csv::{read_numeric_csv, CsvRow};
 use crate::scenario::drive::{
     species_force_pn, thermal_energy_pn_nm, validate_flow, validate_forces, FlowSpec, RawFlow,
@@ -248,6 +249,15 @@ pub struct RawSpecies {
     /// Range of that well, nm.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub wall_well_range_nm: Option<f64>,
+    /// Thickness of the binding layer around the obstacles, nm (binding: all three keys or none).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub binding_layer_nm: Option<f64>,
+    /// Binding rate of a centre in the layer, 1/s.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub binding_rate_per_s: Option<f64>,
+    /// Unbinding rate, 1/s.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub unbinding_rate_per_s: Option<f64>,
 }
 
 /// `[integrator]`.
@@ -980,6 +990,7 @@ impl RawScenario {
                 crowder,
                 force_pn: [0.0; 3],
                 wall_potential: Default::default(),
+                binding: None,
             });
         }
 
@@ -1059,6 +1070,26 @@ impl RawScenario {
             None => None,
             Some(f) => Some(validate_fibres(f, file, &crowd_box, max_species_radius)?),
         };
+        for (i, (s, raw)) in species.iter_mut().zip(&self.species).enumerate() {
+            s.binding = species_binding(
+                file,
+                i,
+                &BindingKeys {
+                    layer_nm: raw.binding_layer_nm,
+                    on_rate_per_s: raw.binding_rate_per_s,
+                    off_rate_per_s: raw.unbinding_rate_per_s,
+                },
+                &BindingContext {
+                    crowders: self
+                        .species
+                        .iter()
+                        .any(|r| r.role.as_deref() == Some("crowder")),
+                    geometry: geometry.is_some(),
+                    obstacles: obstacles.is_some() || fibres.is_some(),
+                    periodic: periodic.iter().all(|&p| p),
+                },
+            )?;
+        }
         let flow = self.validate_drive(
             file,
             &mut species,

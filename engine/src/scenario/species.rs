@@ -24,6 +24,8 @@ pub struct Species {
     pub force_pn: [f64; 3],
     /// Soft interaction with the walls (none by default).
     pub wall_potential: crate::space::potentials::WallPotential,
+    /// Reversible binding to the fixed obstacles (none by default).
+    pub binding: Option<crate::scenario::binding::BindingSpec>,
 }
 
 impl Species {

@@ -1015,5 +1015,6 @@ pub fn place_crowd(
         images: vec![[0; 3]; n],
         rngs,
         step: 0,
+        binding: Default::default(),
     })
 }

@@ -3,6 +3,7 @@
 //! (`pipeline`); the crowd (mobile hard spheres) uses the same displacement
 //! and boundary pieces in its parallel sweep.
 
+pub mod binding;
 pub mod boundary;
 pub mod contact;
 pub mod crowd;

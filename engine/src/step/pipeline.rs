@@ -24,6 +24,7 @@ use crate::space::pore_hydro::{CylinderMobility, PoreModel};
 use crate::space::potentials::WallPotential;
 use crate::space::shape::Shape;
 use crate::space::SimBox;
+use crate::step::binding::Sticky;
 use crate::step::boundary::{
     Baths, Boundary, Counts, Events, Pore, Slab, Walls, PLACEMENT_ATTEMPTS,
 };
@@ -33,7 +34,7 @@ use crate::step::displacement::{
     Displacement, Drive, Driven, Flow, Isotropic, MobilityTable, NearestWall, PlanarWalls,
     PoreTensor, RadialTable,
 };
-use crate::step::state::{draw_starts, kinetics, Kinetics, State};
+use crate::step::state::{draw_starts, kinetics, Kinetics, Release, State};
 use rayon::prelude::*;
 
 /// Particles stepped together when each step waits on the previous position.
@@ -155,6 +156,65 @@ pub fn advance_species<D: Displacement, B: Boundary, C: Contact>(
         .counts()
 }
 
+/// Advances the particles of one binding species by `steps` steps: a free
+/// particle takes the pipeline's step and may bind where it ends (in the
+/// layer); a bound one stays put until the end of its tether's last step.
+/// One particle at a time, each on its own stream; the events completed are
+/// appended to `state.binding.released`.
+pub fn advance_sticky<D: Displacement, B: Boundary, C: Contact>(
+    (d, b, c): (&D, &B, &C),
+    sticky: &Sticky,
+    state: &mut State,
+    range: std::ops::Range<usize>,
+    steps: u64,
+    chunk: usize,
+) -> Counts {
+    let first = state.step;
+    let base = range.start;
+    let pos = &mut state.positions[range.clone()];
+    let img = &mut state.images[range.clone()];
+    let rng = &mut state.rngs[range.clone()];
+    let teth = &mut state.binding.tethers[range];
+    let parts: Vec<(B::Events, Vec<Release>)> = pos
+        .par_chunks_mut(chunk)
+        .zip(img.par_chunks_mut(chunk))
+        .zip(rng.par_chunks_mut(chunk))
+        .zip(teth.par_chunks_mut(chunk))
+        .enumerate()
+        .map(|(k, (((p, im), g), t))| {
+            let mut ev = B::Events::default();
+            let mut out = Vec::new();
+            for j in 0..p.len() {
+                let (x, n, g, t) = (&mut p[j], &mut im[j], &mut g[j], &mut t[j]);
+                let mut memo = c.memo(x);
+                for now in first + 1..=first + steps {
+                    if let Some(held) = *t {
+                        if now >= held.until_step {
+                            *t = None;
+                            out.push(Release {
+                                particle: (base + k * chunk + j) as u64,
+                                tether: held,
+                            });
+                        }
+                        continue;
+                    }
+                    one_step(d, b, c, x, n, g, &mut memo, &mut ev);
+                    if sticky.in_layer(x) {
+                        *t = sticky.try_bind(g, now);
+                    }
+                }
+            }
+            (ev, out)
+        })
+        .collect();
+    let mut events = B::Events::default();
+    for (ev, out) in parts {
+        events += ev;
+        state.binding.released.extend(out);
+    }
+    events.counts()
+}
+
 /// Advances free (non-interacting) particles by `steps` steps: the box's
 /// faces and nothing else.
 pub fn advance_free(state: &mut State, kinetics: &[Kinetics], sim_box: &SimBox, steps: u64) {
@@ -240,6 +300,8 @@ pub struct Stepper {
     crowd: Option<Box<Crowd>>,
     /// How moves meet fixed obstacles (rejection or reflection).
     contact: ContactRule,
+    /// Each species' binding to the obstacles (empty when none binds).
+    sticky: Vec<Option<Sticky>>,
 }
 
 /// Particles of one species in each region of a membrane at one instant.
@@ -403,6 +465,26 @@ impl Stepper {
         } else {
             obstacles.grids_for(scenario)
         };
+        // Validation allows binding only among obstacles, without crowders or a geometry.
+        let sticky = if scenario.species.iter().any(|s| s.binding.is_some()) {
+            scenario
+                .species
+                .iter()
+                .map(|s| {
+                    s.binding.map(|spec| {
+                        Sticky::new(
+                            &spec,
+                            obstacles,
+                            s.radius_nm,
+                            &scenario.sim_box,
+                            scenario.dt_s,
+                        )
+                    })
+                })
+                .collect()
+        } else {
+            Vec::new()
+        };
         Self {
             sim_box: scenario.sim_box,
             kinetics,
@@ -411,6 +493,7 @@ impl Stepper {
             grids,
             crowd,
             contact: scenario.contact,
+            sticky,
         }
     }
 
@@ -552,12 +635,17 @@ impl Stepper {
                 });
             }
         }
-        Ok(State {
+        let mut state = State {
             positions,
             images: vec![[0; 3]; n],
             rngs,
             step: 0,
-        })
+            binding: Default::default(),
+        };
+        if !self.sticky.is_empty() {
+            state.binding.tethers = vec![None; n];
+        }
+        Ok(state)
     }
 
     /// Advances the state by `steps` steps; returns the events of this
@@ -567,6 +655,7 @@ impl Stepper {
             c.advance(state, &self.kinetics, &self.sim_box, steps);
             return vec![Counts::default(); self.kinetics.len()];
         }
+        state.binding.released.clear();
         let counts = (0..self.pipelines.len())
             .map(|s| {
                 let p = &self.pipelines[s];
@@ -580,7 +669,17 @@ impl Stepper {
             })
             .collect();
         state.step += steps;
+        // One order whatever the chunks: by release step, then particle.
+        state
+            .binding
+            .released
+            .sort_unstable_by_key(|r| (r.tether.until_step, r.particle));
         counts
+    }
+
+    /// True when some species binds to the obstacles.
+    pub fn binds(&self) -> bool {
+        !self.sticky.is_empty()
     }
 
     fn with_boundary<D: Displacement>(
@@ -608,6 +707,17 @@ impl Stepper {
     ) -> Counts {
         let range = self.pipelines[s].kinetics.range.clone();
         let walled = self.geometry.is_some();
+        if let (Some(Some(sticky)), Some(grid)) = (self.sticky.get(s), self.grids.get(s)) {
+            // Binding species: validated to be among obstacles in a box without a geometry.
+            return if self.contact == ContactRule::Reflect {
+                let bounds = self.pipelines[s].kinetics.bounds(&self.sim_box);
+                let c = Reflect { grid, bounds };
+                advance_sticky((d, b, &c), sticky, state, range, steps, OBSTRUCTED_CHUNK)
+            } else {
+                let c = Reject { blocker: grid };
+                advance_sticky((d, b, &c), sticky, state, range, steps, OBSTRUCTED_CHUNK)
+            };
+        }
         match self.grids.get(s) {
             None => {
                 let chunk = if walled { WALLED_CHUNK } else { FREE_CHUNK };

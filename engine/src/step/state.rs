@@ -18,6 +18,39 @@ pub struct State {
     pub rngs: Vec<ParticleRng>,
     /// Steps taken so far.
     pub step: u64,
+    /// Who is bound to an obstacle (empty when no species binds).
+    pub binding: Binding,
+}
+
+/// A tracer bound to an obstacle: held where it bound from the end of step
+/// `since_step` to the end of step `until_step`, when it is free again.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Tether {
+    /// Step at whose end it bound.
+    pub since_step: u64,
+    /// Step at whose end it is released, ⌈τ/Δt⌉ steps later.
+    pub until_step: u64,
+    /// Its dwell time τ as drawn, s.
+    pub dwell_s: f64,
+}
+
+/// A completed binding event.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Release {
+    /// Particle index in the state.
+    pub particle: u64,
+    /// The event's tether.
+    pub tether: Tether,
+}
+
+/// Binding state: one slot per particle, and the events completed in the
+/// last call of the step (in order of release step, then particle).
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Binding {
+    /// Per particle: `Some` while bound (all particles when some species binds, else empty).
+    pub tethers: Vec<Option<Tether>>,
+    /// Events completed during the last advance of the state.
+    pub released: Vec<Release>,
 }
 
 /// How one species moves in the box: its index range in [`State`] and its step size.
@@ -95,6 +128,7 @@ impl State {
             images: vec![[0; 3]; n],
             rngs,
             step: 0,
+            binding: Binding::default(),
         }
     }
 
