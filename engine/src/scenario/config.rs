@@ -134,6 +134,14 @@ pub struct RawObstacles {
     /// Whether obstacles read from a file may overlap ("file"; default false).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub allow_overlap: Option<bool>,
+    /// Surface potential of the obstacles, mV (screened electrostatics with
+    /// species that carry `surface_potential_mV`).
+    #[serde(
+        rename = "surface_potential_mV",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub surface_potential_mv: Option<f64>,
 }
 
 /// `[fibres]`: fixed straight cylinders.
@@ -158,6 +166,14 @@ pub struct RawFibres {
     /// axis when aligned, the smallest edge when isotropic).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub length_nm: Option<f64>,
+    /// Surface potential of the fibres, mV (screened electrostatics with
+    /// species that carry `surface_potential_mV`).
+    #[serde(
+        rename = "surface_potential_mV",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub surface_potential_mv: Option<f64>,
 }
 
 /// `[medium]`.
@@ -248,6 +264,26 @@ pub struct RawSpecies {
     /// Range of that well, nm.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub wall_well_range_nm: Option<f64>,
+    /// Hamaker constant of van der Waals attraction to walls, obstacles and fibres, zJ.
+    #[serde(
+        rename = "hamaker_constant_zJ",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub hamaker_constant_zj: Option<f64>,
+    /// Closest gap of the van der Waals terms, nm (held there below it).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub vdw_closest_gap_nm: Option<f64>,
+    /// Depth of a short-range attractive well at obstacles and fibres, in k_BT.
+    #[serde(
+        rename = "obstacle_well_depth_kT",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub obstacle_well_depth_kt: Option<f64>,
+    /// Range of that well, nm.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub obstacle_well_range_nm: Option<f64>,
 }
 
 /// `[integrator]`.
@@ -980,6 +1016,7 @@ impl RawScenario {
                 crowder,
                 force_pn: [0.0; 3],
                 wall_potential: Default::default(),
+                body_potential: Default::default(),
             });
         }
 
@@ -1268,6 +1305,12 @@ impl RawScenario {
             Some(d) => Some(positive(file, "medium.density_kg_per_m3", d)?),
         };
         let has_crowders = species.iter().any(|s| s.crowder);
+        let bodies = crate::scenario::drive::Bodies {
+            spheres: self.obstacles.is_some(),
+            fibres: self.fibres.is_some(),
+            sphere_potential_mv: self.obstacles.as_ref().and_then(|o| o.surface_potential_mv),
+            fibre_potential_mv: self.fibres.as_ref().and_then(|f| f.surface_potential_mv),
+        };
         for (i, (s, raw)) in species.iter_mut().zip(&self.species).enumerate() {
             let force_pn = match &raw.force_pn {
                 None => None,
@@ -1298,6 +1341,8 @@ impl RawScenario {
                     surface_potential_mv: raw.surface_potential_mv,
                     wall_well_depth_kt: raw.wall_well_depth_kt,
                     wall_well_range_nm: raw.wall_well_range_nm,
+                    hamaker_zj: raw.hamaker_constant_zj,
+                    vdw_closest_gap_nm: raw.vdw_closest_gap_nm,
                 },
                 &crate::scenario::drive::MediumKeys {
                     ionic_strength_mol_per_l: self.medium.ionic_strength_mol_per_l,
@@ -1308,6 +1353,27 @@ impl RawScenario {
                 self.geometry
                     .as_ref()
                     .and_then(|g| g.wall_surface_potential_mv),
+                bodies.sphere_potential_mv.is_some() || bodies.fibre_potential_mv.is_some(),
+            )?;
+            s.body_potential = crate::scenario::drive::species_body_potential(
+                file,
+                i,
+                s,
+                &crate::scenario::drive::BodyKeys {
+                    surface_potential_mv: raw.surface_potential_mv,
+                    hamaker_zj: raw.hamaker_constant_zj,
+                    vdw_closest_gap_nm: raw.vdw_closest_gap_nm,
+                    well_depth_kt: raw.obstacle_well_depth_kt,
+                    well_range_nm: raw.obstacle_well_range_nm,
+                },
+                &crate::scenario::drive::MediumKeys {
+                    ionic_strength_mol_per_l: self.medium.ionic_strength_mol_per_l,
+                    relative_permittivity: self.medium.relative_permittivity,
+                },
+                temperature_k,
+                &bodies,
+                geometry.is_some(),
+                has_crowders,
             )?;
             if s.force_pn != [0.0; 3] {
                 let refuse = if s.crowder || has_crowders {
@@ -1346,6 +1412,25 @@ impl RawScenario {
                     psi,
                     "no species carries surface_potential_mV, so the walls' potential would act on nothing",
                 ));
+            }
+        }
+        for (key, psi) in [
+            ("obstacles.surface_potential_mV", bodies.sphere_potential_mv),
+            ("fibres.surface_potential_mV", bodies.fibre_potential_mv),
+        ] {
+            if let Some(psi) = psi {
+                if self
+                    .species
+                    .iter()
+                    .all(|s| s.surface_potential_mv.is_none())
+                {
+                    return Err(invalid(
+                        file,
+                        key,
+                        psi,
+                        "no species carries surface_potential_mV, so this potential would act on nothing",
+                    ));
+                }
             }
         }
         let Some(raw) = &self.flow else {

@@ -24,6 +24,8 @@ pub struct Species {
     pub force_pn: [f64; 3],
     /// Soft interaction with the walls (none by default).
     pub wall_potential: crate::space::potentials::WallPotential,
+    /// Soft interaction with fixed spheres and fibres (none by default).
+    pub body_potential: crate::space::potentials::BodyPotential,
 }
 
 impl Species {
