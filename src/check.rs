@@ -70,6 +70,7 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             "memory_estimate_bytes": report.memory_estimate_bytes,
             "drive": report.drive,
             "wall_interactions": report.interactions,
+            "obstacle_interactions": report.obstacle_interactions,
         });
         if let Some(c) = &confinement {
             // The first species' values at the top level; every species under "confinement".
@@ -228,6 +229,32 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
         println!(
             "  walls      species '{}': {debye}electrostatic energy at contact {:.4} k_BT (linear superposition, Bell, Levine & McCartney 1970), well {:.4} k_BT{partition}",
             i.species, i.electrostatic_contact_kt, i.well_depth_kt
+        );
+    }
+    for i in &report.obstacle_interactions {
+        let debye = i
+            .debye_length_nm
+            .map(|l| format!("Debye length {l:.4} nm, "))
+            .unwrap_or_default();
+        let contact = [
+            ("sphere", i.sphere_contact_kt),
+            ("fibre", i.fibre_contact_kt),
+        ]
+        .into_iter()
+        .filter_map(|(k, u)| u.map(|u| format!("{u:.4} k_BT at contact with a {k}")))
+        .collect::<Vec<_>>()
+        .join(", ");
+        println!(
+            "  obstacles  species '{}': {debye}{contact}; cut-off gap {:.4} nm (at most {:.1e} k_BT left out); \
+             partition coefficient K = ⟨e^(−U/k_BT)⟩ = {:.4} ± {:.4} (Boltzmann-weighted, Monte Carlo over the box) \
+             against {:.4} ± {:.4} steric (open fraction)",
+            i.species,
+            i.cutoff_nm,
+            i.energy_at_cutoff_kt,
+            i.partition_boltzmann,
+            i.partition_boltzmann_se,
+            i.partition_steric,
+            i.partition_steric_se
         );
     }
     for d in &report.drive {

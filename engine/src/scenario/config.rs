@@ -680,6 +680,56 @@ impl Scenario {
                 ));
             }
         }
+        for s in self.species.iter().filter(|s| !s.body_potential.is_none()) {
+            // The bodies' force must not move a particle by more than a tenth of its range in one step (common practice).
+            use crate::space::potentials::Facing;
+            let p = s.body_potential;
+            let kt = self.thermal_energy_pn_nm();
+            let per_pn = s.d0_nm2_per_s() * self.dt_s / kt;
+            let mut kinds = Vec::new();
+            match &self.obstacles {
+                Some(ObstacleSpec::Generated { radii, .. }) if radii.max_nm().is_finite() => {
+                    kinds.push(Facing::Sphere(radii.max_nm()))
+                }
+                // Spheres of unknown size: a plane bounds their force.
+                Some(_) => kinds.push(Facing::Plane),
+                None => {}
+            }
+            if let Some(f) = &self.fibres {
+                kinds.push(Facing::Cylinder(f.radius_nm));
+            }
+            let mut range = f64::INFINITY;
+            if p.kappa_per_nm > 0.0 {
+                range = range.min(1.0 / p.kappa_per_nm);
+            }
+            if p.well_depth_pn_nm != 0.0 {
+                range = range.min(p.well_range_nm);
+            }
+            if p.hamaker_pn_nm != 0.0 {
+                range = range.min(p.closest_gap_nm);
+            }
+            let mut force: f64 = 0.0;
+            for facing in kinds {
+                let u = p.facing(facing);
+                let cut = crate::space::soft::pair_cutoff_nm(
+                    &u,
+                    crate::space::soft::CUTOFF_TOLERANCE_KT * kt,
+                );
+                for k in 0..=4000 {
+                    force = force.max(u.force_pn(cut * k as f64 / 4000.0).abs());
+                }
+            }
+            let drift = force * per_pn;
+            let step = s.step_rms_nm(self.dt_s);
+            if drift.max(step) > STEP_WARNING_FRACTION * range {
+                out.push(format!(
+                    "species '{}': its interaction with obstacles and fibres acts over {:.4} nm, but one step moves it up to \
+                     {:.4} nm by the force near contact and {:.4} nm rms by diffusion, more than a tenth of that range; a \
+                     smaller integrator.dt_s resolves the interaction (common practice)",
+                    s.name, range, drift, step
+                ));
+            }
+        }
         if let Some(c) = self
             .camera
             .as_ref()
