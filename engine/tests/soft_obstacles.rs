@@ -376,3 +376,77 @@ fn bad_soft_obstacle_keys_are_refused_by_name() {
         assert!(e.contains("bad.toml") && e.contains(key), "{key}: {e}");
     }
 }
+
+#[test]
+fn density_around_a_charged_fibre_is_boltzmann() {
+    // Boltzmann (exact for the model) around one aligned fibre spanning the box (an infinite
+    // cylinder): ρ(s) ∝ exp(−U(s)/k_BT) in the distance s from its axis, U the sphere–cylinder
+    // electrostatics with Derjaguin's radius a√(c/(a + c)); 19 rings out to L/2, the rest a 20th bin.
+    let (c_f, count, steps) = (1.5, 12_000, 8000);
+    let t = text("surface_potential_mV = -25.0", "", count, steps, L).replace(
+        "[obstacles]\n",
+        "[fibres]\nradius_nm = 1.5\ncount = 1\norientation = \"aligned\"\naxis = \"z\"\nsurface_potential_mV = -30.0\n",
+    );
+    let s = scenario(&t);
+    let o = FixedObstacles::build(&s).unwrap();
+    let f = field(&s, &o);
+    let kt = s.thermal_energy_pn_nm();
+    let pair = f.pair(Facing::Cylinder(c_f));
+    let cut = f.cutoff_nm();
+    let (contact, half) = (A + c_f, 0.5 * L);
+    assert!(contact + cut < half, "the reach stays inside half the box");
+    let u = |r: f64| {
+        if r - contact < cut {
+            pair.energy_pn_nm(r - contact)
+        } else {
+            0.0
+        }
+    };
+    let starts = boltzmann_starts(&s, &f, 1.01, count, 5);
+    let end = run(&s, &o, &starts, steps);
+    let axis = o.fibres.centres_nm[0];
+    let bins = 19;
+    let dr = (half - contact) / bins as f64;
+    let mut counts = vec![0u64; bins + 1];
+    for p in &end {
+        let d: f64 = (0..2)
+            .map(|k| {
+                let x = p[k] - axis[k];
+                (x - L * (x / L).round()).powi(2)
+            })
+            .sum::<f64>()
+            .sqrt();
+        assert!(
+            d >= contact * (1.0 - 1e-9),
+            "a tracer inside the fibre: {d}"
+        );
+        counts[(((d - contact) / dr) as usize).min(bins)] += 1;
+    }
+    let ring = |lo: f64, hi: f64| {
+        let m = 2000;
+        (0..m)
+            .map(|k| {
+                let r = lo + (k as f64 + 0.5) * (hi - lo) / m as f64;
+                2.0 * std::f64::consts::PI * r * (-u(r) / kt).exp() * (hi - lo) / m as f64
+            })
+            .sum::<f64>()
+    };
+    let mut weights: Vec<f64> = (0..bins)
+        .map(|k| ring(contact + k as f64 * dr, contact + (k + 1) as f64 * dr))
+        .collect();
+    weights.push(L * L - std::f64::consts::PI * half * half);
+    let total: f64 = weights.iter().sum();
+    let chi2: f64 = counts
+        .iter()
+        .zip(&weights)
+        .map(|(&n, &w)| {
+            let e = count as f64 * w / total;
+            (n as f64 - e).powi(2) / e
+        })
+        .sum();
+    println!(
+        "fibre: chi² = {chi2:.1} (19 dof); U at contact {:.3} k_BT, cut-off {cut:.2} nm; counts {counts:?}",
+        u(contact) / kt
+    );
+    assert!(chi2 < CHI2_19_P001, "chi² = {chi2}");
+}
