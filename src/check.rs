@@ -71,6 +71,7 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             "drive": report.drive,
             "wall_interactions": report.interactions,
             "binding": report.binding,
+            "obstacle_interactions": report.obstacle_interactions,
         });
         if let Some(c) = &confinement {
             // The first species' values at the top level; every species under "confinement".
@@ -240,6 +241,32 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
         println!(
             "             fast-exchange D_eff/D_free = 1/(1+K) = {:.4} (Crank, The Mathematics of Diffusion, 2nd ed., §14.2): a model, valid only when binding and release are fast against diffusion between obstacles",
             b.fast_exchange_ratio
+        );
+    }
+    for i in &report.obstacle_interactions {
+        let debye = i
+            .debye_length_nm
+            .map(|l| format!("Debye length {l:.4} nm, "))
+            .unwrap_or_default();
+        let contact = [
+            ("sphere", i.sphere_contact_kt),
+            ("fibre", i.fibre_contact_kt),
+        ]
+        .into_iter()
+        .filter_map(|(k, u)| u.map(|u| format!("{u:.4} k_BT at contact with a {k}")))
+        .collect::<Vec<_>>()
+        .join(", ");
+        println!(
+            "  obstacles  species '{}': {debye}{contact}; cut-off gap {:.4} nm (at most {:.1e} k_BT left out); \
+             partition coefficient K = ⟨e^(−U/k_BT)⟩ = {:.4} ± {:.4} (Boltzmann-weighted, Monte Carlo over the box) \
+             against {:.4} ± {:.4} steric (open fraction)",
+            i.species,
+            i.cutoff_nm,
+            i.energy_at_cutoff_kt,
+            i.partition_boltzmann,
+            i.partition_boltzmann_se,
+            i.partition_steric,
+            i.partition_steric_se
         );
     }
     for d in &report.drive {

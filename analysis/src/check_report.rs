@@ -10,6 +10,7 @@ use serde::Serialize;
 use thicket_engine::obstacles::spheres::{Estimate, FixedObstacles, Region};
 use thicket_engine::scenario::drive::FlowSpec;
 use thicket_engine::scenario::media::ObstacleSpec;
+use thicket_engine::space::potentials::Facing;
 use thicket_engine::space::shape::Shape;
 use thicket_engine::{EngineError, Scenario};
 
@@ -50,6 +51,8 @@ pub struct CheckReport {
     pub interactions: Vec<SpeciesInteraction>,
     /// Reversible binding per binding species (empty when none binds).
     pub binding: Vec<SpeciesBinding>,
+    /// Soft interactions with obstacles and fibres per species (empty without them).
+    pub obstacle_interactions: Vec<ObstacleInteraction>,
 }
 
 /// What the binding model predicts for one species.
@@ -73,6 +76,33 @@ pub struct SpeciesBinding {
     pub fast_exchange_ratio: f64,
     /// Mean dwell time 1/k_off, s.
     pub mean_dwell_s: f64,
+}
+
+/// The soft interaction of one species with the obstacles and fibres, and
+/// the partition coefficient it implies.
+#[derive(Debug, Clone, Serialize)]
+pub struct ObstacleInteraction {
+    /// Species name.
+    pub species: String,
+    /// Debye length κ⁻¹, nm (with screened electrostatics).
+    pub debye_length_nm: Option<f64>,
+    /// Cut-off gap of the neighbour sum, nm (|U| below 1e-3 k_BT beyond).
+    pub cutoff_nm: f64,
+    /// Energy at contact with a fixed sphere of the mean placed radius, k_BT.
+    pub sphere_contact_kt: Option<f64>,
+    /// Energy at contact with a fibre, k_BT.
+    pub fibre_contact_kt: Option<f64>,
+    /// Largest energy left out at the cut-off over the body kinds, k_BT.
+    pub energy_at_cutoff_kt: f64,
+    /// Boltzmann-weighted partition coefficient K = ⟨e^(−U/k_BT)⟩ over the
+    /// box (hard cores 0; Monte Carlo).
+    pub partition_boltzmann: f64,
+    /// Its standard error.
+    pub partition_boltzmann_se: f64,
+    /// The steric partition coefficient (open fraction), for comparison.
+    pub partition_steric: f64,
+    /// Its standard error.
+    pub partition_steric_se: f64,
 }
 
 /// The soft wall interaction of one species, and the partition it implies.
@@ -344,6 +374,39 @@ pub fn check_report(scenario: &Scenario) -> Result<CheckReport, CheckError> {
             ),
         })
         .collect();
+    let obstacle_interactions = scenario
+        .species
+        .iter()
+        .enumerate()
+        .filter_map(|(i, s)| {
+            let k = obstacles.boltzmann_partition(scenario, i, CHECK_SAMPLES, scenario.seed)?;
+            let kt = scenario.thermal_energy_pn_nm();
+            let p = s.body_potential;
+            let cut = obstacles.soft_cutoff_nm(scenario, i);
+            let spheres = &obstacles.spheres;
+            let sphere = (!spheres.is_empty()).then(|| {
+                Facing::Sphere(spheres.radii_nm.iter().sum::<f64>() / spheres.len() as f64)
+            });
+            let fibre = (!obstacles.fibres.is_empty())
+                .then_some(Facing::Cylinder(obstacles.fibres.radius_nm));
+            let at = |f: Option<Facing>, h: f64| f.map(|f| p.facing(f).energy_pn_nm(h) / kt);
+            Some(ObstacleInteraction {
+                species: s.name.clone(),
+                debye_length_nm: (p.kappa_per_nm > 0.0).then(|| 1.0 / p.kappa_per_nm),
+                cutoff_nm: cut,
+                sphere_contact_kt: at(sphere, 0.0),
+                fibre_contact_kt: at(fibre, 0.0),
+                energy_at_cutoff_kt: [at(sphere, cut), at(fibre, cut)]
+                    .into_iter()
+                    .flatten()
+                    .fold(0.0, |m: f64, u| m.max(u.abs())),
+                partition_boltzmann: k.value,
+                partition_boltzmann_se: k.standard_error,
+                partition_steric: open[i].value,
+                partition_steric_se: open[i].standard_error,
+            })
+        })
+        .collect();
     let species = scenario
         .species
         .iter()
@@ -395,6 +458,7 @@ pub fn check_report(scenario: &Scenario) -> Result<CheckReport, CheckError> {
         drive: drive(scenario),
         interactions: interactions(scenario),
         binding: binding(scenario, &obstacles),
+        obstacle_interactions,
     })
 }
 

@@ -113,6 +113,22 @@ const CASES: &[(&str, &[&str])] = &[
         ],
     ),
     (
+        "configs/charged-gel-low-salt.toml",
+        &[
+            "species.rowan.count=300",
+            "integrator.steps=400",
+            "output.record_every_steps=40",
+        ],
+    ),
+    (
+        "configs/charged-gel-high-salt.toml",
+        &[
+            "species.rowan.count=300",
+            "integrator.steps=400",
+            "output.record_every_steps=40",
+        ],
+    ),
+    (
         "configs/demo/hydrogel.toml",
         &[
             "species.marker.count=300",

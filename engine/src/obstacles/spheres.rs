@@ -31,6 +31,7 @@ use crate::space::bodies::{Fibres, Spheres};
 use crate::space::neighbors::{min_image_distance2, DynamicGrid, ObstacleGrid};
 use crate::space::shape::Shape;
 use crate::space::sim_box::SimBox;
+use crate::space::soft::{SoftField, CUTOFF_TOLERANCE_KT};
 use std::f64::consts::PI;
 use std::path::Path;
 
@@ -314,6 +315,68 @@ impl FixedObstacles {
             value: q,
             standard_error: (q * (1.0 - q) / m).sqrt(),
         }
+    }
+
+    /// The Boltzmann-weighted partition coefficient of species `s` into the
+    /// obstacles and fibres, K = ⟨e^(−U/k_BT)⟩ over the box (hard cores
+    /// count 0, U summed over every body within the cut-off), by Monte Carlo
+    /// over `samples` uniform points of the seeded [`SAMPLING_STREAM`] with
+    /// the standard error of the mean; `None` without a soft interaction.
+    /// Beside the open fraction (the steric-only K), its ratio to it is the
+    /// mean Boltzmann factor over the open space.
+    pub fn boltzmann_partition(
+        &self,
+        scenario: &Scenario,
+        s: usize,
+        samples: usize,
+        seed: u64,
+    ) -> Option<Estimate> {
+        let sp = &scenario.species[s];
+        if sp.body_potential.is_none() || self.is_empty() {
+            return None;
+        }
+        let kt = scenario.thermal_energy_pn_nm();
+        let field = SoftField::build(
+            &self.spheres,
+            &self.fibres,
+            &sp.body_potential,
+            &scenario.sim_box,
+            CUTOFF_TOLERANCE_KT * kt,
+            1.0,
+        );
+        let mut rng = ParticleRng::for_particle(seed, SAMPLING_STREAM);
+        let samples = samples.max(2);
+        let (mut sum, mut sum2) = (0.0, 0.0);
+        for _ in 0..samples {
+            let p = [0, 1, 2].map(|k| rng.uniform() * scenario.sim_box.edges_nm[k]);
+            let w = field.energy_pn_nm(&p).map_or(0.0, |u| (-u / kt).exp());
+            sum += w;
+            sum2 += w * w;
+        }
+        let n = samples as f64;
+        let mean = sum / n;
+        let var = (sum2 / n - mean * mean).max(0.0) * n / (n - 1.0);
+        Some(Estimate {
+            value: mean,
+            standard_error: (var / n).sqrt(),
+        })
+    }
+
+    /// The cut-off gap, nm, of species `s`'s soft interaction among these
+    /// bodies (0 without one).
+    pub fn soft_cutoff_nm(&self, scenario: &Scenario, s: usize) -> f64 {
+        let sp = &scenario.species[s];
+        if sp.body_potential.is_none() || self.is_empty() {
+            return 0.0;
+        }
+        let largest = self.spheres.radii_nm.iter().cloned().reduce(f64::max);
+        let fibre = (!self.fibres.is_empty()).then_some(self.fibres.radius_nm);
+        crate::space::soft::cutoff_nm(
+            &sp.body_potential,
+            largest,
+            fibre,
+            CUTOFF_TOLERANCE_KT * scenario.thermal_energy_pn_nm(),
+        )
     }
 }
 

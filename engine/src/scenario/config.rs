@@ -135,6 +135,14 @@ pub struct RawObstacles {
     /// Whether obstacles read from a file may overlap ("file"; default false).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub allow_overlap: Option<bool>,
+    /// Surface potential of the obstacles, mV (screened electrostatics with
+    /// species that carry `surface_potential_mV`).
+    #[serde(
+        rename = "surface_potential_mV",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub surface_potential_mv: Option<f64>,
 }
 
 /// `[fibres]`: fixed straight cylinders.
@@ -159,6 +167,14 @@ pub struct RawFibres {
     /// axis when aligned, the smallest edge when isotropic).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub length_nm: Option<f64>,
+    /// Surface potential of the fibres, mV (screened electrostatics with
+    /// species that carry `surface_potential_mV`).
+    #[serde(
+        rename = "surface_potential_mV",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub surface_potential_mv: Option<f64>,
 }
 
 /// `[medium]`.
@@ -258,6 +274,26 @@ pub struct RawSpecies {
     /// Unbinding rate, 1/s.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub unbinding_rate_per_s: Option<f64>,
+    /// Hamaker constant of van der Waals attraction to walls, obstacles and fibres, zJ.
+    #[serde(
+        rename = "hamaker_constant_zJ",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub hamaker_constant_zj: Option<f64>,
+    /// Closest gap of the van der Waals terms, nm (held there below it).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub vdw_closest_gap_nm: Option<f64>,
+    /// Depth of a short-range attractive well at obstacles and fibres, in k_BT.
+    #[serde(
+        rename = "obstacle_well_depth_kT",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub obstacle_well_depth_kt: Option<f64>,
+    /// Range of that well, nm.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub obstacle_well_range_nm: Option<f64>,
 }
 
 /// `[integrator]`.
@@ -654,6 +690,56 @@ impl Scenario {
                 ));
             }
         }
+        for s in self.species.iter().filter(|s| !s.body_potential.is_none()) {
+            // The bodies' force must not move a particle by more than a tenth of its range in one step (common practice).
+            use crate::space::potentials::Facing;
+            let p = s.body_potential;
+            let kt = self.thermal_energy_pn_nm();
+            let per_pn = s.d0_nm2_per_s() * self.dt_s / kt;
+            let mut kinds = Vec::new();
+            match &self.obstacles {
+                Some(ObstacleSpec::Generated { radii, .. }) if radii.max_nm().is_finite() => {
+                    kinds.push(Facing::Sphere(radii.max_nm()))
+                }
+                // Spheres of unknown size: a plane bounds their force.
+                Some(_) => kinds.push(Facing::Plane),
+                None => {}
+            }
+            if let Some(f) = &self.fibres {
+                kinds.push(Facing::Cylinder(f.radius_nm));
+            }
+            let mut range = f64::INFINITY;
+            if p.kappa_per_nm > 0.0 {
+                range = range.min(1.0 / p.kappa_per_nm);
+            }
+            if p.well_depth_pn_nm != 0.0 {
+                range = range.min(p.well_range_nm);
+            }
+            if p.hamaker_pn_nm != 0.0 {
+                range = range.min(p.closest_gap_nm);
+            }
+            let mut force: f64 = 0.0;
+            for facing in kinds {
+                let u = p.facing(facing);
+                let cut = crate::space::soft::pair_cutoff_nm(
+                    &u,
+                    crate::space::soft::CUTOFF_TOLERANCE_KT * kt,
+                );
+                for k in 0..=4000 {
+                    force = force.max(u.force_pn(cut * k as f64 / 4000.0).abs());
+                }
+            }
+            let drift = force * per_pn;
+            let step = s.step_rms_nm(self.dt_s);
+            if drift.max(step) > STEP_WARNING_FRACTION * range {
+                out.push(format!(
+                    "species '{}': its interaction with obstacles and fibres acts over {:.4} nm, but one step moves it up to \
+                     {:.4} nm by the force near contact and {:.4} nm rms by diffusion, more than a tenth of that range; a \
+                     smaller integrator.dt_s resolves the interaction (common practice)",
+                    s.name, range, drift, step
+                ));
+            }
+        }
         if let Some(c) = self
             .camera
             .as_ref()
@@ -991,6 +1077,7 @@ impl RawScenario {
                 force_pn: [0.0; 3],
                 wall_potential: Default::default(),
                 binding: None,
+                body_potential: Default::default(),
             });
         }
 
@@ -1299,6 +1386,12 @@ impl RawScenario {
             Some(d) => Some(positive(file, "medium.density_kg_per_m3", d)?),
         };
         let has_crowders = species.iter().any(|s| s.crowder);
+        let bodies = crate::scenario::drive::Bodies {
+            spheres: self.obstacles.is_some(),
+            fibres: self.fibres.is_some(),
+            sphere_potential_mv: self.obstacles.as_ref().and_then(|o| o.surface_potential_mv),
+            fibre_potential_mv: self.fibres.as_ref().and_then(|f| f.surface_potential_mv),
+        };
         for (i, (s, raw)) in species.iter_mut().zip(&self.species).enumerate() {
             let force_pn = match &raw.force_pn {
                 None => None,
@@ -1329,6 +1422,8 @@ impl RawScenario {
                     surface_potential_mv: raw.surface_potential_mv,
                     wall_well_depth_kt: raw.wall_well_depth_kt,
                     wall_well_range_nm: raw.wall_well_range_nm,
+                    hamaker_zj: raw.hamaker_constant_zj,
+                    vdw_closest_gap_nm: raw.vdw_closest_gap_nm,
                 },
                 &crate::scenario::drive::MediumKeys {
                     ionic_strength_mol_per_l: self.medium.ionic_strength_mol_per_l,
@@ -1339,7 +1434,39 @@ impl RawScenario {
                 self.geometry
                     .as_ref()
                     .and_then(|g| g.wall_surface_potential_mv),
+                bodies.sphere_potential_mv.is_some() || bodies.fibre_potential_mv.is_some(),
             )?;
+            s.body_potential = crate::scenario::drive::species_body_potential(
+                file,
+                i,
+                s,
+                &crate::scenario::drive::BodyKeys {
+                    surface_potential_mv: raw.surface_potential_mv,
+                    hamaker_zj: raw.hamaker_constant_zj,
+                    vdw_closest_gap_nm: raw.vdw_closest_gap_nm,
+                    well_depth_kt: raw.obstacle_well_depth_kt,
+                    well_range_nm: raw.obstacle_well_range_nm,
+                },
+                &crate::scenario::drive::MediumKeys {
+                    ionic_strength_mol_per_l: self.medium.ionic_strength_mol_per_l,
+                    relative_permittivity: self.medium.relative_permittivity,
+                },
+                temperature_k,
+                &bodies,
+                geometry.is_some(),
+                has_crowders,
+            )?;
+            if s.binding.is_some() && (!s.body_potential.is_none() || s.force_pn != [0.0; 3]) {
+                // The binding model's exact K assumes a uniform free density in the open space.
+                return Err(invalid(
+                    file,
+                    format!("species[{i}].binding_layer_nm"),
+                    "(given)",
+                    "binding cannot be combined with soft obstacle interactions or a force yet: the binding model's \
+                     K = p_on/p_off · V_layer/V_open needs a uniform free density; use an obstacle well \
+                     (obstacle_well_depth_kT) or binding, not both",
+                ));
+            }
             if s.force_pn != [0.0; 3] {
                 let refuse = if s.crowder || has_crowders {
                     Some("forces are not available with crowders yet (the crowd's step has no drift)")
@@ -1377,6 +1504,25 @@ impl RawScenario {
                     psi,
                     "no species carries surface_potential_mV, so the walls' potential would act on nothing",
                 ));
+            }
+        }
+        for (key, psi) in [
+            ("obstacles.surface_potential_mV", bodies.sphere_potential_mv),
+            ("fibres.surface_potential_mV", bodies.fibre_potential_mv),
+        ] {
+            if let Some(psi) = psi {
+                if self
+                    .species
+                    .iter()
+                    .all(|s| s.surface_potential_mv.is_none())
+                {
+                    return Err(invalid(
+                        file,
+                        key,
+                        psi,
+                        "no species carries surface_potential_mV, so this potential would act on nothing",
+                    ));
+                }
             }
         }
         let Some(raw) = &self.flow else {

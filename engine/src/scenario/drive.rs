@@ -549,6 +549,10 @@ pub struct WallKeys {
     pub wall_well_depth_kt: Option<f64>,
     /// `wall_well_range_nm`.
     pub wall_well_range_nm: Option<f64>,
+    /// `hamaker_constant_zJ` (van der Waals with the walls too).
+    pub hamaker_zj: Option<f64>,
+    /// `vdw_closest_gap_nm`.
+    pub vdw_closest_gap_nm: Option<f64>,
 }
 
 /// The medium's electrolyte keys, as written.
@@ -577,20 +581,30 @@ pub fn species_wall_potential(
     temperature_k: f64,
     geometry: Option<&Geometry>,
     wall_potential_mv: Option<f64>,
+    bodies_charged: bool,
 ) -> Result<crate::space::potentials::WallPotential> {
-    use crate::space::potentials::{debye_length_nm, WallPotential};
+    use crate::space::potentials::WallPotential;
     let key = |k: &str| format!("species[{i}].{k}");
     let mut p = WallPotential::default();
-    let wants = raw.surface_potential_mv.is_some()
+    // The species' potential meets the walls' when they have one, else the obstacles' or fibres'.
+    let surface_potential_mv = raw
+        .surface_potential_mv
+        .filter(|_| wall_potential_mv.is_some() || !bodies_charged);
+    // Van der Waals acts at the walls of any geometry (else only at obstacles and fibres).
+    let vdw = (raw.hamaker_zj.is_some() || raw.vdw_closest_gap_nm.is_some()) && geometry.is_some();
+    let wants = surface_potential_mv.is_some()
         || raw.wall_well_depth_kt.is_some()
-        || raw.wall_well_range_nm.is_some();
+        || raw.wall_well_range_nm.is_some()
+        || vdw;
     if !wants {
         return Ok(p);
     }
-    let first_key = if raw.surface_potential_mv.is_some() {
+    let first_key = if surface_potential_mv.is_some() {
         "surface_potential_mV"
-    } else {
+    } else if raw.wall_well_depth_kt.is_some() || raw.wall_well_range_nm.is_some() {
         "wall_well_depth_kT"
+    } else {
+        "hamaker_constant_zJ"
     };
     let shape_ok = match geometry {
         Some(g) => match &g.shape {
@@ -608,7 +622,7 @@ pub fn species_wall_potential(
             key(first_key),
             "(given)",
             "wall interactions act at the walls of a [geometry] of kind \"plane_wall\" (the floor), \"slit\", \"cylinder\" \
-             (with pore_mobility = \"cylinder\" under wall hydrodynamics) or \"membrane\" (pore walls and faces); not in an open box",
+             (with pore_mobility = \"cylinder\" under wall hydrodynamics) or \"membrane\" (pore walls and faces); not in an open box (among obstacles or fibres, give them surface_potential_mV)",
         ));
     }
     if species.crowder {
@@ -619,43 +633,21 @@ pub fn species_wall_potential(
             "wall interactions are not available for crowders yet",
         ));
     }
-    match (raw.surface_potential_mv, wall_potential_mv) {
+    if vdw {
+        if let Some((hamaker, gap)) =
+            van_der_waals(file, i, raw.hamaker_zj, raw.vdw_closest_gap_nm)?
+        {
+            p.hamaker_pn_nm = hamaker;
+            p.closest_gap_nm = gap;
+            p.radius_nm = species.radius_nm;
+        }
+    }
+    match (surface_potential_mv, wall_potential_mv) {
         (Some(psi), Some(psi_wall)) => {
             let psi = finite_within(file, &key("surface_potential_mV"), psi, 1e3, "mV")?;
             let psi_wall = finite_within(file, "geometry.wall_surface_potential_mV", psi_wall, 1e3, "mV")?;
-            let ionic = medium.ionic_strength_mol_per_l.ok_or_else(|| {
-                invalid(
-                    file,
-                    "medium.ionic_strength_mol_per_L",
-                    "(missing)",
-                    "screened electrostatics needs the ionic strength of the (1:1) electrolyte in mol/L",
-                )
-            })?;
-            if !(ionic.is_finite() && ionic > 0.0 && ionic <= 10.0) {
-                return Err(invalid(
-                    file,
-                    "medium.ionic_strength_mol_per_L",
-                    ionic,
-                    "it must be a finite number above 0 and at most 10 mol/L",
-                ));
-            }
-            let eps = medium.relative_permittivity.ok_or_else(|| {
-                invalid(
-                    file,
-                    "medium.relative_permittivity",
-                    "(missing)",
-                    "screened electrostatics needs the medium's relative permittivity (about 78 for water at 25 °C)",
-                )
-            })?;
-            if !(eps.is_finite() && (1.0..=1000.0).contains(&eps)) {
-                return Err(invalid(
-                    file,
-                    "medium.relative_permittivity",
-                    eps,
-                    "it must be a finite number from 1 to 1000",
-                ));
-            }
-            p.kappa_per_nm = 1.0 / debye_length_nm(eps, temperature_k, ionic);
+            let (eps, kappa) = electrolyte(file, medium, temperature_k)?;
+            p.kappa_per_nm = kappa;
             p.electrostatic_pn_nm = WallPotential::electrostatic_prefactor_pn_nm(
                 eps,
                 temperature_k,
@@ -674,44 +666,15 @@ pub fn species_wall_potential(
         }
         (None, _) => {}
     }
-    match (raw.wall_well_depth_kt, raw.wall_well_range_nm) {
-        (Some(depth), Some(range)) => {
-            if !(depth.is_finite() && (0.0..=100.0).contains(&depth)) {
-                return Err(invalid(
-                    file,
-                    key("wall_well_depth_kT"),
-                    depth,
-                    "it must be a finite number from 0 to 100 k_BT",
-                ));
-            }
-            if !(range.is_finite() && range > 0.0 && range <= 1e4) {
-                return Err(invalid(
-                    file,
-                    key("wall_well_range_nm"),
-                    range,
-                    "it must be a finite number above 0 and at most 1e4 nm",
-                ));
-            }
-            p.well_depth_pn_nm = depth * thermal_energy_pn_nm(temperature_k);
-            p.well_range_nm = range;
-        }
-        (None, None) => {}
-        (Some(_), None) => {
-            return Err(invalid(
-                file,
-                key("wall_well_range_nm"),
-                "(missing)",
-                "a well at the walls needs both its depth (wall_well_depth_kT) and its range",
-            ))
-        }
-        (None, Some(_)) => {
-            return Err(invalid(
-                file,
-                key("wall_well_depth_kT"),
-                "(missing)",
-                "a well at the walls needs both its depth and its range (wall_well_range_nm)",
-            ))
-        }
+    if let Some((depth, range)) = well(
+        file,
+        (&key("wall_well_depth_kT"), &key("wall_well_range_nm")),
+        (raw.wall_well_depth_kt, raw.wall_well_range_nm),
+        temperature_k,
+        "the walls",
+    )? {
+        p.well_depth_pn_nm = depth;
+        p.well_range_nm = range;
     }
     if let Some(Shape::Membrane(m)) = geometry.map(|g| &g.shape) {
         // The baths emit as if diffusion were free at their faces: the walls' pull must have died out there.
@@ -729,6 +692,274 @@ pub fn species_wall_potential(
                 ),
             ));
         }
+    }
+    Ok(p)
+}
+
+/// The medium's relative permittivity and κ (1/nm) for screened electrostatics.
+fn electrolyte(file: &Path, medium: &MediumKeys, temperature_k: f64) -> Result<(f64, f64)> {
+    use crate::space::potentials::debye_length_nm;
+    let ionic = medium.ionic_strength_mol_per_l.ok_or_else(|| {
+        invalid(
+            file,
+            "medium.ionic_strength_mol_per_L",
+            "(missing)",
+            "screened electrostatics needs the ionic strength of the (1:1) electrolyte in mol/L",
+        )
+    })?;
+    if !(ionic.is_finite() && ionic > 0.0 && ionic <= 10.0) {
+        return Err(invalid(
+            file,
+            "medium.ionic_strength_mol_per_L",
+            ionic,
+            "it must be a finite number above 0 and at most 10 mol/L",
+        ));
+    }
+    let eps = medium.relative_permittivity.ok_or_else(|| {
+        invalid(
+            file,
+            "medium.relative_permittivity",
+            "(missing)",
+            "screened electrostatics needs the medium's relative permittivity (about 78 for water at 25 °C)",
+        )
+    })?;
+    if !(eps.is_finite() && (1.0..=1000.0).contains(&eps)) {
+        return Err(invalid(
+            file,
+            "medium.relative_permittivity",
+            eps,
+            "it must be a finite number from 1 to 1000",
+        ));
+    }
+    Ok((eps, 1.0 / debye_length_nm(eps, temperature_k, ionic)))
+}
+
+/// A well's depth (pN·nm) and range (nm) from its two keys, both or none.
+fn well(
+    file: &Path,
+    (depth_key, range_key): (&str, &str),
+    (depth, range): (Option<f64>, Option<f64>),
+    temperature_k: f64,
+    at: &str,
+) -> Result<Option<(f64, f64)>> {
+    match (depth, range) {
+        (Some(depth), Some(range)) => {
+            if !(depth.is_finite() && (0.0..=100.0).contains(&depth)) {
+                return Err(invalid(
+                    file,
+                    depth_key,
+                    depth,
+                    "it must be a finite number from 0 to 100 k_BT",
+                ));
+            }
+            if !(range.is_finite() && range > 0.0 && range <= 1e4) {
+                return Err(invalid(
+                    file,
+                    range_key,
+                    range,
+                    "it must be a finite number above 0 and at most 1e4 nm",
+                ));
+            }
+            Ok(Some((depth * thermal_energy_pn_nm(temperature_k), range)))
+        }
+        (None, None) => Ok(None),
+        (Some(_), None) => Err(invalid(
+            file,
+            range_key,
+            "(missing)",
+            &format!("a well at {at} needs both its depth and its range ({range_key})"),
+        )),
+        (None, Some(_)) => Err(invalid(
+            file,
+            depth_key,
+            "(missing)",
+            &format!("a well at {at} needs both its depth ({depth_key}) and its range"),
+        )),
+    }
+}
+
+/// The Hamaker constant (pN·nm, the same number as in zJ) and closest gap
+/// (nm) of species `i`, both or none.
+fn van_der_waals(
+    file: &Path,
+    i: usize,
+    hamaker_zj: Option<f64>,
+    gap_nm: Option<f64>,
+) -> Result<Option<(f64, f64)>> {
+    let key = |k: &str| format!("species[{i}].{k}");
+    match (hamaker_zj, gap_nm) {
+        (None, None) => Ok(None),
+        (Some(a), Some(d)) => {
+            if !(a.is_finite() && a != 0.0 && a.abs() <= 1e3) {
+                return Err(invalid(
+                    file,
+                    key("hamaker_constant_zJ"),
+                    a,
+                    "it must be a finite non-zero number from -1000 to 1000 zJ (most media: 1 to 100 zJ)",
+                ));
+            }
+            if !(d.is_finite() && d > 0.0 && d <= 100.0) {
+                return Err(invalid(
+                    file,
+                    key("vdw_closest_gap_nm"),
+                    d,
+                    "it must be a finite number above 0 and at most 100 nm (commonly 0.1 to 0.5 nm)",
+                ));
+            }
+            Ok(Some((a, d)))
+        }
+        (Some(_), None) => Err(invalid(
+            file,
+            key("vdw_closest_gap_nm"),
+            "(missing)",
+            "van der Waals needs both the Hamaker constant and the closest gap (vdw_closest_gap_nm) below which it is held",
+        )),
+        (None, Some(_)) => Err(invalid(
+            file,
+            key("hamaker_constant_zJ"),
+            "(missing)",
+            "van der Waals needs both the Hamaker constant (hamaker_constant_zJ) and the closest gap",
+        )),
+    }
+}
+
+/// A species' keys for its soft interaction with obstacles and fibres, as written.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct BodyKeys {
+    /// `surface_potential_mV`.
+    pub surface_potential_mv: Option<f64>,
+    /// `hamaker_constant_zJ`.
+    pub hamaker_zj: Option<f64>,
+    /// `vdw_closest_gap_nm`.
+    pub vdw_closest_gap_nm: Option<f64>,
+    /// `obstacle_well_depth_kT`.
+    pub well_depth_kt: Option<f64>,
+    /// `obstacle_well_range_nm`.
+    pub well_range_nm: Option<f64>,
+}
+
+/// What the scenario's obstacles and fibres are, for their soft interactions.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Bodies {
+    /// True with `[obstacles]`.
+    pub spheres: bool,
+    /// True with `[fibres]`.
+    pub fibres: bool,
+    /// `obstacles.surface_potential_mV`.
+    pub sphere_potential_mv: Option<f64>,
+    /// `fibres.surface_potential_mV`.
+    pub fibre_potential_mv: Option<f64>,
+}
+
+/// The soft interaction of species `i` with the fixed spheres and fibres:
+/// screened electrostatics when it and they carry surface potentials, van
+/// der Waals, and a short-range well.
+///
+/// # Errors
+/// A key without bodies (or walls) to act on, a setting the step does not
+/// support (crowders, a `[geometry]`), or a value out of range.
+#[allow(clippy::too_many_arguments)]
+pub fn species_body_potential(
+    file: &Path,
+    i: usize,
+    species: &Species,
+    raw: &BodyKeys,
+    medium: &MediumKeys,
+    temperature_k: f64,
+    bodies: &Bodies,
+    has_geometry: bool,
+    has_crowders: bool,
+) -> Result<crate::space::potentials::BodyPotential> {
+    use crate::space::potentials::{BodyPotential, WallPotential};
+    let key = |k: &str| format!("species[{i}].{k}");
+    let any_body = bodies.spheres || bodies.fibres;
+    let charged = bodies.sphere_potential_mv.is_some() || bodies.fibre_potential_mv.is_some();
+    let psi = raw.surface_potential_mv.filter(|_| charged);
+    let vdw = raw.hamaker_zj.is_some() || raw.vdw_closest_gap_nm.is_some();
+    let well_given = raw.well_depth_kt.is_some() || raw.well_range_nm.is_some();
+    if vdw && !any_body && !has_geometry {
+        return Err(invalid(
+            file,
+            key(if raw.hamaker_zj.is_some() {
+                "hamaker_constant_zJ"
+            } else {
+                "vdw_closest_gap_nm"
+            }),
+            "(given)",
+            "van der Waals acts at walls ([geometry]), obstacles or fibres; the scenario has none",
+        ));
+    }
+    if well_given && !any_body {
+        return Err(invalid(
+            file,
+            key(if raw.well_depth_kt.is_some() { "obstacle_well_depth_kT" } else { "obstacle_well_range_nm" }),
+            "(given)",
+            "a well at obstacles needs [obstacles] or [fibres] (at walls: wall_well_depth_kT and wall_well_range_nm)",
+        ));
+    }
+    let wants = psi.is_some() || (vdw && any_body) || well_given;
+    let mut p = BodyPotential {
+        radius_nm: species.radius_nm,
+        ..Default::default()
+    };
+    if !wants {
+        return Ok(p);
+    }
+    let first_key = if psi.is_some() {
+        "surface_potential_mV"
+    } else if well_given {
+        "obstacle_well_depth_kT"
+    } else {
+        "hamaker_constant_zJ"
+    };
+    let refuse = if species.crowder || has_crowders {
+        Some("soft interactions with obstacles and fibres are not available with crowders yet")
+    } else if has_geometry {
+        Some("soft interactions with obstacles and fibres are not available with a [geometry] yet (in an open box only)")
+    } else {
+        None
+    };
+    if let Some(reason) = refuse {
+        return Err(invalid(file, key(first_key), "(given)", reason));
+    }
+    if let Some(psi) = psi {
+        let psi = finite_within(file, &key("surface_potential_mV"), psi, 1e3, "mV")?;
+        let (eps, kappa) = electrolyte(file, medium, temperature_k)?;
+        p.kappa_per_nm = kappa;
+        // The prefactor is linear in Derjaguin's radius: stored per nm of it.
+        let per_nm = |k: &str, psi_body: f64| -> Result<f64> {
+            let psi_body = finite_within(file, k, psi_body, 1e3, "mV")?;
+            Ok(WallPotential::electrostatic_prefactor_pn_nm(
+                eps,
+                temperature_k,
+                1.0,
+                psi,
+                psi_body,
+            ))
+        };
+        if let Some(v) = bodies.sphere_potential_mv {
+            p.sphere_electrostatic_pn = per_nm("obstacles.surface_potential_mV", v)?;
+        }
+        if let Some(v) = bodies.fibre_potential_mv {
+            p.fibre_electrostatic_pn = per_nm("fibres.surface_potential_mV", v)?;
+        }
+    }
+    if let Some((hamaker, gap)) = van_der_waals(file, i, raw.hamaker_zj, raw.vdw_closest_gap_nm)? {
+        p.hamaker_pn_nm = hamaker;
+        p.closest_gap_nm = gap;
+    }
+    if let Some((depth, range)) = well(
+        file,
+        (
+            &key("obstacle_well_depth_kT"),
+            &key("obstacle_well_range_nm"),
+        ),
+        (raw.well_depth_kt, raw.well_range_nm),
+        temperature_k,
+        "obstacles and fibres",
+    )? {
+        p.well_depth_pn_nm = depth;
+        p.well_range_nm = range;
     }
     Ok(p)
 }

@@ -26,6 +26,8 @@ pub struct Species {
     pub wall_potential: crate::space::potentials::WallPotential,
     /// Reversible binding to the fixed obstacles (none by default).
     pub binding: Option<crate::scenario::binding::BindingSpec>,
+    /// Soft interaction with fixed spheres and fibres (none by default).
+    pub body_potential: crate::space::potentials::BodyPotential,
 }
 
 impl Species {

@@ -9,6 +9,7 @@ pub mod neighbors;
 pub mod pore_hydro;
 pub mod potentials;
 pub mod shape;
+pub mod soft;
 pub mod sim_box;
 
 pub use sim_box::{reflect, SimBox};

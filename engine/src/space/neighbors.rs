@@ -136,11 +136,15 @@ pub fn segment_distance2(
 
 /// One image of a capsule (fibre) in an [`ObstacleGrid`] cell.
 #[derive(Debug, Clone, Copy, PartialEq)]
-struct Capsule {
-    centre: [f64; 3],
-    direction: [f64; 3],
-    half_length: f64,
-    reach2: f64,
+pub struct Capsule {
+    /// Midpoint of the axis segment, image-shifted, nm.
+    pub centre: [f64; 3],
+    /// Unit direction of the axis.
+    pub direction: [f64; 3],
+    /// Half the segment's length, nm.
+    pub half_length: f64,
+    /// Squared reach (tracer radius + fibre radius), nm².
+    pub reach2: f64,
 }
 
 /// Cell geometry shared by the grids.
@@ -304,6 +308,27 @@ impl ObstacleGrid {
         tracer_radius_nm: f64,
         sim_box: &SimBox,
     ) -> Self {
+        Self::build_with(
+            spheres,
+            fibres,
+            tracer_radius_nm,
+            sim_box,
+            GRID_CELL_OVER_RADIUS,
+            GRID_MARGIN_IN_CELLS,
+        )
+    }
+
+    /// As [`ObstacleGrid::build`] with cells of `cell_over_radius` times the
+    /// mean reach and lists `margin_in_cells` cells past each excluded region
+    /// (a sum over every obstacle within a reach needs no margin, and finer cells pay).
+    pub fn build_with(
+        spheres: &Spheres,
+        fibres: &Fibres,
+        tracer_radius_nm: f64,
+        sim_box: &SimBox,
+        cell_over_radius: f64,
+        margin_in_cells: f64,
+    ) -> Self {
         let a = tracer_radius_nm;
         let mut reach_sum = 0.0;
         let mut reach_n = 0usize;
@@ -324,9 +349,8 @@ impl ObstacleGrid {
         } else {
             reach_sum / reach_n as f64
         };
-        let cells = Cells::new(sim_box, GRID_CELL_OVER_RADIUS * mean_reach, MAX_GRID_CELLS);
-        let margin_nm =
-            GRID_MARGIN_IN_CELLS * cells.edge.iter().cloned().fold(f64::INFINITY, f64::min);
+        let cells = Cells::new(sim_box, cell_over_radius * mean_reach, MAX_GRID_CELLS);
+        let margin_nm = margin_in_cells * cells.edge.iter().cloned().fold(f64::INFINITY, f64::min);
         let shifts = image_shifts(sim_box);
 
         let mut sphere_pairs: Vec<(u32, [f64; 4])> = Vec::new();
@@ -433,6 +457,21 @@ impl ObstacleGrid {
             capsule_start,
             capsules,
         }
+    }
+
+    /// The obstacles the cell of `p` (inside the box) lists: spheres as
+    /// [x, y, z, reach²] and capsules, image-shifted into place.
+    #[inline(always)]
+    pub fn candidates(&self, p: &[f64; 3]) -> (&[[f64; 4]], &[Capsule]) {
+        let c = self.cells.index_of(p);
+        let spheres =
+            &self.spheres[self.sphere_start[c] as usize..self.sphere_start[c + 1] as usize];
+        let capsules = if self.capsule_start.is_empty() {
+            &[][..]
+        } else {
+            &self.capsules[self.capsule_start[c] as usize..self.capsule_start[c + 1] as usize]
+        };
+        (spheres, capsules)
     }
 
     /// True when a centre at `p` (inside the box) would overlap an obstacle.

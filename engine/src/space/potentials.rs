@@ -228,6 +228,60 @@ impl WallPotential {
     }
 }
 
+/// The soft interaction of one species with fixed spheres and fibres:
+/// the terms of a [`WallPotential`] whose curvature enters per body through
+/// Derjaguin's radius (electrostatics) and the van der Waals form.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct BodyPotential {
+    /// Radius a of the moving sphere, nm.
+    pub radius_nm: f64,
+    /// κ, 1/nm.
+    pub kappa_per_nm: f64,
+    /// U(0)/R of the screened electrostatics facing a fixed sphere, pN (per
+    /// nm of Derjaguin radius R; 0 without).
+    pub sphere_electrostatic_pn: f64,
+    /// The same facing a fibre, pN.
+    pub fibre_electrostatic_pn: f64,
+    /// Depth ε of the well at contact, pN·nm (0 without).
+    pub well_depth_pn_nm: f64,
+    /// Range w of the well, nm.
+    pub well_range_nm: f64,
+    /// Hamaker constant A, pN·nm (0 without van der Waals).
+    pub hamaker_pn_nm: f64,
+    /// Closest gap δ of the van der Waals terms, nm.
+    pub closest_gap_nm: f64,
+}
+
+impl BodyPotential {
+    /// True when it exerts no force on any body.
+    pub fn is_none(&self) -> bool {
+        self.sphere_electrostatic_pn == 0.0
+            && self.fibre_electrostatic_pn == 0.0
+            && self.well_depth_pn_nm == 0.0
+            && self.hamaker_pn_nm == 0.0
+    }
+
+    /// The interaction with one body as a function of the gap: a fixed
+    /// sphere (`Facing::Sphere(b)`), a fibre (`Facing::Cylinder(c)`) or, as
+    /// the bound of both, a plane.
+    pub fn facing(&self, facing: Facing) -> WallPotential {
+        let per_radius = match facing {
+            Facing::Cylinder(_) => self.fibre_electrostatic_pn,
+            _ => self.sphere_electrostatic_pn,
+        };
+        WallPotential {
+            electrostatic_pn_nm: per_radius * derjaguin_radius_nm(self.radius_nm, facing),
+            kappa_per_nm: self.kappa_per_nm,
+            well_depth_pn_nm: self.well_depth_pn_nm,
+            well_range_nm: self.well_range_nm,
+            hamaker_pn_nm: self.hamaker_pn_nm,
+            closest_gap_nm: self.closest_gap_nm,
+            radius_nm: self.radius_nm,
+            facing,
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

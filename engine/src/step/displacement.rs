@@ -287,6 +287,40 @@ impl Displacement for Driven {
     }
 }
 
+/// Free diffusion with the soft force of fixed spheres and fibres:
+/// √(2 D0 Δt)·ξ + D0Δt F(x)/k_BT, F summed over the bodies within the
+/// cut-off (`space::soft`), plus the species' constant force's drift. The
+/// normals are drawn as by [`Isotropic`], so a zero field moves as it does.
+#[derive(Debug, Clone)]
+pub struct SoftBodies {
+    /// √(2 D0 Δt), nm.
+    pub sigma_nm: f64,
+    /// D0 Δt F/k_BT of the constant force, nm.
+    pub force_nm: [f64; 3],
+    /// The bodies' field, scaled to the drift per step (nm).
+    pub field: std::sync::Arc<crate::space::soft::SoftField>,
+}
+
+impl Displacement for SoftBodies {
+    const INTERLEAVE: bool = true;
+
+    #[inline(always)]
+    fn symmetric(&self) -> bool {
+        false
+    }
+
+    #[inline(always)]
+    fn draw(&self, x: &[f64; 3], _n: &[i32; 3], g: &mut ParticleRng) -> [f64; 3] {
+        let noise = [
+            self.sigma_nm * standard_normal(g),
+            self.sigma_nm * standard_normal(g),
+            self.sigma_nm * standard_normal(g),
+        ];
+        let f = self.field.force(x);
+        std::array::from_fn(|k| noise[k] + self.force_nm[k] + f[k])
+    }
+}
+
 /// Wall hydrodynamics between plane walls normal to z: the centre spans
 /// [`lower_nm`, `upper_nm`]; walls at both (a slit) or at the bottom only.
 #[derive(Debug, Clone)]

@@ -23,6 +23,7 @@ use crate::space::pore_hydro::plane_shear_lag;
 use crate::space::pore_hydro::{CylinderMobility, PoreModel};
 use crate::space::potentials::WallPotential;
 use crate::space::shape::Shape;
+use crate::space::soft::{SoftField, CUTOFF_TOLERANCE_KT};
 use crate::space::SimBox;
 use crate::step::binding::Sticky;
 use crate::step::boundary::{
@@ -32,7 +33,7 @@ use crate::step::contact::{Contact, NoContact, Reflect, Reject};
 use crate::step::crowd::{place_crowd, Crowd};
 use crate::step::displacement::{
     Displacement, Drive, Driven, Flow, Isotropic, MobilityTable, NearestWall, PlanarWalls,
-    PoreTensor, RadialTable,
+    PoreTensor, RadialTable, SoftBodies,
 };
 use crate::step::state::{draw_starts, kinetics, Kinetics, Release, State};
 use rayon::prelude::*;
@@ -268,6 +269,7 @@ enum Move {
     Planar(PlanarWalls),
     Nearest(NearestWall),
     Pore(PoreTensor),
+    Soft(SoftBodies),
 }
 
 /// What folds one species' moves.
@@ -348,6 +350,24 @@ impl Stepper {
                     Move::Driven(Driven {
                         sigma_nm: sigma,
                         drive: drive.clone(),
+                    })
+                };
+                // Validation admits soft obstacles only in an open box without crowders.
+                let free = if s.body_potential.is_none() || obstacles.is_empty() {
+                    free
+                } else {
+                    let kt = scenario.thermal_energy_pn_nm();
+                    Move::Soft(SoftBodies {
+                        sigma_nm: sigma,
+                        force_nm: drive.force_nm,
+                        field: std::sync::Arc::new(SoftField::build(
+                            &obstacles.spheres,
+                            &obstacles.fibres,
+                            &s.body_potential,
+                            &scenario.sim_box,
+                            CUTOFF_TOLERANCE_KT * kt,
+                            s.d0_nm2_per_s() * scenario.dt_s / kt,
+                        )),
                     })
                 };
                 let Some(geometry) = &geometry else {
@@ -503,7 +523,7 @@ impl Stepper {
     pub fn without_ito_drift(mut self) -> Self {
         for p in &mut self.pipelines {
             match &mut p.displacement {
-                Move::Free(_) | Move::Driven(_) => {}
+                Move::Free(_) | Move::Driven(_) | Move::Soft(_) => {}
                 Move::Planar(w) => w.ito_drift = false,
                 Move::Nearest(w) => w.ito_drift = false,
                 Move::Pore(w) => w.ito_drift = false,
@@ -665,6 +685,7 @@ impl Stepper {
                     Move::Planar(d) => self.with_boundary(s, d, state, steps),
                     Move::Nearest(d) => self.with_boundary(s, d, state, steps),
                     Move::Pore(d) => self.with_boundary(s, d, state, steps),
+                    Move::Soft(d) => self.with_boundary(s, d, state, steps),
                 }
             })
             .collect();
