@@ -72,6 +72,7 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             "wall_interactions": report.interactions,
             "binding": report.binding,
             "obstacle_interactions": report.obstacle_interactions,
+            "pair_interactions": report.pair_interactions,
         });
         if let Some(c) = &confinement {
             // The first species' values at the top level; every species under "confinement".
@@ -267,6 +268,17 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             i.partition_boltzmann_se,
             i.partition_steric,
             i.partition_steric_se
+        );
+    }
+    for p in &report.pair_interactions {
+        let debye = p
+            .debye_length_nm
+            .map(|l| format!("Debye length {l:.4} nm, "))
+            .unwrap_or_default();
+        println!(
+            "  pairs      '{}'–'{}': {debye}{:.4} k_BT at contact; cut-off gap {:.4} nm; second virial coefficient \
+             B₂ = {:.4} nm³ per pair against {:.4} nm³ for hard spheres (numerical integral of the model)",
+            p.species[0], p.species[1], p.contact_kt, p.cutoff_gap_nm, p.second_virial_nm3, p.second_virial_hard_nm3
         );
     }
     for d in &report.drive {

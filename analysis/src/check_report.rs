@@ -53,6 +53,25 @@ pub struct CheckReport {
     pub binding: Vec<SpeciesBinding>,
     /// Soft interactions with obstacles and fibres per species (empty without them).
     pub obstacle_interactions: Vec<ObstacleInteraction>,
+    /// Soft interactions between mobile particles per pair of species (empty without them).
+    pub pair_interactions: Vec<PairInteraction>,
+}
+
+/// The soft interaction of one pair of species and its second virial coefficient.
+#[derive(Debug, Clone, Serialize)]
+pub struct PairInteraction {
+    /// The two species' names.
+    pub species: [String; 2],
+    /// Debye length κ⁻¹, nm (with screened electrostatics).
+    pub debye_length_nm: Option<f64>,
+    /// Energy at contact, k_BT (all terms; van der Waals at its closest gap).
+    pub contact_kt: f64,
+    /// Cut-off gap, nm (|U| below 1e-3 k_BT beyond).
+    pub cutoff_gap_nm: f64,
+    /// Second virial coefficient of the truncated model, nm³ (numerical integral).
+    pub second_virial_nm3: f64,
+    /// The hard spheres' 2πσ³/3, nm³, for comparison.
+    pub second_virial_hard_nm3: f64,
 }
 
 /// What the binding model predicts for one species.
@@ -459,7 +478,29 @@ pub fn check_report(scenario: &Scenario) -> Result<CheckReport, CheckError> {
         interactions: interactions(scenario),
         binding: binding(scenario, &obstacles),
         obstacle_interactions,
+        pair_interactions: pair_interactions(scenario),
     })
+}
+
+/// Each interacting pair's contact energy, cut-off and B₂ (REFERENCES.md "Interactions between particles").
+fn pair_interactions(scenario: &Scenario) -> Vec<PairInteraction> {
+    let kt = scenario.thermal_energy_pn_nm();
+    scenario
+        .pairs
+        .iter()
+        .flat_map(|t| t.iter())
+        .map(|(a, b, p)| PairInteraction {
+            species: [
+                scenario.species[a].name.clone(),
+                scenario.species[b].name.clone(),
+            ],
+            debye_length_nm: (p.u.electrostatic_pn_nm != 0.0).then(|| 1.0 / p.u.kappa_per_nm),
+            contact_kt: p.u.energy_pn_nm(0.0) / kt,
+            cutoff_gap_nm: p.cutoff_gap_nm,
+            second_virial_nm3: p.second_virial_nm3(kt),
+            second_virial_hard_nm3: 2.0 * std::f64::consts::PI / 3.0 * p.contact_nm.powi(3),
+        })
+        .collect()
 }
 
 /// The binding model's predictions for each binding species: K from the

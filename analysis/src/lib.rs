@@ -12,6 +12,7 @@ pub mod membrane;
 pub mod model_table;
 pub mod models;
 pub mod msd;
+pub mod pairs;
 pub mod parts;
 pub mod plot;
 pub mod profile;

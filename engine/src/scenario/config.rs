@@ -294,6 +294,16 @@ pub struct RawSpecies {
     /// Range of that well, nm.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub obstacle_well_range_nm: Option<f64>,
+    /// Depth of a short-range attractive well between particles of a crowd, in k_BT.
+    #[serde(
+        rename = "pair_well_depth_kT",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub pair_well_depth_kt: Option<f64>,
+    /// Range of that well, nm.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pair_well_range_nm: Option<f64>,
 }
 
 /// `[integrator]`.
@@ -394,6 +404,8 @@ pub struct Scenario {
     pub geometry: Option<Geometry>,
     /// The flow carrying the particles, if any.
     pub flow: Option<FlowSpec>,
+    /// Soft interactions between mobile particles, if any.
+    pub pairs: Option<crate::space::pairs::PairTable>,
     /// The resolved scenario (defaults filled in) as TOML text.
     pub resolved_toml: String,
 }
@@ -601,6 +613,14 @@ impl Scenario {
             }
             (ContactRule::Reject, _) => "a move into overlap is rejected; bias ∝ √Δt",
         };
+        if self.pairs.is_some() {
+            return Some(format!(
+                "{} ({}): soft pairs move by a Metropolis test in index order, a move into overlap is rejected; \
+                 equilibrium exact at any Δt, dynamics biased ∝ √Δt at hard contacts",
+                self.contact.name(),
+                if self.contact_given { "as given" } else { "the default with interactions between particles" }
+            ));
+        }
         let origin = match (self.contact_given, self.geometry.is_some()) {
             (true, _) => "as given",
             (false, false) => "the default",
@@ -627,6 +647,10 @@ impl Scenario {
                     100.0 * bias,
                     self.contact.name(),
                     match self.contact {
+                        ContactRule::Reject if self.pairs.is_some() => {
+                            "a smaller integrator.dt_s reduces it like √Δt (reflecting contacts are not available with \
+                             interactions between particles)"
+                        }
                         ContactRule::Reject if self.geometry.is_some() => {
                             "a smaller integrator.dt_s reduces it like √Δt (reflecting contacts, whose bias shrinks like Δt, \
                              are not available with a [geometry] yet)"
@@ -738,6 +762,43 @@ impl Scenario {
                      smaller integrator.dt_s resolves the interaction (common practice)",
                     s.name, range, drift, step
                 ));
+            }
+        }
+        for (a, b, p) in self.pairs.iter().flat_map(|t| t.iter()) {
+            // The pair force must not move a particle by more than a tenth of its range in one step (common practice).
+            let u = &p.u;
+            let mut range = f64::INFINITY;
+            if u.electrostatic_pn_nm != 0.0 {
+                range = range.min(1.0 / u.kappa_per_nm);
+            }
+            if u.well_depth_pn_nm != 0.0 {
+                range = range.min(u.well_range_nm);
+            }
+            if u.hamaker_pn_nm != 0.0 {
+                range = range.min(u.closest_gap_nm);
+            }
+            let force = (0..=4000)
+                .map(|k| u.force_pn(p.cutoff_gap_nm * k as f64 / 4000.0).abs())
+                .fold(0.0, f64::max);
+            for s in [&self.species[a], &self.species[b]] {
+                let drift = force * s.d0_nm2_per_s() * self.dt_s / self.thermal_energy_pn_nm();
+                let step = s.step_rms_nm(self.dt_s);
+                if drift.max(step) > STEP_WARNING_FRACTION * range {
+                    out.push(format!(
+                        "species '{}': its interaction with '{}' acts over {:.4} nm, but one step moves it up to {:.4} nm by \
+                         the force near contact and {:.4} nm rms by diffusion, more than a tenth of that range; the Metropolis \
+                         test keeps the equilibrium exact, but more moves are rejected and the dynamics coarsen; a smaller \
+                         integrator.dt_s resolves the interaction (common practice)",
+                        s.name,
+                        if std::ptr::eq(s, &self.species[a]) { &self.species[b].name } else { &self.species[a].name },
+                        range,
+                        drift,
+                        step
+                    ));
+                }
+                if a == b {
+                    break;
+                }
             }
         }
         if let Some(c) = self
@@ -1186,6 +1247,57 @@ impl RawScenario {
             obstacles.is_some() || fibres.is_some(),
             &periodic,
         )?;
+        let pair_keys: Vec<crate::scenario::pairs::PairKeys> = self
+            .species
+            .iter()
+            .map(|raw| crate::scenario::pairs::PairKeys {
+                surface_potential_mv: raw.surface_potential_mv,
+                hamaker_zj: raw.hamaker_constant_zj,
+                vdw_closest_gap_nm: raw.vdw_closest_gap_nm,
+                well_depth_kt: raw.pair_well_depth_kt,
+                well_range_nm: raw.pair_well_range_nm,
+            })
+            .collect();
+        let pairs = crate::scenario::pairs::pair_table(
+            file,
+            &species,
+            &pair_keys,
+            &crate::scenario::pairs::PairSetting {
+                medium: crate::scenario::drive::MediumKeys {
+                    ionic_strength_mol_per_l: self.medium.ionic_strength_mol_per_l,
+                    relative_permittivity: self.medium.relative_permittivity,
+                },
+                temperature_k,
+                has_geometry: geometry.is_some(),
+                has_bodies: obstacles.is_some() || fibres.is_some(),
+                edges_nm: &edges_nm,
+                periodic: &periodic,
+            },
+        )?;
+        // Soft pairs move by a Metropolis test in index order: rejection, one sweep.
+        let (contact, sweep) = if pairs.is_some() {
+            if self.integrator.contact.as_deref() == Some("reflect") {
+                return Err(invalid(
+                    file,
+                    "integrator.contact",
+                    "\"reflect\"",
+                    "particles with soft interactions between them move by a Metropolis test on each proposal: \
+                     use \"reject\" (the default for them)",
+                ));
+            }
+            if self.integrator.sweep.as_deref() == Some("parallel") {
+                return Err(invalid(
+                    file,
+                    "integrator.sweep",
+                    "\"parallel\"",
+                    "particles with soft interactions between them move one at a time in index order: \
+                     use \"sequential\" (the default for them)",
+                ));
+            }
+            (ContactRule::Reject, Sweep::Sequential)
+        } else {
+            (contact, sweep)
+        };
         if species.iter().any(|s| s.crowder) {
             let min_edge = edges_nm.iter().cloned().fold(f64::INFINITY, f64::min);
             if min_edge <= 4.0 * max_species_radius {
@@ -1357,6 +1469,7 @@ impl RawScenario {
             contact_given: self.integrator.contact.is_some(),
             geometry,
             flow,
+            pairs,
             resolved_toml,
         };
         Ok(scenario)
@@ -1392,6 +1505,12 @@ impl RawScenario {
             sphere_potential_mv: self.obstacles.as_ref().and_then(|o| o.surface_potential_mv),
             fibre_potential_mv: self.fibres.as_ref().and_then(|f| f.surface_potential_mv),
         };
+        // In an open crowd a species' potential and Hamaker constant act between particles (pairs.rs).
+        let pairs_take = crate::scenario::pairs::pairs_take_species_keys(
+            species,
+            geometry.is_some(),
+            bodies.spheres || bodies.fibres,
+        );
         for (i, (s, raw)) in species.iter_mut().zip(&self.species).enumerate() {
             let force_pn = match &raw.force_pn {
                 None => None,
@@ -1419,7 +1538,7 @@ impl RawScenario {
                 i,
                 s,
                 &crate::scenario::drive::WallKeys {
-                    surface_potential_mv: raw.surface_potential_mv,
+                    surface_potential_mv: raw.surface_potential_mv.filter(|_| !pairs_take),
                     wall_well_depth_kt: raw.wall_well_depth_kt,
                     wall_well_range_nm: raw.wall_well_range_nm,
                     hamaker_zj: raw.hamaker_constant_zj,

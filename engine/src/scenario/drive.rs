@@ -132,7 +132,7 @@ fn invalid(
     }
 }
 
-fn finite_within(file: &Path, key: &str, v: f64, limit: f64, unit: &str) -> Result<f64> {
+pub(crate) fn finite_within(file: &Path, key: &str, v: f64, limit: f64, unit: &str) -> Result<f64> {
     if v.is_finite() && v.abs() <= limit {
         Ok(v)
     } else {
@@ -697,7 +697,11 @@ pub fn species_wall_potential(
 }
 
 /// The medium's relative permittivity and κ (1/nm) for screened electrostatics.
-fn electrolyte(file: &Path, medium: &MediumKeys, temperature_k: f64) -> Result<(f64, f64)> {
+pub(crate) fn electrolyte(
+    file: &Path,
+    medium: &MediumKeys,
+    temperature_k: f64,
+) -> Result<(f64, f64)> {
     use crate::space::potentials::debye_length_nm;
     let ionic = medium.ionic_strength_mol_per_l.ok_or_else(|| {
         invalid(
@@ -735,7 +739,7 @@ fn electrolyte(file: &Path, medium: &MediumKeys, temperature_k: f64) -> Result<(
 }
 
 /// A well's depth (pN·nm) and range (nm) from its two keys, both or none.
-fn well(
+pub(crate) fn well(
     file: &Path,
     (depth_key, range_key): (&str, &str),
     (depth, range): (Option<f64>, Option<f64>),
@@ -780,7 +784,7 @@ fn well(
 
 /// The Hamaker constant (pN·nm, the same number as in zJ) and closest gap
 /// (nm) of species `i`, both or none.
-fn van_der_waals(
+pub(crate) fn van_der_waals(
     file: &Path,
     i: usize,
     hamaker_zj: Option<f64>,
@@ -877,7 +881,7 @@ pub fn species_body_potential(
     let psi = raw.surface_potential_mv.filter(|_| charged);
     let vdw = raw.hamaker_zj.is_some() || raw.vdw_closest_gap_nm.is_some();
     let well_given = raw.well_depth_kt.is_some() || raw.well_range_nm.is_some();
-    if vdw && !any_body && !has_geometry {
+    if vdw && !any_body && !has_geometry && !has_crowders {
         return Err(invalid(
             file,
             key(if raw.hamaker_zj.is_some() {
@@ -886,7 +890,7 @@ pub fn species_body_potential(
                 "vdw_closest_gap_nm"
             }),
             "(given)",
-            "van der Waals acts at walls ([geometry]), obstacles or fibres; the scenario has none",
+            "van der Waals acts at walls ([geometry]), obstacles, fibres or between the particles of a crowd; the scenario has none",
         ));
     }
     if well_given && !any_body {

@@ -1,7 +1,7 @@
 //! Layer 3: the scenario: raw TOML structs, validation into [`Scenario`],
 //! `--set` overrides, errors that name the key, and the memory estimate.
 //! Imports `base` and `space` (shapes and models it validates), no physics.
-//! Within the layer: binding ← species, csv, species ← geometry ← media, drive ← config ← memory ← load.
+//! Within the layer: binding ← species, csv, species ← geometry ← media, drive ← pairs ← config ← memory ← load.
 
 pub mod binding;
 pub mod config;
@@ -11,6 +11,7 @@ pub mod geometry;
 pub mod load;
 pub mod media;
 pub mod memory;
+pub mod pairs;
 pub mod species;
 
 pub use config::Scenario;

@@ -6,10 +6,11 @@ pub mod bodies;
 pub mod collisions;
 pub mod mobility;
 pub mod neighbors;
+pub mod pairs;
 pub mod pore_hydro;
 pub mod potentials;
 pub mod shape;
-pub mod soft;
 pub mod sim_box;
+pub mod soft;
 
 pub use sim_box::{reflect, SimBox};

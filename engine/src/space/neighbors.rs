@@ -101,6 +101,16 @@ impl MinImage {
         }
     }
 
+    /// Minimum-image separation b − a between two points in the box.
+    #[inline(always)]
+    pub fn delta(&self, a: &[f64; 3], b: &[f64; 3]) -> [f64; 3] {
+        [0, 1, 2].map(|k| {
+            let d = b[k] - a[k];
+            let wraps = (d * self.inverse[k] + ROUNDING_SHIFT) - ROUNDING_SHIFT;
+            d - self.edges[k] * wraps
+        })
+    }
+
     /// Squared minimum-image distance between two points in the box.
     #[inline(always)]
     pub fn distance2(&self, a: &[f64; 3], b: &[f64; 3]) -> f64 {
@@ -935,6 +945,18 @@ impl VerletList {
         let sorted: Vec<[f64; 3]> = members.par_iter().map(|&j| positions[j as usize]).collect();
         let sorted_reach: Vec<f64> = members.par_iter().map(|&j| radius_nm[j as usize]).collect();
         let sorted_crowder: Vec<bool> = members.par_iter().map(|&j| crowder[j as usize]).collect();
+        // A tracer meets crowders only: its scan runs over them alone, in the same
+        // (cell) order as a scan of everyone filtered, so its list is the same.
+        let crowd_slots: Vec<u32> = (0..members.len() as u32)
+            .filter(|&t| sorted_crowder[t as usize])
+            .collect();
+        let mut crowd_start = vec![0u32; ncells + 1];
+        for &t in &crowd_slots {
+            crowd_start[cell_of[members[t as usize] as usize] as usize + 1] += 1;
+        }
+        for c in 0..ncells {
+            crowd_start[c + 1] += crowd_start[c];
+        }
         let wrap = MinImage::new(sim_box);
         let chunks: Vec<(Vec<u32>, Vec<u32>, Vec<u32>)> = members
             .par_chunks(VERLET_CHUNK)
@@ -949,6 +971,22 @@ impl VerletList {
                     let before = len;
                     let (ri, ci) = (sorted_reach[slot] + skin_nm, sorted_crowder[slot]);
                     for run in table.rows_of(cell_of[i as usize] as usize) {
+                        if !ci {
+                            let (a, b) = (
+                                crowd_start[run[0] as usize] as usize,
+                                crowd_start[run[1] as usize + 1] as usize,
+                            );
+                            if slots.len() < len + (b - a) {
+                                slots.resize(len + (b - a) + 64, 0);
+                            }
+                            for &t in &crowd_slots[a..b] {
+                                let d2 = wrap.distance2(&p, &sorted[t as usize]);
+                                let cut = ri + sorted_reach[t as usize];
+                                slots[len] = t;
+                                len += usize::from(d2 < cut * cut);
+                            }
+                            continue;
+                        }
                         let (a, b) = (
                             cell_start[run[0] as usize] as usize,
                             cell_start[run[1] as usize + 1] as usize,

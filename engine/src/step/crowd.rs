@@ -28,6 +28,7 @@ use crate::scenario::config::{Scenario, LATTICE_START_FRACTION};
 use crate::scenario::media::Sweep;
 use crate::space::collisions::{ContactRule, EventStep};
 use crate::space::neighbors::{CellList, DynamicGrid, MinImage, ObstacleGrid, VerletList};
+use crate::space::pairs::PairTable;
 use crate::space::shape::Shape;
 use crate::space::sim_box::SimBox;
 use crate::step::boundary::Boundary;
@@ -78,7 +79,14 @@ pub struct CrowdStats {
 #[derive(Debug, Clone)]
 pub struct Crowd {
     radius_nm: Vec<f64>,
+    /// Radius the Verlet list reaches with: the contact radius, grown by
+    /// half the largest soft cut-off gap when particles interact softly.
+    list_radius_nm: Vec<f64>,
     crowder: Vec<bool>,
+    /// Soft interactions between particles (the Metropolis sweep), if any.
+    pairs: Option<PairTable>,
+    /// k_BT, pN·nm.
+    kt_pn_nm: f64,
     grids: Vec<Option<ObstacleGrid>>,
     /// Confining walls beyond the box faces (a pore), if any.
     region: Option<Shape>,
@@ -204,6 +212,13 @@ impl Crowd {
                 contact = contact.min(a.radius_nm + b.radius_nm);
             }
         }
+        // A soft pair is listed out to its cut-off: every list radius grows by half the widest.
+        let grow = scenario
+            .pairs
+            .as_ref()
+            .map_or(0.0, |p| 0.5 * p.largest_cutoff_gap_nm());
+        let list_radius_nm: Vec<f64> = radius_nm.iter().map(|r| r + grow).collect();
+        contact += 2.0 * grow;
         // An event step's paths may outrun its draws (checked after each step): lists sized for that.
         let allowance = match scenario.contact {
             ContactRule::Reject => 1.0,
@@ -212,7 +227,10 @@ impl Crowd {
         let skin_nm = choose_skin_nm(contact, allowance * step, n);
         Self {
             radius_nm,
+            list_radius_nm,
             crowder,
+            pairs: scenario.pairs.clone(),
+            kt_pn_nm: scenario.thermal_energy_pn_nm(),
             grids,
             region: curved_region(scenario),
             sweep: scenario.sweep,
@@ -351,7 +369,7 @@ impl Crowd {
 
     /// A Verlet list of the given skin for `positions` (by particle index).
     fn build_list(&mut self, positions: &[[f64; 3]], sim_box: &SimBox, skin: f64) -> VerletList {
-        let reach = 2.0 * self.radius_nm.iter().cloned().fold(0.0, f64::max) + self.skin_nm;
+        let reach = 2.0 * self.list_radius_nm.iter().cloned().fold(0.0, f64::max) + self.skin_nm;
         let cells = self
             .cells
             .get_or_insert_with(|| CellList::new(sim_box, reach));
@@ -359,7 +377,7 @@ impl Crowd {
         VerletList::build(
             cells,
             positions,
-            &self.radius_nm,
+            &self.list_radius_nm,
             &self.crowder,
             sim_box,
             skin,
@@ -367,6 +385,10 @@ impl Crowd {
     }
 
     fn step(&mut self, state: &mut State, kinetics: &[Kinetics], sim_box: &SimBox) {
+        if self.pairs.is_some() {
+            self.step_soft(state, kinetics, sim_box);
+            return;
+        }
         if self.contact == ContactRule::Reflect {
             self.step_events(state, kinetics, sim_box);
             return;
@@ -714,6 +736,133 @@ impl Crowd {
         self.stats.accepted += untouched;
         self.stats.proposed += n as u64;
         state.step += 1;
+    }
+
+    /// One step with soft interactions between particles: each particle in
+    /// index order proposes y = x + (D0Δt/k_BT) F(x) + √(2D0Δt) ξ from the
+    /// forces of its neighbours where they stand (lower indices moved), and
+    /// the move stands with the Metropolis–Hastings probability
+    /// min(1, e^{−ΔU/k_BT} q(y→x)/q(x→y)) (Rossky, Doll & Friedman 1978,
+    /// "smart Monte Carlo"): Brownian dynamics whose equilibrium is the
+    /// Boltzmann distribution at any Δt. Moves into an obstacle or a hard
+    /// core are rejected. Each particle draws three normals and one uniform.
+    fn step_soft(&mut self, state: &mut State, kinetics: &[Kinetics], sim_box: &SimBox) {
+        let wrap = MinImage::new(sim_box);
+        let n = self.slots.id.len();
+        let mut near = Vec::new();
+        let mut accepted = 0;
+        for i in 0..n {
+            let mut s = self.verlet.as_ref().expect("list built by load").slot_of(i);
+            let sp = self.slots.species[s] as usize;
+            let kin = &kinetics[sp];
+            // D0Δt/k_BT, nm/pN, from σ² = 2 D0 Δt.
+            let mobility = 0.5 * kin.sigma_nm * kin.sigma_nm / self.kt_pn_nm;
+            let x = self.slots.pos[s];
+            let (u_x, f_x) = self
+                .soft_energy_force(s, &x, &wrap, &mut near)
+                .expect("a particle's own position is never in overlap");
+            let g = &mut self.slots.rng[s];
+            let noise = Isotropic {
+                sigma_nm: kin.sigma_nm,
+            }
+            .draw(&x, &[0; 3], g);
+            let uniform = g.uniform();
+            let d = [0, 1, 2].map(|k| mobility * f_x[k] + noise[k]);
+            let moved = kin.bounds(sim_box).fold(
+                &x,
+                &self.slots.img[s],
+                [x[0] + d[0], x[1] + d[1], x[2] + d[2]],
+                g,
+                true,
+            );
+            let list = self.verlet.as_ref().expect("list built by load");
+            if list.drift2_at(&wrap, s, &moved.at) > list.max_drift2() {
+                // Neighbours are valid within half the skin of the build: a list from here, wide enough for this move.
+                let length = (d[0] * d[0] + d[1] * d[1] + d[2] * d[2]).sqrt();
+                self.rebuild_at_least(state, sim_box, 2.0 * 1.01 * length);
+                s = self.verlet.as_ref().expect("just built").slot_of(i);
+            }
+            let blocked = self
+                .grids
+                .get(sp)
+                .and_then(|g| g.as_ref())
+                .is_some_and(|grid| grid.blocked(&moved.at));
+            if blocked {
+                continue;
+            }
+            let Some((u_y, f_y)) = self.soft_energy_force(s, &moved.at, &wrap, &mut near) else {
+                continue;
+            };
+            // ln q(y→x) − ln q(x→y): Gaussians of variance 2D0Δt about each start's drifted point.
+            let two_var = 2.0 * kin.sigma_nm * kin.sigma_nm;
+            let mut forward = 0.0;
+            let mut backward = 0.0;
+            for k in 0..3 {
+                forward += noise[k] * noise[k];
+                let back = -d[k] - mobility * f_y[k];
+                backward += back * back;
+            }
+            let log_ratio = -(u_y - u_x) / self.kt_pn_nm - (backward - forward) / two_var;
+            if log_ratio >= 0.0 || uniform < log_ratio.exp() {
+                self.slots.pos[s] = moved.at;
+                self.slots.img[s] = moved.image;
+                accepted += 1;
+            }
+        }
+        self.stats.proposed += n as u64;
+        self.stats.accepted += accepted;
+        state.step += 1;
+    }
+
+    /// The soft energy (pN·nm) and force (pN) on the particle in slot `s`
+    /// placed at `p`, from its neighbours where they stand; None when `p`
+    /// overlaps one. Terms are summed in order of particle index, so the
+    /// result does not depend on the list's order (a resumed run rebuilds it).
+    fn soft_energy_force(
+        &self,
+        s: usize,
+        p: &[f64; 3],
+        wrap: &MinImage,
+        near: &mut Vec<(u32, f64, [f64; 3])>,
+    ) -> Option<(f64, [f64; 3])> {
+        let pairs = self.pairs.as_ref().expect("soft step has pairs");
+        let list = self.verlet.as_ref().expect("list built by load");
+        let slots = &self.slots;
+        let (sp, ri) = (slots.species[s] as usize, slots.radius[s]);
+        near.clear();
+        for &t in list.neighbour_slots_at(s) {
+            let t = t as usize;
+            let d = wrap.delta(&slots.pos[t], p);
+            let r2 = d[0] * d[0] + d[1] * d[1] + d[2] * d[2];
+            let contact = ri + slots.radius[t];
+            if r2 < contact * contact {
+                return None;
+            }
+            let Some(pair) = pairs.get(sp, slots.species[t] as usize) else {
+                continue;
+            };
+            let cut = pair.cutoff_distance_nm();
+            if r2 >= cut * cut {
+                continue;
+            }
+            let r = r2.sqrt();
+            let f = pair.force_pn(r) / r;
+            near.push((
+                slots.id[t],
+                pair.energy_pn_nm(r),
+                [f * d[0], f * d[1], f * d[2]],
+            ));
+        }
+        near.sort_unstable_by_key(|e| e.0);
+        let mut u = 0.0;
+        let mut f = [0.0; 3];
+        for (_, e, v) in near.iter() {
+            u += e;
+            for k in 0..3 {
+                f[k] += v[k];
+            }
+        }
+        Some((u, f))
     }
 
     /// Rebuilds the Verlet list at the current positions with a skin of at
