@@ -6,7 +6,8 @@ use std::process::ExitCode;
 use thicket_analysis::estimators::{analyze, AnalyzeOptions};
 
 /// Suffixes of the files `--plot PREFIX` may write for a trajectory.
-const PLOT_FILES: [&str; 11] = [
+const PLOT_FILES: [&str; 12] = [
+    "_pairs.csv",
     "_msd.svg",
     "_msd.png",
     "_alpha.svg",
@@ -118,19 +119,26 @@ pub fn analyze_trajectory(args: &TrajectoryArgs) -> Result<ExitCode> {
     } else {
         None
     };
+    let stored = more
+        .is_empty()
+        .then(|| thicket_analysis::report::stored_scenario(file))
+        .flatten();
     // Binding species: bound fraction, dwell times and the fast-exchange model, per file.
-    let binding = match (
-        more.is_empty(),
-        thicket_analysis::report::stored_scenario(file),
-    ) {
-        (true, Some(scenario)) => thicket_analysis::binding::binding_report(
+    let binding = match &stored {
+        Some(scenario) => thicket_analysis::binding::binding_report(
             file,
-            &scenario,
+            scenario,
             &report.species,
             report.d_eff_m2_per_s,
         )
         .map_err(|e| anyhow::anyhow!("{}: binding record: {e}", file.display()))?,
-        _ => None,
+        None => None,
+    };
+    // Soft pairs: B₂ from the pair distribution against the model's integral, per file.
+    let pairs = match &stored {
+        Some(scenario) => thicket_analysis::pairs::pair_report(file, scenario, &report.species)
+            .map_err(|e| anyhow::anyhow!("{}: pair distribution: {e}", file.display()))?,
+        None => None,
     };
     if as_json {
         let mut value = serde_json::to_value(report)?;
@@ -139,6 +147,9 @@ pub fn analyze_trajectory(args: &TrajectoryArgs) -> Result<ExitCode> {
         }
         if let (Some(b), Some(map)) = (&binding, value.as_object_mut()) {
             map.insert("binding".into(), serde_json::to_value(b)?);
+        }
+        if let (Some(p), Some(map)) = (&pairs, value.as_object_mut()) {
+            map.insert("pairs".into(), serde_json::to_value(p)?);
         }
         println!("{}", serde_json::to_string_pretty(&value)?);
     } else {
@@ -149,6 +160,9 @@ pub fn analyze_trajectory(args: &TrajectoryArgs) -> Result<ExitCode> {
         if let Some(b) = &binding {
             print!("{}", b.to_table());
         }
+        if let Some(p) = &pairs {
+            print!("{}", p.to_table());
+        }
         println!("{}", thicket_analysis::sweep::CAUTION);
     }
     if let Some(prefix) = plot {
@@ -158,6 +172,14 @@ pub fn analyze_trajectory(args: &TrajectoryArgs) -> Result<ExitCode> {
             thicket_analysis::plot::write_curves(prefix, &analysis.msd, report)
                 .with_context(|| format!("writing curves {}_*", prefix.display()))?,
         );
+        if let Some(p) = &pairs {
+            let mut name = prefix.as_os_str().to_owned();
+            name.push("_pairs.csv");
+            let path = std::path::PathBuf::from(name);
+            std::fs::write(&path, p.to_csv())
+                .with_context(|| format!("writing {}", path.display()))?;
+            written.push(path);
+        }
         for p in written {
             eprintln!("wrote {}", p.display());
         }

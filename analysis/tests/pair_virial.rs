@@ -32,7 +32,7 @@ fn pair_distributions_give_the_model_second_virial_coefficients() {
     let steps = 40_000;
     let every = 20;
     let text = scenario_text(
-        29,
+        std::env::var("PAIR_SEED").map_or(29, |v| v.parse().unwrap()),
         [32.0, 32.0, 32.0],
         1.5,
         6_000,
@@ -108,6 +108,12 @@ fn pair_distributions_give_the_model_second_virial_coefficients() {
                 })
                 .sum();
             let expected = d.far_density_per_nm3 * integral;
+            println!(
+                "{probe}: shell {lo:.2}–{hi:.2} nm: {:.5} ± {:.5} against {expected:.5} ({:+.2} SE)",
+                d.counts[k],
+                d.counts_se[k],
+                (d.counts[k] - expected) / d.counts_se[k]
+            );
             chi2 += ((d.counts[k] - expected) / d.counts_se[k]).powi(2);
             dof += 1.0;
         }

@@ -52,6 +52,17 @@ impl PairPotential {
         }
     }
 
+    /// Energy (pN·nm) and force (pN) at centre distance `r_nm` ≥ contact, in one pass
+    /// (both 0 beyond the cut-off).
+    #[inline]
+    pub fn energy_force(&self, r_nm: f64) -> (f64, f64) {
+        if r_nm >= self.cutoff_distance_nm() {
+            (0.0, 0.0)
+        } else {
+            self.u.energy_force(r_nm - self.contact_nm)
+        }
+    }
+
     /// B₂ of the truncated model, nm³, at thermal energy `kt_pn_nm`: the
     /// hard core plus the soft part up to the cut-off.
     pub fn second_virial_nm3(&self, kt_pn_nm: f64) -> f64 {

@@ -200,6 +200,29 @@ impl WallPotential {
         f
     }
 
+    /// Energy (pN·nm) and force (pN, positive: away) at gap `h_nm`, as
+    /// [`Self::energy_pn_nm`] and [`Self::force_pn`] but with one exponential per term.
+    #[inline]
+    pub fn energy_force(&self, h_nm: f64) -> (f64, f64) {
+        let h = h_nm.max(0.0);
+        let e = self.electrostatic_pn_nm * (-self.kappa_per_nm * h).exp();
+        let (mut u, mut f) = (e, self.kappa_per_nm * e);
+        if self.well_depth_pn_nm != 0.0 {
+            let x = h / self.well_range_nm;
+            let w = self.well_depth_pn_nm * (-x * x).exp();
+            u -= w;
+            f -= w * 2.0 * x / self.well_range_nm;
+        }
+        if self.hamaker_pn_nm != 0.0 {
+            let (v, g) = self.van_der_waals(h_nm.max(self.closest_gap_nm));
+            u += v;
+            if h_nm > self.closest_gap_nm {
+                f += g;
+            }
+        }
+        (u, f)
+    }
+
     /// True when it exerts no force.
     pub fn is_none(&self) -> bool {
         self.electrostatic_pn_nm == 0.0 && self.well_depth_pn_nm == 0.0 && self.hamaker_pn_nm == 0.0
@@ -292,6 +315,29 @@ mod tests {
         for i in [0.001, 0.01, 0.1] {
             let l = debye_length_nm(78.4, 298.15, i);
             assert!((l * i.sqrt() - 0.304).abs() < 0.002, "{l}");
+        }
+    }
+
+    #[test]
+    fn energy_and_force_together_match_each_alone() {
+        let p = WallPotential {
+            electrostatic_pn_nm: 7.0,
+            kappa_per_nm: 0.9,
+            well_depth_pn_nm: 3.0,
+            well_range_nm: 0.7,
+            hamaker_pn_nm: 5.0,
+            closest_gap_nm: 0.3,
+            radius_nm: 2.0,
+            facing: Facing::Sphere(4.0),
+        };
+        for k in 0..200 {
+            let h = 0.05 * k as f64;
+            let (u, f) = p.energy_force(h);
+            assert!(
+                (u - p.energy_pn_nm(h)).abs() <= 1e-12 * (1.0 + u.abs()),
+                "{h}"
+            );
+            assert!((f - p.force_pn(h)).abs() <= 1e-12 * (1.0 + f.abs()), "{h}");
         }
     }
 

@@ -749,7 +749,6 @@ impl Crowd {
     fn step_soft(&mut self, state: &mut State, kinetics: &[Kinetics], sim_box: &SimBox) {
         let wrap = MinImage::new(sim_box);
         let n = self.slots.id.len();
-        let mut near = Vec::new();
         let mut accepted = 0;
         for i in 0..n {
             let mut s = self.verlet.as_ref().expect("list built by load").slot_of(i);
@@ -759,7 +758,7 @@ impl Crowd {
             let mobility = 0.5 * kin.sigma_nm * kin.sigma_nm / self.kt_pn_nm;
             let x = self.slots.pos[s];
             let (u_x, f_x) = self
-                .soft_energy_force(s, &x, &wrap, &mut near)
+                .soft_energy_force(s, &x, &wrap)
                 .expect("a particle's own position is never in overlap");
             let g = &mut self.slots.rng[s];
             let noise = Isotropic {
@@ -790,7 +789,7 @@ impl Crowd {
             if blocked {
                 continue;
             }
-            let Some((u_y, f_y)) = self.soft_energy_force(s, &moved.at, &wrap, &mut near) else {
+            let Some((u_y, f_y)) = self.soft_energy_force(s, &moved.at, &wrap) else {
                 continue;
             };
             // ln q(y→x) − ln q(x→y): Gaussians of variance 2D0Δt about each start's drifted point.
@@ -816,20 +815,24 @@ impl Crowd {
 
     /// The soft energy (pN·nm) and force (pN) on the particle in slot `s`
     /// placed at `p`, from its neighbours where they stand; None when `p`
-    /// overlaps one. Terms are summed in order of particle index, so the
-    /// result does not depend on the list's order (a resumed run rebuilds it).
+    /// overlaps one. Terms are summed in fixed point (2⁻³² of a unit), which
+    /// is exact and so independent of the list's order: a resumed run, which
+    /// rebuilds its list, gives the same numbers.
     fn soft_energy_force(
         &self,
         s: usize,
         p: &[f64; 3],
         wrap: &MinImage,
-        near: &mut Vec<(u32, f64, [f64; 3])>,
     ) -> Option<(f64, [f64; 3])> {
+        const SCALE: f64 = 4_294_967_296.0;
+        // Truncation, not `round` (a library call here): each term is converted alone, so the sum stays exact.
+        let fixed = |x: f64| (x * SCALE) as i64;
         let pairs = self.pairs.as_ref().expect("soft step has pairs");
         let list = self.verlet.as_ref().expect("list built by load");
         let slots = &self.slots;
         let (sp, ri) = (slots.species[s] as usize, slots.radius[s]);
-        near.clear();
+        let mut u = 0i64;
+        let mut f = [0i64; 3];
         for &t in list.neighbour_slots_at(s) {
             let t = t as usize;
             let d = wrap.delta(&slots.pos[t], p);
@@ -846,23 +849,14 @@ impl Crowd {
                 continue;
             }
             let r = r2.sqrt();
-            let f = pair.force_pn(r) / r;
-            near.push((
-                slots.id[t],
-                pair.energy_pn_nm(r),
-                [f * d[0], f * d[1], f * d[2]],
-            ));
-        }
-        near.sort_unstable_by_key(|e| e.0);
-        let mut u = 0.0;
-        let mut f = [0.0; 3];
-        for (_, e, v) in near.iter() {
-            u += e;
+            let (e, force) = pair.energy_force(r);
+            let c = force / r;
+            u = u.wrapping_add(fixed(e));
             for k in 0..3 {
-                f[k] += v[k];
+                f[k] = f[k].wrapping_add(fixed(c * d[k]));
             }
         }
-        Some((u, f))
+        Some((u as f64 / SCALE, f.map(|v| v as f64 / SCALE)))
     }
 
     /// Rebuilds the Verlet list at the current positions with a skin of at
