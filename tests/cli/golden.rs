@@ -121,6 +121,14 @@ const CASES: &[(&str, &[&str])] = &[
         ],
     ),
     (
+        "configs/charged-crowd.toml",
+        &[
+            "species.sorrel.count=300",
+            "integrator.steps=400",
+            "output.record_every_steps=40",
+        ],
+    ),
+    (
         "configs/charged-gel-high-salt.toml",
         &[
             "species.rowan.count=300",
