@@ -305,6 +305,10 @@ pub const SETTLE_FRACTION: f64 = 0.2;
 pub const PAIR_BLOCKS: usize = 10;
 /// Shells of the reported g(r).
 pub const PAIR_SHELLS: usize = 20;
+/// Largest share of the box the centres' spheres of radius R may fill
+/// together (N_X V_R/V) for B₂ to be estimated: beyond it their
+/// neighbourhoods overlap and the first-order correction no longer holds.
+pub const DILUTE_OCCUPANCY: f64 = 0.05;
 
 /// One soft pair of a scenario as measured in its trajectory.
 #[derive(Debug, Clone, serde::Serialize)]
@@ -320,6 +324,12 @@ pub struct PairEntry {
     /// True when the estimate is exact for the model (one centre among ideal
     /// partners); else good to first order in the centres' density.
     pub exact: bool,
+    /// N_X V_R/V: the share of the box the centres' spheres of radius R fill.
+    pub occupancy: f64,
+    /// B₂ measured and its standard error, nm³, when the centres are dilute
+    /// enough ([`DILUTE_OCCUPANCY`]); None otherwise (g(r) then holds the
+    /// many-body structure, not e^{−U/k_BT}).
+    pub second_virial_nm3: Option<[f64; 2]>,
     /// Time of the first frame used, s.
     pub from_s: f64,
 }
@@ -398,11 +408,23 @@ pub fn pair_report(
                 sum / w
             })
             .collect();
+        let exact = centre.count == 1 && !partner.crowder && centre.name != partner.name;
+        let excluders = if centre.name == partner.name {
+            centre.count.saturating_sub(2)
+        } else {
+            centre.count
+        };
+        let volume: f64 = scenario.sim_box.edges_nm.iter().product();
+        let occupancy = excluders as f64 * 4.0 / 3.0 * PI * reach.powi(3) / volume;
+        let second_virial_nm3 = (exact || occupancy <= DILUTE_OCCUPANCY)
+            .then_some([measured.second_virial_nm3, measured.second_virial_se_nm3]);
         pairs.push(PairEntry {
+            occupancy,
+            second_virial_nm3,
             model_second_virial_nm3: p.second_virial_nm3(kt),
             hard_second_virial_nm3: 2.0 * PI / 3.0 * p.contact_nm.powi(3),
             g_model,
-            exact: centre.count == 1 && !partner.crowder && centre.name != partner.name,
+            exact,
             from_s: centre_meta.times_s.get(first).copied().unwrap_or(0.0),
             measured,
         });
@@ -421,25 +443,32 @@ impl PairReport {
         let _ = writeln!(s, "interactions between particles of '{}'", self.species);
         for e in &self.pairs {
             let m = &e.measured;
+            let measured = match e.second_virial_nm3 {
+                Some([b2, se]) => format!(
+                    "B₂ = {b2:.4} ± {se:.4} nm³ measured ({} centres, {} partners, frames from {:.3e} s on, {} blocks; {})",
+                    m.centres,
+                    m.partners,
+                    e.from_s,
+                    m.blocks,
+                    if e.exact {
+                        "exact for the model: one centre among ideal partners"
+                    } else {
+                        "first order in the centres' density"
+                    }
+                ),
+                None => format!(
+                    "B₂ not measured: the {} centres' spheres of radius {:.2} nm fill {:.2} of the box together (at most {DILUTE_OCCUPANCY} \
+                     for a dilute estimate), so g(r) holds the crowd's structure, not e^(−U/k_BT)",
+                    m.centres,
+                    m.edges_nm.last().copied().unwrap_or(0.0),
+                    e.occupancy
+                ),
+            };
             let _ = writeln!(
                 s,
-                "  '{}' around '{}'  B₂ = {:.4} ± {:.4} nm³ measured ({} centres, {} partners, frames from {:.3e} s on, {} blocks; {}); \
-                 model {:.4} nm³ (numerical integral), hard spheres {:.4} nm³",
-                m.species[1],
-                m.species[0],
-                m.second_virial_nm3,
-                m.second_virial_se_nm3,
-                m.centres,
-                m.partners,
-                e.from_s,
-                m.blocks,
-                if e.exact {
-                    "exact for the model: one centre among ideal partners"
-                } else {
-                    "first order in the centres' density"
-                },
-                e.model_second_virial_nm3,
-                e.hard_second_virial_nm3
+                "  '{}' around '{}'  {measured}; model B₂ = {:.4} nm³ (numerical integral), hard spheres {:.4} nm³; \
+                 g(r) per shell in --plot's _pairs.csv",
+                m.species[1], m.species[0], e.model_second_virial_nm3, e.hard_second_virial_nm3
             );
         }
         s
