@@ -73,6 +73,7 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
             "binding": report.binding,
             "obstacle_interactions": report.obstacle_interactions,
             "pair_interactions": report.pair_interactions,
+            "surface_charges": report.surface_charges,
         });
         if let Some(c) = &confinement {
             // The first species' values at the top level; every species under "confinement".
@@ -216,6 +217,13 @@ pub fn check(config: &Path, sets: &[String], as_json: bool) -> Result<ExitCode> 
                 println!("    hindrance  {}", hindrance_line(h));
             }
         }
+    }
+    for c in &report.surface_charges {
+        println!(
+            "  charge     {} = {} mC/m² gives ψ = {:.4} mV (Grahame 1947, flat surface in a 1:1 electrolyte; \
+             an approximation on spheres and fibres, for κa ≫ 1)",
+            c.key, c.charge_density_mc_per_m2, c.potential_mv
+        );
     }
     for i in &report.interactions {
         let debye = i

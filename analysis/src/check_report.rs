@@ -8,6 +8,7 @@ use crate::models::{self, ModelError};
 use crate::run_length::{long_time_regime, RegimeEstimate};
 use serde::Serialize;
 use thicket_engine::obstacles::spheres::{Estimate, FixedObstacles, Region};
+pub use thicket_engine::scenario::charge::SurfaceCharge;
 use thicket_engine::scenario::drive::FlowSpec;
 use thicket_engine::scenario::media::ObstacleSpec;
 use thicket_engine::space::potentials::Facing;
@@ -55,6 +56,9 @@ pub struct CheckReport {
     pub obstacle_interactions: Vec<ObstacleInteraction>,
     /// Soft interactions between mobile particles per pair of species (empty without them).
     pub pair_interactions: Vec<PairInteraction>,
+    /// Surfaces given by charge density, with the potential each gives
+    /// (Grahame 1947, planar; empty when every surface gave its potential).
+    pub surface_charges: Vec<SurfaceCharge>,
 }
 
 /// The soft interaction of one pair of species and its second virial coefficient.
@@ -479,6 +483,7 @@ pub fn check_report(scenario: &Scenario) -> Result<CheckReport, CheckError> {
         binding: binding(scenario, &obstacles),
         obstacle_interactions,
         pair_interactions: pair_interactions(scenario),
+        surface_charges: scenario.surface_charges.clone(),
     })
 }
 

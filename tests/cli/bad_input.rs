@@ -738,3 +738,80 @@ fn binding_keys_are_checked() {
     );
     assert!(!d.path().join("out.h5").exists());
 }
+
+#[test]
+fn surface_charge_density_keys_are_checked() {
+    let d = tempdir();
+    let medium =
+        "temperature_K = 300.0\nionic_strength_mol_per_L = 0.01\nrelative_permittivity = 78.4";
+    let charged = BASE
+        .replace("temperature_K = 300.0", medium)
+        .replace(
+            "count = 20",
+            "count = 20\nsurface_potential_mV = -25.0\nrole = \"tracer\"",
+        )
+        .replace(
+            "[integrator]",
+            "[obstacles]\nplacement = \"random\"\ncount = 10\nradius_nm = 5.0\nsurface_charge_density_mC_per_m2 = -10.0\n[integrator]",
+        );
+    // Both keys on one surface, in `check` and in `run` (which must leave no file behind).
+    let both = charged.replace(
+        "surface_charge_density_mC_per_m2 = -10.0",
+        "surface_charge_density_mC_per_m2 = -10.0\nsurface_potential_mV = -30.0",
+    );
+    for verb in ["check", "run"] {
+        fails(
+            d.path(),
+            &both,
+            verb,
+            &[],
+            &[
+                "bad.toml",
+                "obstacles.surface_charge_density_mC_per_m2",
+                "-10",
+                "not both",
+            ],
+        );
+    }
+    assert!(!d.path().join("bad.h5").exists());
+    // A charge density without the medium's ionic strength.
+    fails(
+        d.path(),
+        &charged.replace("ionic_strength_mol_per_L = 0.01\n", ""),
+        "check",
+        &[],
+        &[
+            "bad.toml",
+            "medium.ionic_strength_mol_per_L",
+            "(missing)",
+            "obstacles.surface_charge_density_mC_per_m2",
+            "Grahame",
+        ],
+    );
+    // Out of range.
+    fails(
+        d.path(),
+        &charged.replace("= -10.0", "= 5000.0"),
+        "check",
+        &[],
+        &[
+            "bad.toml",
+            "obstacles.surface_charge_density_mC_per_m2",
+            "5000",
+            "mC/m²",
+        ],
+    );
+    // Valid: check prints the potential the charge density gives (Grahame 1947; −10 mC/m² at
+    // 0.01 mol/L, ε_r = 78.4, 300 K: 51.70 mV · asinh(−10/11.77) = −39.86 mV, by hand).
+    let cfg = d.path().join("good.toml");
+    std::fs::write(&cfg, &charged).unwrap();
+    let out = ok(&thicket(d.path(), &["check", cfg.to_str().unwrap()]));
+    let line = out
+        .lines()
+        .find(|l| l.contains("obstacles.surface_charge_density_mC_per_m2"))
+        .unwrap_or_else(|| panic!("no charge line: {out}"));
+    assert!(
+        line.contains("-10 mC/m²") && line.contains("ψ = -39.") && line.contains("Grahame"),
+        "{line}"
+    );
+}

@@ -143,6 +143,14 @@ pub struct RawObstacles {
         skip_serializing_if = "Option::is_none"
     )]
     pub surface_potential_mv: Option<f64>,
+    /// Surface charge density, mC/m², instead of the potential (turned into
+    /// it by the Grahame equation; needs the medium's ionic strength and permittivity).
+    #[serde(
+        rename = "surface_charge_density_mC_per_m2",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub surface_charge_density_mc_per_m2: Option<f64>,
 }
 
 /// `[fibres]`: fixed straight cylinders.
@@ -175,6 +183,14 @@ pub struct RawFibres {
         skip_serializing_if = "Option::is_none"
     )]
     pub surface_potential_mv: Option<f64>,
+    /// Surface charge density, mC/m², instead of the potential (turned into
+    /// it by the Grahame equation; needs the medium's ionic strength and permittivity).
+    #[serde(
+        rename = "surface_charge_density_mC_per_m2",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub surface_charge_density_mc_per_m2: Option<f64>,
 }
 
 /// `[medium]`.
@@ -255,6 +271,14 @@ pub struct RawSpecies {
         skip_serializing_if = "Option::is_none"
     )]
     pub surface_potential_mv: Option<f64>,
+    /// Surface charge density, mC/m², instead of the potential (turned into
+    /// it by the Grahame equation; needs the medium's ionic strength and permittivity).
+    #[serde(
+        rename = "surface_charge_density_mC_per_m2",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub surface_charge_density_mc_per_m2: Option<f64>,
     /// Depth of a short-range attractive well at the walls, in k_BT.
     #[serde(
         rename = "wall_well_depth_kT",
@@ -406,6 +430,9 @@ pub struct Scenario {
     pub flow: Option<FlowSpec>,
     /// Soft interactions between mobile particles, if any.
     pub pairs: Option<crate::space::pairs::PairTable>,
+    /// Surfaces whose potential was given as a charge density, with the
+    /// potential each gives (Grahame); empty when none was.
+    pub surface_charges: Vec<crate::scenario::charge::SurfaceCharge>,
     /// The resolved scenario (defaults filled in) as TOML text.
     pub resolved_toml: String,
 }
@@ -961,6 +988,104 @@ impl RawScenario {
     /// # Errors
     /// [`EngineError::InvalidValue`] naming the first bad key.
     pub fn validate(&self, file: &Path) -> Result<Scenario> {
+        // Charge densities become potentials once; the rest reads potentials only.
+        let mut settled = self.clone();
+        let charges = settled.settle_charge_densities(file)?;
+        settled
+            .validate_settled(file, self, charges.clone())
+            .map_err(|e| crate::scenario::charge::name_given_keys(e, &charges))
+    }
+
+    /// Replaces each surface charge density by the surface potential it
+    /// gives (Grahame), returning what was converted.
+    fn settle_charge_densities(
+        &mut self,
+        file: &Path,
+    ) -> Result<Vec<crate::scenario::charge::SurfaceCharge>> {
+        use crate::scenario::charge::settle_potential;
+        let any = self
+            .species
+            .iter()
+            .any(|s| s.surface_charge_density_mc_per_m2.is_some())
+            || self
+                .geometry
+                .as_ref()
+                .is_some_and(|g| g.wall_surface_charge_density_mc_per_m2.is_some())
+            || self
+                .obstacles
+                .as_ref()
+                .is_some_and(|o| o.surface_charge_density_mc_per_m2.is_some())
+            || self
+                .fibres
+                .as_ref()
+                .is_some_and(|f| f.surface_charge_density_mc_per_m2.is_some());
+        if !any {
+            return Ok(Vec::new());
+        }
+        let temperature_k = within(
+            file,
+            "medium.temperature_K",
+            self.medium.temperature_k,
+            TEMPERATURE_RANGE_K,
+            "K",
+        )?;
+        let medium = crate::scenario::drive::MediumKeys {
+            ionic_strength_mol_per_l: self.medium.ionic_strength_mol_per_l,
+            relative_permittivity: self.medium.relative_permittivity,
+        };
+        let mut charges = Vec::new();
+        let mut settle = |prefix: &str, potential: &mut Option<f64>, sigma: &mut Option<f64>| {
+            let c = settle_potential(
+                file,
+                prefix,
+                potential,
+                sigma.take(),
+                &medium,
+                temperature_k,
+            )?;
+            charges.extend(c);
+            Ok::<(), EngineError>(())
+        };
+        for (i, s) in self.species.iter_mut().enumerate() {
+            settle(
+                &format!("species[{i}]."),
+                &mut s.surface_potential_mv,
+                &mut s.surface_charge_density_mc_per_m2,
+            )?;
+        }
+        if let Some(g) = self.geometry.as_mut() {
+            settle(
+                "geometry.wall_",
+                &mut g.wall_surface_potential_mv,
+                &mut g.wall_surface_charge_density_mc_per_m2,
+            )?;
+        }
+        if let Some(o) = self.obstacles.as_mut() {
+            settle(
+                "obstacles.",
+                &mut o.surface_potential_mv,
+                &mut o.surface_charge_density_mc_per_m2,
+            )?;
+        }
+        if let Some(f) = self.fibres.as_mut() {
+            settle(
+                "fibres.",
+                &mut f.surface_potential_mv,
+                &mut f.surface_charge_density_mc_per_m2,
+            )?;
+        }
+        Ok(charges)
+    }
+
+    /// [`RawScenario::validate`] once charge densities are settled into
+    /// potentials; `written` is the scenario as given (its resolved text
+    /// keeps the charge densities, so it validates again to the same potentials).
+    fn validate_settled(
+        &self,
+        file: &Path,
+        written: &RawScenario,
+        surface_charges: Vec<crate::scenario::charge::SurfaceCharge>,
+    ) -> Result<Scenario> {
         let seed = match self.seed {
             None => 1,
             Some(s) if s >= 0 => s as u64,
@@ -1385,7 +1510,7 @@ impl RawScenario {
             None => None,
         };
 
-        let mut resolved = self.clone();
+        let mut resolved = written.clone();
         resolved.seed = Some(seed as i64);
         resolved.medium.viscosity_pa_s = Some(viscosity_pa_s);
         resolved.sim_box.periodic = Some(periodic.to_vec());
@@ -1470,6 +1595,7 @@ impl RawScenario {
             geometry,
             flow,
             pairs,
+            surface_charges,
             resolved_toml,
         };
         Ok(scenario)
@@ -1621,7 +1747,7 @@ impl RawScenario {
                     file,
                     "geometry.wall_surface_potential_mV",
                     psi,
-                    "no species carries surface_potential_mV, so the walls' potential would act on nothing",
+                    "no species carries surface_potential_mV (or surface_charge_density_mC_per_m2), so the walls' potential would act on nothing",
                 ));
             }
         }
@@ -1639,7 +1765,7 @@ impl RawScenario {
                         file,
                         key,
                         psi,
-                        "no species carries surface_potential_mV, so this potential would act on nothing",
+                        "no species carries surface_potential_mV (or surface_charge_density_mC_per_m2), so this potential would act on nothing",
                     ));
                 }
             }

@@ -661,7 +661,8 @@ pub fn species_wall_potential(
                 file,
                 key("surface_potential_mV"),
                 "(given)",
-                "screened electrostatics needs the walls' potential too: geometry.wall_surface_potential_mV",
+                "screened electrostatics needs the walls' potential too: geometry.wall_surface_potential_mV \
+                 (or their charge density, geometry.wall_surface_charge_density_mC_per_m2)",
             ))
         }
         (None, _) => {}

@@ -586,6 +586,14 @@ pub struct RawGeometry {
         skip_serializing_if = "Option::is_none"
     )]
     pub wall_surface_potential_mv: Option<f64>,
+    /// Surface charge density of the walls, mC/m², instead of their
+    /// potential (turned into it by the Grahame equation).
+    #[serde(
+        rename = "wall_surface_charge_density_mC_per_m2",
+        default,
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub wall_surface_charge_density_mc_per_m2: Option<f64>,
 }
 
 impl RawGeometry {

@@ -26,6 +26,11 @@
 //! - Short-range well: U(h) = −ε exp(−(h/w)²), depth ε (given in k_BT) at
 //!   contact, range w.
 //!
+//! - A surface charge density σ becomes a surface potential by the Grahame
+//!   equation of a flat surface in a 1:1 electrolyte (Grahame 1947; from
+//!   memory): σ = √(8 ε_r ε_0 k_BT n) sinh(eψ/2k_BT), n = 1000 N_A I (I in
+//!   mol/L). On spheres and fibres it is an approximation for κa ≫ 1.
+//!
 //! In a cylindrical pore the sphere–plane form is applied at the gap to
 //! the wall along the radius (the pore wall seen as a plane: an
 //! approximation for pores much wider than the Debye length and the
@@ -51,6 +56,54 @@ pub fn debye_length_nm(
         / (2.0 * AVOGADRO_PER_MOL * ELEMENTARY_CHARGE_C * ELEMENTARY_CHARGE_C * i_mol_per_m3))
         .sqrt()
         * 1e9
+}
+
+/// Grahame's charge scale √(8 ε_r ε_0 k_BT n) of a 1:1 electrolyte, C/m²,
+/// with n = 1000 N_A I ions of each sign per m³ (I in mol/L).
+fn grahame_scale_c_per_m2(
+    relative_permittivity: f64,
+    temperature_k: f64,
+    ionic_mol_per_l: f64,
+) -> f64 {
+    let n_per_m3 = 1e3 * AVOGADRO_PER_MOL * ionic_mol_per_l;
+    (8.0 * relative_permittivity
+        * VACUUM_PERMITTIVITY_F_PER_M
+        * BOLTZMANN_J_PER_K
+        * temperature_k
+        * n_per_m3)
+        .sqrt()
+}
+
+/// Surface potential, mV, of a flat surface carrying charge density
+/// `charge_density_mc_per_m2` (mC/m²) in a 1:1 electrolyte of ionic
+/// strength `ionic_mol_per_l`: the Grahame equation (Grahame 1947; from
+/// memory) σ = √(8 ε_r ε_0 k_BT n) sinh(eψ/2k_BT) solved for ψ,
+/// ψ = (2k_BT/e) asinh(σ/√(8 ε_r ε_0 k_BT n)).
+///
+/// It is the planar form: applied to spheres and fibres it is an
+/// approximation valid when their radii far exceed the Debye length (κa ≫ 1).
+pub fn grahame_potential_mv(
+    charge_density_mc_per_m2: f64,
+    relative_permittivity: f64,
+    temperature_k: f64,
+    ionic_mol_per_l: f64,
+) -> f64 {
+    let scale = grahame_scale_c_per_m2(relative_permittivity, temperature_k, ionic_mol_per_l);
+    let two_kt_over_e_v = 2.0 * BOLTZMANN_J_PER_K * temperature_k / ELEMENTARY_CHARGE_C;
+    two_kt_over_e_v * (charge_density_mc_per_m2 * 1e-3 / scale).asinh() * 1e3
+}
+
+/// Charge density, mC/m², of a flat surface at potential `potential_mv`
+/// (the Grahame equation forward; the inverse of [`grahame_potential_mv`]).
+pub fn grahame_charge_density_mc_per_m2(
+    potential_mv: f64,
+    relative_permittivity: f64,
+    temperature_k: f64,
+    ionic_mol_per_l: f64,
+) -> f64 {
+    let scale = grahame_scale_c_per_m2(relative_permittivity, temperature_k, ionic_mol_per_l);
+    let two_kt_over_e_mv = 2e3 * BOLTZMANN_J_PER_K * temperature_k / ELEMENTARY_CHARGE_C;
+    scale * (potential_mv / two_kt_over_e_mv).sinh() * 1e3
 }
 
 /// What a sphere faces: sets the Derjaguin radius and the van der Waals form.
@@ -339,6 +392,60 @@ mod tests {
             );
             assert!((f - p.force_pn(h)).abs() <= 1e-12 * (1.0 + f.abs()), "{h}");
         }
+    }
+
+    #[test]
+    fn grahame_potential_matches_a_hand_computed_value() {
+        // Grahame 1947 (from memory), by hand: I = 0.01 mol/L, ε_r = 78.4, T = 298.15 K give
+        // √(8 ε_r ε_0 k_BT n) = 11.7331 mC/m² and 2k_BT/e = 51.3852 mV, so σ = −50 mC/m²
+        // gives ψ = 51.3852 mV · asinh(−50/11.7331) = 51.3852 × (−2.15625) = −110.799 mV.
+        let psi = grahame_potential_mv(-50.0, 78.4, 298.15, 0.01);
+        assert!((psi - -110.799).abs() < 0.002, "{psi}");
+        // Israelachvili, Intermolecular and Surface Forces, 3rd ed., §14.6 (from memory):
+        // σ ≈ 0.117 √(c/(mol/L)) sinh(ψ/51.4 mV) C/m² in water at 25 °C; three digits.
+        for (c, psi) in [(0.001, -20.0), (0.01, 40.0), (0.1, -100.0)] {
+            let sigma = grahame_charge_density_mc_per_m2(psi, 78.4, 298.15, c);
+            let rule = 117.0 * f64::sqrt(c) * (psi / 51.4_f64).sinh();
+            assert!(
+                (sigma / rule - 1.0).abs() < 0.005,
+                "{c} {psi}: {sigma} vs {rule}"
+            );
+        }
+    }
+
+    #[test]
+    fn grahame_charge_of_the_potential_of_a_charge_is_that_charge() {
+        // Exact identity σ(ψ(σ)) = σ, to rounding.
+        for sigma in [-300.0, -50.0, -1.0, -1e-6, 0.0, 0.3, 20.0, 160.0] {
+            for (eps, t, i) in [
+                (78.4, 298.15, 0.01),
+                (30.0, 350.0, 1e-4),
+                (78.4, 280.0, 2.0),
+            ] {
+                let psi = grahame_potential_mv(sigma, eps, t, i);
+                let back = grahame_charge_density_mc_per_m2(psi, eps, t, i);
+                assert!(
+                    (back - sigma).abs() <= 1e-12 * sigma.abs(),
+                    "{sigma} → {psi} mV → {back}"
+                );
+                // The sign follows the charge.
+                assert_eq!(psi.signum(), sigma.signum(), "{sigma}");
+            }
+        }
+    }
+
+    #[test]
+    fn grahame_reduces_to_the_debye_huckel_capacitor_at_low_charge() {
+        // Exact limit: ψ → σ/(ε_r ε_0 κ) as σ → 0, the cubic term σ²/(6 scale²) ≈ 1e-8 relative here.
+        let (eps, t, i, sigma) = (78.4, 298.15, 0.01, 0.01);
+        let psi = grahame_potential_mv(sigma, eps, t, i);
+        let linear_v =
+            sigma * 1e-3 * debye_length_nm(eps, t, i) * 1e-9 / (eps * VACUUM_PERMITTIVITY_F_PER_M);
+        assert!(
+            (psi / (linear_v * 1e3) - 1.0).abs() < 1e-6,
+            "{psi} vs {}",
+            linear_v * 1e3
+        );
     }
 
     #[test]
