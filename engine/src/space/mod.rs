@@ -9,7 +9,7 @@ pub mod neighbors;
 pub mod pore_hydro;
 pub mod potentials;
 pub mod shape;
-pub mod soft;
 pub mod sim_box;
+pub mod soft;
 
 pub use sim_box::{reflect, SimBox};
