@@ -33,7 +33,7 @@ struct SquaredTable {
     r2_lo: f64,
     inverse_dr2: f64,
     /// A fixed length, so the index clamped in [`SquaredTable::at`] needs no bounds check.
-    values: Box<[f32; TABLE_INTERVALS + 2]>,
+    values: Box<[f64; TABLE_INTERVALS + 2]>,
 }
 
 impl SquaredTable {
@@ -43,7 +43,8 @@ impl SquaredTable {
         let dr2 = (r2_hi - r2_lo).max(1e-12) / TABLE_INTERVALS as f64;
         let values = Box::new(std::array::from_fn(|i| {
             let r = (r2_lo + i as f64 * dr2).sqrt();
-            (f(r) / r) as f32
+            // Rounded through f32 as first tabulated (the same numbers), held as f64 for the lookup.
+            f64::from((f(r) / r) as f32)
         }));
         Self {
             r2_lo,
@@ -60,7 +61,7 @@ impl SquaredTable {
         let i = (t as u32).min(TABLE_INTERVALS as u32 - 1);
         let f = t - f64::from(i);
         let i = i as usize;
-        let (a, b) = (f64::from(self.values[i]), f64::from(self.values[i + 1]));
+        let (a, b) = (self.values[i], self.values[i + 1]);
         a + f * (b - a)
     }
 }
