@@ -32,7 +32,8 @@ const CELL_OVER_REACH: f64 = 0.25;
 struct SquaredTable {
     r2_lo: f64,
     inverse_dr2: f64,
-    values: Vec<f32>,
+    /// A fixed length, so the index clamped in [`SquaredTable::at`] needs no bounds check.
+    values: Box<[f64; TABLE_INTERVALS + 2]>,
 }
 
 impl SquaredTable {
@@ -40,12 +41,11 @@ impl SquaredTable {
     fn build(lo: f64, hi: f64, f: impl Fn(f64) -> f64) -> Self {
         let (r2_lo, r2_hi) = (lo * lo, hi * hi);
         let dr2 = (r2_hi - r2_lo).max(1e-12) / TABLE_INTERVALS as f64;
-        let values = (0..=TABLE_INTERVALS + 1)
-            .map(|i| {
-                let r = (r2_lo + i as f64 * dr2).sqrt();
-                (f(r) / r) as f32
-            })
-            .collect();
+        let values = Box::new(std::array::from_fn(|i| {
+            let r = (r2_lo + i as f64 * dr2).sqrt();
+            // Rounded through f32 as first tabulated (the same numbers), held as f64 for the lookup.
+            f64::from((f(r) / r) as f32)
+        }));
         Self {
             r2_lo,
             inverse_dr2: 1.0 / dr2,
@@ -57,9 +57,11 @@ impl SquaredTable {
     #[inline(always)]
     fn at(&self, r2: f64) -> f64 {
         let t = ((r2 - self.r2_lo) * self.inverse_dr2).clamp(0.0, TABLE_INTERVALS as f64);
-        let i = (t as usize).min(TABLE_INTERVALS - 1);
-        let f = t - i as f64;
-        let (a, b) = (f64::from(self.values[i]), f64::from(self.values[i + 1]));
+        // Through u32, one conversion each way (t lies in [0, TABLE_INTERVALS]).
+        let i = (t as u32).min(TABLE_INTERVALS as u32 - 1);
+        let f = t - f64::from(i);
+        let i = i as usize;
+        let (a, b) = (self.values[i], self.values[i + 1]);
         a + f * (b - a)
     }
 }
