@@ -477,8 +477,9 @@ impl PairReport {
     /// g(r) per shell beside the model's e^{−U/k_BT}, as CSV text.
     pub fn to_csv(&self) -> String {
         use std::fmt::Write as _;
-        let mut s =
-            String::from("centre,partner,r_lo_nm,r_hi_nm,mean_count,mean_count_se,g,g_model\n");
+        let mut s = String::from(
+            "centre,partner,r_lo_nm,r_hi_nm,mean_count,mean_count_se,g,g_low_density_model\n",
+        );
         for e in &self.pairs {
             let m = &e.measured;
             for k in 0..m.counts.len() {

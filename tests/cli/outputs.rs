@@ -278,3 +278,70 @@ fn binding_is_checked_and_analysed() {
     assert!(b["events"].as_u64().unwrap() > 0, "{b}");
     assert!(b["predicted_k"][0].as_f64().unwrap() > 0.0, "{b}");
 }
+
+// A charged crowd: `check` prints each pair's B₂ of the model; `analyze`
+// refuses a B₂ where the centres' neighbourhoods overlap (and says why),
+// gives one for a single centre among ideal probes, and `--plot` writes g(r)
+// beside e^(−U/k_BT) as CSV; JSON carries the same.
+#[test]
+fn pair_interactions_are_checked_and_analysed() {
+    let dir = tempdir();
+    let config = repo("configs/charged-crowd.toml");
+    let cfg = config.to_str().unwrap();
+    let check = ok(&thicket(dir.path(), &["check", cfg]));
+    assert!(check.contains("pairs      'sorrel'–'bead'"), "{check}");
+    assert!(check.contains("second virial coefficient"), "{check}");
+    let short = [
+        "--set",
+        "integrator.steps=2000",
+        "--set",
+        "output.record_every_steps=50",
+    ];
+    let mut args = vec!["run", cfg, "--out", "crowd.h5"];
+    args.extend(short);
+    ok(&thicket(dir.path(), &args));
+    let text = ok(&thicket(dir.path(), &["analyze", "crowd.h5"]));
+    assert!(
+        text.contains("interactions between particles of 'sorrel'"),
+        "{text}"
+    );
+    assert!(text.contains("B₂ not measured"), "{text}");
+    // One bead among ideal probes: the exact case.
+    let mut args = vec![
+        "run",
+        cfg,
+        "--out",
+        "one.h5",
+        "--set",
+        "species.bead.count=1",
+        "--set",
+        "species.sorrel.count=3000",
+    ];
+    args.extend(short);
+    ok(&thicket(dir.path(), &args));
+    let text = ok(&thicket(
+        dir.path(),
+        &["analyze", "one.h5", "--plot", "one"],
+    ));
+    assert!(text.contains("exact for the model"), "{text}");
+    let csv = std::fs::read_to_string(dir.path().join("one_pairs.csv")).unwrap();
+    assert!(
+        csv.starts_with(
+            "centre,partner,r_lo_nm,r_hi_nm,mean_count,mean_count_se,g,g_low_density_model\n"
+        ),
+        "{csv}"
+    );
+    assert_eq!(
+        csv.lines().count(),
+        1 + thicket_analysis::pairs::PAIR_SHELLS
+    );
+    let json: serde_json::Value =
+        serde_json::from_str(&ok(&thicket(dir.path(), &["analyze", "one.h5", "--json"]))).unwrap();
+    let p = &json["pairs"]["pairs"][0];
+    assert!(p["exact"].as_bool().unwrap(), "{p}");
+    assert!(
+        p["model_second_virial_nm3"].as_f64().unwrap() > 3000.0,
+        "{p}"
+    );
+    assert!(p["second_virial_nm3"][1].as_f64().unwrap() > 0.0, "{p}");
+}
