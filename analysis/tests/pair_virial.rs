@@ -32,6 +32,7 @@ fn pair_distributions_give_the_model_second_virial_coefficients() {
     let steps = 40_000;
     let every = 20;
     let text = scenario_text(
+        // PAIR_SEED repeats the check on other seeds (how the spread across seeds was measured).
         std::env::var("PAIR_SEED").map_or(29, |v| v.parse().unwrap()),
         [32.0, 32.0, 32.0],
         1.5,
