@@ -50,6 +50,8 @@ pub struct PairDistribution {
     pub partners: usize,
     /// Centres N_A.
     pub centres: usize,
+    /// N_X, the centres besides the one counted around that exclude a partner (N_A for two species, N_A − 2 for one).
+    pub excluders: usize,
 }
 
 /// Counts partners around centres frame by frame.
@@ -179,6 +181,7 @@ pub fn pair_distribution(
         frames: per_block * blocks,
         partners,
         centres: n_a,
+        excluders,
     })
 }
 
@@ -409,13 +412,8 @@ pub fn pair_report(
             })
             .collect();
         let exact = centre.count == 1 && !partner.crowder && centre.name != partner.name;
-        let excluders = if centre.name == partner.name {
-            centre.count.saturating_sub(2)
-        } else {
-            centre.count
-        };
         let volume: f64 = scenario.sim_box.edges_nm.iter().product();
-        let occupancy = excluders as f64 * 4.0 / 3.0 * PI * reach.powi(3) / volume;
+        let occupancy = measured.excluders as f64 * 4.0 / 3.0 * PI * reach.powi(3) / volume;
         let second_virial_nm3 = (exact || occupancy <= DILUTE_OCCUPANCY)
             .then_some([measured.second_virial_nm3, measured.second_virial_se_nm3]);
         pairs.push(PairEntry {

@@ -118,7 +118,7 @@ pub fn thermal_energy_pn_nm(temperature_k: f64) -> f64 {
     BOLTZMANN_J_PER_K * temperature_k * 1e21
 }
 
-fn invalid(
+pub(crate) fn invalid(
     file: &Path,
     key: impl Into<String>,
     value: impl ToString,

@@ -10,9 +10,9 @@
 //! the arithmetic mean (Lorentz–Berthelot), the Hamaker constant the
 //! geometric mean, the closest van der Waals gap the larger of the two.
 
-use crate::base::error::{EngineError, Result};
+use crate::base::error::Result;
 use crate::scenario::drive::{
-    electrolyte, finite_within, thermal_energy_pn_nm, van_der_waals, well, MediumKeys,
+    electrolyte, finite_within, invalid, thermal_energy_pn_nm, van_der_waals, well, MediumKeys,
 };
 use crate::scenario::species::Species;
 use crate::space::pairs::{PairPotential, PairTable};
@@ -50,15 +50,6 @@ pub struct PairSetting<'a> {
     pub edges_nm: &'a [f64; 3],
     /// Periodic axes.
     pub periodic: &'a [bool; 3],
-}
-
-fn invalid(file: &Path, key: String, value: impl ToString, allowed: &str) -> EngineError {
-    EngineError::InvalidValue {
-        file: file.to_path_buf(),
-        key,
-        value: value.to_string(),
-        allowed: allowed.into(),
-    }
 }
 
 /// True when a species' `surface_potential_mV` and `hamaker_constant_zJ`
@@ -256,7 +247,7 @@ pub fn pair_table(
             if min_edge <= 2.0 * p.cutoff_distance_nm() {
                 return Err(invalid(
                     file,
-                    "box.edges_nm".into(),
+                    "box.edges_nm",
                     format!("{:?}", setting.edges_nm),
                     &format!(
                         "the interaction of species '{}' and '{}' reaches {:.2} nm between centres (cut where |U| < {} k_BT); \

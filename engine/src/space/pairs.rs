@@ -41,17 +41,6 @@ impl PairPotential {
         }
     }
 
-    /// Force along the line of centres at `r_nm` (positive: apart), pN
-    /// (0 beyond the cut-off).
-    #[inline]
-    pub fn force_pn(&self, r_nm: f64) -> f64 {
-        if r_nm >= self.cutoff_distance_nm() {
-            0.0
-        } else {
-            self.u.force_pn(r_nm - self.contact_nm)
-        }
-    }
-
     /// Energy (pN·nm) and force (pN) at centre distance `r_nm` ≥ contact, in one pass
     /// (both 0 beyond the cut-off).
     #[inline]

@@ -774,13 +774,7 @@ impl Crowd {
                 g,
                 true,
             );
-            let list = self.verlet.as_ref().expect("list built by load");
-            if list.drift2_at(&wrap, s, &moved.at) > list.max_drift2() {
-                // Neighbours are valid within half the skin of the build: a list from here, wide enough for this move.
-                let length = (d[0] * d[0] + d[1] * d[1] + d[2] * d[2]).sqrt();
-                self.rebuild_at_least(state, sim_box, 2.0 * 1.01 * length);
-                s = self.verlet.as_ref().expect("just built").slot_of(i);
-            }
+            // An obstacle rejects the move before any list is consulted (or rebuilt).
             let blocked = self
                 .grids
                 .get(sp)
@@ -788,6 +782,13 @@ impl Crowd {
                 .is_some_and(|grid| grid.blocked(&moved.at));
             if blocked {
                 continue;
+            }
+            let list = self.verlet.as_ref().expect("list built by load");
+            if list.drift2_at(&wrap, s, &moved.at) > list.max_drift2() {
+                // Neighbours are valid within half the skin of the build: a list from here, wide enough for this move.
+                let length = (d[0] * d[0] + d[1] * d[1] + d[2] * d[2]).sqrt();
+                self.rebuild_at_least(state, sim_box, 2.0 * 1.01 * length);
+                s = self.verlet.as_ref().expect("just built").slot_of(i);
             }
             let Some((u_y, f_y)) = self.soft_energy_force(s, &moved.at, &wrap) else {
                 continue;
